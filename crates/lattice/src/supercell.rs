@@ -1,0 +1,228 @@
+//! Supercells: the crystal repeated `n1 x n2 x n3` times, with a linear numbering of sites.
+//!
+//! Site numbering is `i = ((c3 * n2 + c2) * n1 + c1) * nb + b` for cell `(c1, c2, c3)` and
+//! basis site `b`: the basis is innermost and `c1` runs fastest, so a row of cells along
+//! `a1` is one contiguous block of spins and neighbours along `a1` are `nb` apart.
+
+use crate::crystal::Crystal;
+use crate::error::LatticeError;
+use crate::hash::unit_hash;
+use crate::vec3::Vec3;
+
+/// A finite piece of crystal: dimensions, boundary conditions, and which sites are occupied.
+#[derive(Debug, Clone)]
+pub struct Supercell {
+    crystal: Crystal,
+    cells: [usize; 3],
+    periodic: [bool; 3],
+    /// `None` when every site is occupied (the common case costs no memory).
+    occupied: Option<Vec<bool>>,
+    /// Layer of each basis site within its cell along `a3`.
+    basis_layer: Vec<usize>,
+    layers_per_cell: usize,
+}
+
+impl Supercell {
+    /// Builds the supercell; sites with `occupancy < 1` are kept with that probability,
+    /// drawn from `seed` by a stateless hash so the draw never depends on order.
+    pub fn new(crystal: Crystal, cells: [usize; 3], periodic: [bool; 3], seed: u64) -> Result<Self, LatticeError> {
+        if cells.iter().any(|&n| n == 0) {
+            return Err(LatticeError::EmptySupercell { cells });
+        }
+        let nb = crystal.basis.len();
+        let n = cells[0] * cells[1] * cells[2] * nb;
+        let occupied = if crystal.basis.iter().any(|s| s.occupancy < 1.0) {
+            Some(
+                (0..n)
+                    .map(|i| unit_hash(seed, 0x0CC, i as u64) < crystal.basis[i % nb].occupancy)
+                    .collect(),
+            )
+        } else {
+            None
+        };
+        // Distinct heights along a3 (fractional, reduced to [0, 1)) define the layers of a cell.
+        let mut heights: Vec<f64> = Vec::new();
+        let frac_z = |s: &crate::BasisSite| s.position[2] - s.position[2].floor();
+        for s in &crystal.basis {
+            let z = frac_z(s);
+            if !heights.iter().any(|h| (h - z).abs() < 1e-6) {
+                heights.push(z);
+            }
+        }
+        heights.sort_by(|a, b| a.partial_cmp(b).expect("finite heights"));
+        let basis_layer = crystal
+            .basis
+            .iter()
+            .map(|s| heights.iter().position(|h| (h - frac_z(s)).abs() < 1e-6).expect("height listed"))
+            .collect();
+        Ok(Self { crystal, cells, periodic, occupied, basis_layer, layers_per_cell: heights.len() })
+    }
+
+    /// The crystal this supercell repeats.
+    pub fn crystal(&self) -> &Crystal {
+        &self.crystal
+    }
+
+    /// Number of cells along each axis.
+    pub fn cells(&self) -> [usize; 3] {
+        self.cells
+    }
+
+    /// Periodic boundary per axis.
+    pub fn periodic(&self) -> [bool; 3] {
+        self.periodic
+    }
+
+    /// Number of basis sites per cell.
+    pub fn basis_len(&self) -> usize {
+        self.crystal.basis.len()
+    }
+
+    /// Number of sites, occupied or not (the length of every per-site array).
+    pub fn len(&self) -> usize {
+        self.cells[0] * self.cells[1] * self.cells[2] * self.basis_len()
+    }
+
+    /// True when the supercell has no sites (never, after construction).
+    pub fn is_empty(&self) -> bool {
+        self.len() == 0
+    }
+
+    /// Number of occupied sites: the number of spins.
+    pub fn spin_count(&self) -> usize {
+        match &self.occupied {
+            None => self.len(),
+            Some(o) => o.iter().filter(|&&x| x).count(),
+        }
+    }
+
+    /// Whether site `i` carries a spin.
+    #[inline]
+    pub fn is_occupied(&self, i: usize) -> bool {
+        self.occupied.as_ref().is_none_or(|o| o[i])
+    }
+
+    /// Occupation mask, `None` when every site is occupied.
+    pub fn occupation(&self) -> Option<&[bool]> {
+        self.occupied.as_deref()
+    }
+
+    /// Linear index of basis site `b` in cell `c`.
+    #[inline(always)]
+    pub fn index(&self, c: [usize; 3], b: usize) -> usize {
+        ((c[2] * self.cells[1] + c[1]) * self.cells[0] + c[0]) * self.basis_len() + b
+    }
+
+    /// Cell and basis site of linear index `i`.
+    #[inline(always)]
+    pub fn decompose(&self, i: usize) -> ([usize; 3], usize) {
+        let nb = self.basis_len();
+        let b = i % nb;
+        let mut r = i / nb;
+        let c1 = r % self.cells[0];
+        r /= self.cells[0];
+        let c2 = r % self.cells[1];
+        let c3 = r / self.cells[1];
+        ([c1, c2, c3], b)
+    }
+
+    /// The site reached from cell `c` by `offset` cells, on basis site `to`, or `None`
+    /// where an open boundary cuts the bond.
+    #[inline(always)]
+    pub fn neighbour(&self, c: [usize; 3], offset: [i32; 3], to: usize) -> Option<usize> {
+        let mut t = [0usize; 3];
+        for k in 0..3 {
+            let n = self.cells[k] as i64;
+            let x = c[k] as i64 + offset[k] as i64;
+            t[k] = if self.periodic[k] {
+                x.rem_euclid(n) as usize
+            } else if x < 0 || x >= n {
+                return None;
+            } else {
+                x as usize
+            };
+        }
+        Some(self.index(t, to))
+    }
+
+    /// Whether a bond with this cell offset can exist at all in this supercell: along an
+    /// open axis the offset must be shorter than the box, and along a periodic axis of a
+    /// single cell only offset 0 exists (an image of the same column is not a neighbour).
+    pub fn offset_allowed(&self, offset: [i32; 3]) -> bool {
+        (0..3).all(|k| {
+            let n = self.cells[k] as i64;
+            let o = offset[k] as i64;
+            if self.periodic[k] {
+                n > 1 || o == 0
+            } else {
+                o.abs() < n
+            }
+        })
+    }
+
+    /// Cartesian position of site `i`, Å (cell origin plus basis position).
+    pub fn position(&self, i: usize) -> Vec3 {
+        let (c, b) = self.decompose(i);
+        let f = self.crystal.basis[b].position;
+        self.crystal
+            .to_cartesian([c[0] as f64 + f[0], c[1] as f64 + f[1], c[2] as f64 + f[2]])
+    }
+
+    /// Layers per cell along `a3` (distinct basis heights).
+    pub fn layers_per_cell(&self) -> usize {
+        self.layers_per_cell
+    }
+
+    /// Number of layers along `a3` in the whole supercell.
+    pub fn layer_count(&self) -> usize {
+        self.cells[2] * self.layers_per_cell
+    }
+
+    /// Layer index of site `i`, counted from 0 along `a3`.
+    #[inline]
+    pub fn layer(&self, i: usize) -> usize {
+        let (c, b) = self.decompose(i);
+        c[2] * self.layers_per_cell + self.basis_layer[b]
+    }
+
+    /// Layer of each basis site within its cell.
+    pub fn basis_layers(&self) -> &[usize] {
+        &self.basis_layer
+    }
+
+    /// Species index of site `i`.
+    #[inline]
+    pub fn species(&self, i: usize) -> usize {
+        self.crystal.basis[i % self.basis_len()].species
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::preset;
+
+    #[test]
+    fn index_round_trips_and_layers_count_heights() {
+        let s = Supercell::new(preset("bcc", 2.87, None).unwrap(), [3, 4, 5], [true, true, false], 1).unwrap();
+        assert_eq!(s.len(), 3 * 4 * 5 * 2);
+        for i in 0..s.len() {
+            let (c, b) = s.decompose(i);
+            assert_eq!(s.index(c, b), i);
+        }
+        assert_eq!(s.layer_count(), 10);
+        assert_eq!(s.layer(s.index([0, 0, 2], 1)), 5);
+        assert_eq!(s.neighbour([0, 0, 4], [0, 0, 1], 0), None);
+        assert_eq!(s.neighbour([0, 0, 0], [-1, 0, 0], 0), Some(s.index([2, 0, 0], 0)));
+    }
+
+    #[test]
+    fn dilution_follows_occupancy() {
+        let mut c = preset("square", 3.0, None).unwrap();
+        c.basis[0].occupancy = 0.7;
+        let s = Supercell::new(c, [100, 100, 1], [true; 3], 42).unwrap();
+        let f = s.spin_count() as f64 / s.len() as f64;
+        // Binomial standard deviation sqrt(0.21/1e4) = 0.0046; 5 sigma.
+        assert!((f - 0.7).abs() < 0.023, "{f}");
+    }
+}

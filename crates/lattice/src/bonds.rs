@@ -93,7 +93,14 @@ impl BondList {
     /// Adds the pair `(from, cell 0) -- (to, cell offset)` in both directions. A coupling
     /// on a bond that already exists is added to it, so exchange and DMI given separately
     /// for the same shell end on one bond.
-    pub fn add_pair(&mut self, from: usize, to: usize, offset: [i32; 3], vector: Vec3, coupling: Coupling) -> Result<(), LatticeError> {
+    pub fn add_pair(
+        &mut self,
+        from: usize,
+        to: usize,
+        offset: [i32; 3],
+        vector: Vec3,
+        coupling: Coupling,
+    ) -> Result<(), LatticeError> {
         if from >= self.per_basis.len() || to >= self.per_basis.len() {
             return Err(LatticeError::NoSites);
         }
@@ -134,7 +141,11 @@ impl BondList {
     /// Drops bonds whose coupling vanishes entirely.
     pub fn prune(&mut self) {
         for list in &mut self.per_basis {
-            list.retain(|b| b.coupling.j != 0.0 || b.coupling.d != [0.0; 3] || b.coupling.tensor.is_some_and(|t| t != [[0.0; 3]; 3]));
+            list.retain(|b| {
+                b.coupling.j != 0.0
+                    || b.coupling.d != [0.0; 3]
+                    || b.coupling.tensor.is_some_and(|t| t != [[0.0; 3]; 3])
+            });
         }
     }
 }

@@ -4,15 +4,8 @@ use crate::error::LatticeError;
 use crate::vec3::{cross, dot, norm, Vec3};
 
 /// Names accepted by [`preset`].
-pub const PRESETS: [&str; 7] = [
-    "simple-cubic",
-    "bcc",
-    "fcc",
-    "square",
-    "triangular",
-    "honeycomb",
-    "hexagonal",
-];
+pub const PRESETS: [&str; 7] =
+    ["simple-cubic", "bcc", "fcc", "square", "triangular", "honeycomb", "hexagonal"];
 
 /// One site of the basis.
 #[derive(Debug, Clone, PartialEq)]
@@ -94,11 +87,7 @@ impl Crystal {
     pub fn plane_spacings(&self) -> [f64; 3] {
         let v = &self.vectors;
         let vol = self.volume();
-        [
-            vol / norm(cross(v[1], v[2])),
-            vol / norm(cross(v[2], v[0])),
-            vol / norm(cross(v[0], v[1])),
-        ]
+        [vol / norm(cross(v[1], v[2])), vol / norm(cross(v[2], v[0])), vol / norm(cross(v[0], v[1]))]
     }
 
     /// Unit normal of the plane spanned by `a1` and `a2` (the layer plane).
@@ -131,19 +120,13 @@ pub fn preset(name: &str, a: f64, c: Option<f64>) -> Result<Crystal, LatticeErro
     let (vectors, basis) = match name {
         "simple-cubic" => (cubic, vec![site(0.0, 0.0, 0.0)]),
         "bcc" => (cubic, vec![site(0.0, 0.0, 0.0), site(0.5, 0.5, 0.5)]),
-        "fcc" => (
-            cubic,
-            vec![site(0.0, 0.0, 0.0), site(0.5, 0.5, 0.0), site(0.5, 0.0, 0.5), site(0.0, 0.5, 0.5)],
-        ),
+        "fcc" => {
+            (cubic, vec![site(0.0, 0.0, 0.0), site(0.5, 0.5, 0.0), site(0.5, 0.0, 0.5), site(0.0, 0.5, 0.5)])
+        }
         "square" => ([[a, 0.0, 0.0], [0.0, a, 0.0], [0.0, 0.0, c]], vec![site(0.0, 0.0, 0.0)]),
         "triangular" | "hexagonal" => (hex, vec![site(0.0, 0.0, 0.0)]),
         "honeycomb" => (hex, vec![site(0.0, 0.0, 0.0), site(1.0 / 3.0, 1.0 / 3.0, 0.0)]),
-        _ => {
-            return Err(LatticeError::UnknownPreset {
-                name: name.to_string(),
-                known: PRESETS.join(", "),
-            })
-        }
+        _ => return Err(LatticeError::UnknownPreset { name: name.to_string(), known: PRESETS.join(", ") }),
     };
     Crystal::new(vectors, basis)
 }
@@ -166,7 +149,10 @@ mod tests {
     fn collinear_vectors_and_overlapping_sites_are_refused() {
         let s = BasisSite { position: [0.0; 3], species: 0, occupancy: 1.0 };
         let collinear = [[1.0, 0.0, 0.0], [2.0, 0.0, 0.0], [0.0, 0.0, 1.0]];
-        assert!(matches!(Crystal::new(collinear, vec![s.clone()]), Err(LatticeError::DegenerateVectors { .. })));
+        assert!(matches!(
+            Crystal::new(collinear, vec![s.clone()]),
+            Err(LatticeError::DegenerateVectors { .. })
+        ));
         let cubic = [[1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [0.0, 0.0, 1.0]];
         let mut t = s.clone();
         t.position = [1.0, 0.0, 0.0]; // the same site one cell over

@@ -184,7 +184,8 @@ mod tests {
 
     #[test]
     fn open_axes_limit_the_shells() {
-        let cell = Supercell::new(preset("simple-cubic", 1.0, None).unwrap(), [1, 1, 2], [false; 3], 0).unwrap();
+        let cell =
+            Supercell::new(preset("simple-cubic", 1.0, None).unwrap(), [1, 1, 2], [false; 3], 0).unwrap();
         let d = shell_distances(&cell, 3, &|_, _| true);
         assert_eq!(d.len(), 1, "a two-site stack has one bond length: {d:?}");
     }

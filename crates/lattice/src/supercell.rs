@@ -25,18 +25,19 @@ pub struct Supercell {
 impl Supercell {
     /// Builds the supercell; sites with `occupancy < 1` are kept with that probability,
     /// drawn from `seed` by a stateless hash so the draw never depends on order.
-    pub fn new(crystal: Crystal, cells: [usize; 3], periodic: [bool; 3], seed: u64) -> Result<Self, LatticeError> {
+    pub fn new(
+        crystal: Crystal,
+        cells: [usize; 3],
+        periodic: [bool; 3],
+        seed: u64,
+    ) -> Result<Self, LatticeError> {
         if cells.iter().any(|&n| n == 0) {
             return Err(LatticeError::EmptySupercell { cells });
         }
         let nb = crystal.basis.len();
         let n = cells[0] * cells[1] * cells[2] * nb;
         let occupied = if crystal.basis.iter().any(|s| s.occupancy < 1.0) {
-            Some(
-                (0..n)
-                    .map(|i| unit_hash(seed, 0x0CC, i as u64) < crystal.basis[i % nb].occupancy)
-                    .collect(),
-            )
+            Some((0..n).map(|i| unit_hash(seed, 0x0CC, i as u64) < crystal.basis[i % nb].occupancy).collect())
         } else {
             None
         };
@@ -164,8 +165,7 @@ impl Supercell {
     pub fn position(&self, i: usize) -> Vec3 {
         let (c, b) = self.decompose(i);
         let f = self.crystal.basis[b].position;
-        self.crystal
-            .to_cartesian([c[0] as f64 + f[0], c[1] as f64 + f[1], c[2] as f64 + f[2]])
+        self.crystal.to_cartesian([c[0] as f64 + f[0], c[1] as f64 + f[1], c[2] as f64 + f[2]])
     }
 
     /// Layers per cell along `a3` (distinct basis heights).
@@ -204,7 +204,8 @@ mod tests {
 
     #[test]
     fn index_round_trips_and_layers_count_heights() {
-        let s = Supercell::new(preset("bcc", 2.87, None).unwrap(), [3, 4, 5], [true, true, false], 1).unwrap();
+        let s =
+            Supercell::new(preset("bcc", 2.87, None).unwrap(), [3, 4, 5], [true, true, false], 1).unwrap();
         assert_eq!(s.len(), 3 * 4 * 5 * 2);
         for i in 0..s.len() {
             let (c, b) = s.decompose(i);

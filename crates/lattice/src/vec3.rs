@@ -13,11 +13,7 @@ pub fn dot(a: Vec3, b: Vec3) -> f64 {
 /// Cross product `a x b`.
 #[inline(always)]
 pub fn cross(a: Vec3, b: Vec3) -> Vec3 {
-    [
-        a[1] * b[2] - a[2] * b[1],
-        a[2] * b[0] - a[0] * b[2],
-        a[0] * b[1] - a[1] * b[0],
-    ]
+    [a[1] * b[2] - a[2] * b[1], a[2] * b[0] - a[0] * b[2], a[0] * b[1] - a[1] * b[0]]
 }
 
 /// Euclidean norm.

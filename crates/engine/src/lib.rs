@@ -1,0 +1,14 @@
+//! Protocols and stages of a Spindrift run.
+//!
+//! The engine steps spins through the stages of a protocol and hands what it observes to
+//! a [`Sink`]. It defines the records ([`record`]) and the sink trait, and knows nothing
+//! of files: `spindrift-io` stores records as HDF5 and JSON.
+#![deny(missing_docs)]
+
+pub mod record;
+mod sink;
+
+pub use record::{
+    Checkpoint, CurieEstimate, FinalState, PointRow, RowCounts, RunHeader, SeriesRow, StageInfo, StageSummary,
+};
+pub use sink::{MemorySink, Sink, SinkError};

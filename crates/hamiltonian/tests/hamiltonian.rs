@@ -1,0 +1,304 @@
+//! Checks of the Hamiltonian against its definition and textbook results.
+
+use spindrift_hamiltonian::constants::{K_B, MU_B};
+use spindrift_hamiltonian::curie::curie_estimates;
+use spindrift_hamiltonian::timestep::recommended_dt;
+use spindrift_hamiltonian::*;
+use spindrift_lattice::{preset, unit_hash, BondList, Coupling, Supercell, Vec3};
+
+fn species(n: usize) -> Vec<Species> {
+    (0..n)
+        .map(|k| Species {
+            name: format!("S{k}"),
+            moment: 1.5 + k as f64,
+            damping: 0.1,
+            anisotropy: 0.3 - 0.5 * k as f64,
+            axis: [0.2, 0.1 * k as f64, 1.0],
+        })
+        .collect()
+}
+
+fn random_spins(n: usize, seed: u64) -> Vec<Vec3> {
+    (0..n)
+        .map(|i| {
+            let z = 2.0 * unit_hash(seed, 1, i as u64) - 1.0;
+            let phi = std::f64::consts::TAU * unit_hash(seed, 2, i as u64);
+            let r = (1.0 - z * z).sqrt();
+            [r * phi.cos(), r * phi.sin(), z]
+        })
+        .collect()
+}
+
+/// A set of systems covering every term: several lattices, shells, both DMI forms,
+/// tensors, open boundaries and dilution.
+fn systems() -> Vec<(&'static str, Hamiltonian)> {
+    let mut out = Vec::new();
+    let build = |name: &str,
+                 cells: [usize; 3],
+                 periodic: [bool; 3],
+                 shells: &[ShellCoupling],
+                 tensor: bool,
+                 occ: f64| {
+        let mut crystal = preset(name, 2.5, None).unwrap();
+        let nb = crystal.basis.len();
+        for (k, s) in crystal.basis.iter_mut().enumerate() {
+            s.species = k % 2;
+            s.occupancy = occ;
+        }
+        let cell = Supercell::new(crystal, cells, periodic, 3).unwrap();
+        let mut bonds = BondList::new(nb);
+        for s in shells {
+            add_shell(&cell, &mut bonds, s).unwrap();
+        }
+        if tensor {
+            let t = [[0.3, 0.1, -0.2], [0.05, -0.1, 0.4], [0.2, 0.3, 0.1]];
+            bonds
+                .add_pair(
+                    0,
+                    nb - 1,
+                    [1, 0, 0],
+                    [2.5, 0.0, 0.0],
+                    Coupling { j: 0.7, d: [0.1, -0.2, 0.3], tensor: Some(t) },
+                )
+                .unwrap();
+        }
+        Hamiltonian::new(cell, species(2), bonds, [0.3, -0.7, 1.9]).unwrap()
+    };
+    let inter = DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] };
+    let sh = |n, j, dmi| ShellCoupling { shell: ShellRef::Index(n), j, dmi, pair: None };
+    out.push((
+        "simple-cubic film, 2 shells, bulk DMI",
+        build(
+            "simple-cubic",
+            [4, 3, 3],
+            [true, true, false],
+            &[sh(1, 5.0, Some((1.2, DmiKind::Bulk))), sh(2, -0.8, None)],
+            false,
+            1.0,
+        ),
+    ));
+    out.push((
+        "triangular monolayer, interfacial DMI",
+        build(
+            "triangular",
+            [5, 4, 1],
+            [true; 3],
+            &[sh(1, 7.0, Some((2.0, inter))), sh(3, 0.5, None)],
+            false,
+            1.0,
+        ),
+    ));
+    out.push((
+        "honeycomb with tensor bond",
+        build("honeycomb", [3, 4, 2], [true, false, true], &[sh(1, 3.0, Some((0.4, inter)))], true, 1.0),
+    ));
+    out.push((
+        "bcc diluted",
+        build(
+            "bcc",
+            [3, 3, 3],
+            [true; 3],
+            &[sh(1, 4.0, None), sh(2, 1.0, Some((0.3, DmiKind::Bulk)))],
+            false,
+            0.8,
+        ),
+    ));
+    out.push(("fcc open island", build("fcc", [2, 2, 2], [false; 3], &[sh(1, 2.0, None)], true, 1.0)));
+    out
+}
+
+fn occupied_spins(h: &Hamiltonian, seed: u64) -> Vec<Vec3> {
+    let mut s = random_spins(h.len(), seed);
+    for (i, v) in s.iter_mut().enumerate() {
+        if !h.cell().is_occupied(i) {
+            *v = [0.0; 3];
+        }
+    }
+    s
+}
+
+/// The fused field kernel equals the sum of the terms' gradients divided by `mu muB`
+/// (the definition B = -(1/(mu muB)) dH/dS, INTERFACE.md).
+#[test]
+fn fused_field_equals_sum_of_terms() {
+    for (name, h) in systems() {
+        let spins = occupied_spins(&h, 11);
+        let mut grad = vec![[0.0; 3]; h.len()];
+        for t in h.terms() {
+            t.add_gradient(h.cell(), &spins, &mut grad);
+        }
+        let mut field = vec![[0.0; 3]; h.len()];
+        h.fields(&spins, &mut field);
+        for i in 0..h.len() {
+            if !h.cell().is_occupied(i) {
+                continue;
+            }
+            let mu = h.moment(i) * MU_B;
+            for a in 0..3 {
+                let expect = grad[i][a] / mu;
+                assert!((field[i][a] - expect).abs() < 1e-12 * (1.0 + expect.abs()), "{name}: site {i} {a}");
+            }
+        }
+        let e = h.energy(&spins);
+        let sum: f64 = h.terms().iter().map(|t| t.energy(h.cell(), &spins)).sum();
+        assert!((e.total() - sum).abs() < 1e-10 * (1.0 + sum.abs()), "{name}: {} vs {sum}", e.total());
+    }
+}
+
+/// The effective field is minus the energy gradient over `mu muB`: central finite
+/// differences of the total energy (exact up to rounding, the energy being quadratic in
+/// each spin's components).
+#[test]
+fn field_is_minus_energy_gradient() {
+    for (name, h) in systems() {
+        let mut spins = occupied_spins(&h, 5);
+        let mut field = vec![[0.0; 3]; h.len()];
+        h.fields(&spins, &mut field);
+        let eps = 1e-4;
+        for i in (0..h.len()).step_by(7) {
+            if !h.cell().is_occupied(i) {
+                continue;
+            }
+            for a in 0..3 {
+                let v = spins[i][a];
+                spins[i][a] = v + eps;
+                let ep = h.energy(&spins).total();
+                spins[i][a] = v - eps;
+                let em = h.energy(&spins).total();
+                spins[i][a] = v;
+                let fd = -(ep - em) / (2.0 * eps) / (h.moment(i) * MU_B);
+                assert!(
+                    (field[i][a] - fd).abs() < 1e-6 * (1.0 + fd.abs()),
+                    "{name}: site {i} comp {a}: {} vs {fd}",
+                    field[i][a]
+                );
+            }
+        }
+    }
+}
+
+/// The one-spin energy change used by Monte Carlo equals the difference of total energies.
+#[test]
+fn local_energy_change_equals_total_difference() {
+    for (name, h) in systems() {
+        let mut spins = occupied_spins(&h, 9);
+        let trial = random_spins(h.len(), 99);
+        for i in (0..h.len()).step_by(5) {
+            if !h.cell().is_occupied(i) {
+                continue;
+            }
+            let before = h.energy(&spins).total();
+            let de = h.energy_change(&spins, i, trial[i]);
+            let old = spins[i];
+            spins[i] = trial[i];
+            let after = h.energy(&spins).total();
+            spins[i] = old;
+            assert!((after - before - de).abs() < 1e-9 * (1.0 + before.abs()), "{name}: site {i}");
+            // The terms' own site energies agree too.
+            let site: f64 = h
+                .terms()
+                .iter()
+                .map(|t| {
+                    t.site_energy(h.cell(), &spins, i, trial[i]) - t.site_energy(h.cell(), &spins, i, old)
+                })
+                .sum();
+            assert!((site - de).abs() < 1e-9 * (1.0 + de.abs()), "{name}: site {i}");
+        }
+    }
+}
+
+/// Ferromagnetic ground-state energy per spin `-z J / 2` with coordination numbers
+/// z = 6, 8, 12, 4, 6, 3 for simple-cubic, bcc, fcc, square, triangular, honeycomb
+/// (common practice; Kittel, Introduction to Solid State Physics, ch. 1).
+#[test]
+fn ferromagnetic_energy_is_minus_z_j_over_two() {
+    let j = 3.7;
+    for (name, z, cells) in [
+        ("simple-cubic", 6.0, [4, 4, 4]),
+        ("bcc", 8.0, [4, 4, 4]),
+        ("fcc", 12.0, [3, 3, 3]),
+        ("square", 4.0, [6, 6, 1]),
+        ("triangular", 6.0, [6, 6, 1]),
+        ("honeycomb", 3.0, [6, 6, 1]),
+    ] {
+        let cell = Supercell::new(preset(name, 2.9, None).unwrap(), cells, [true; 3], 0).unwrap();
+        let mut bonds = BondList::new(cell.basis_len());
+        add_shell(&cell, &mut bonds, &ShellCoupling { shell: ShellRef::Index(1), j, dmi: None, pair: None })
+            .unwrap();
+        let sp = vec![Species {
+            name: "A".into(),
+            moment: 2.0,
+            damping: 0.1,
+            anisotropy: 0.0,
+            axis: [0.0, 0.0, 1.0],
+        }];
+        let h = Hamiltonian::new(cell, sp, bonds, [0.0; 3]).unwrap();
+        let spins = vec![[0.0, 0.0, 1.0]; h.len()];
+        let e = h.energy(&spins).total() / h.spin_count() as f64;
+        assert!((e + z * j / 2.0).abs() < 1e-12, "{name}: {e}");
+    }
+}
+
+fn bulk_ferromagnet(
+    name: &str,
+    j: f64,
+    anisotropy: f64,
+    cells: [usize; 3],
+    periodic: [bool; 3],
+) -> Hamiltonian {
+    let cell = Supercell::new(preset(name, 3.0, None).unwrap(), cells, periodic, 0).unwrap();
+    let mut bonds = BondList::new(cell.basis_len());
+    add_shell(&cell, &mut bonds, &ShellCoupling { shell: ShellRef::Index(1), j, dmi: None, pair: None })
+        .unwrap();
+    let sp = vec![Species { name: "A".into(), moment: 2.0, damping: 0.1, anisotropy, axis: [0.0, 0.0, 1.0] }];
+    Hamiltonian::new(cell, sp, bonds, [0.0; 3]).unwrap()
+}
+
+/// Mean field for classical spins, `kB Tc = z J / 3` (textbook, e.g. Kittel ch. 11), and
+/// RPA (Tyablikov) for classical spins, `kB Tc = z J / (3 W)` with the lattice Green
+/// function at the origin (Watson's integrals): simple cubic W = 1.516386 (G. N. Watson,
+/// Q. J. Math. 10, 266 (1939)); bcc 1.393204 and fcc 1.344661 (same paper; the digits are
+/// quoted from memory). Tolerance 0.2% for the converged Brillouin-zone average.
+#[test]
+fn curie_estimates_match_mean_field_and_watson_integrals() {
+    let j = 10.0;
+    for (name, z, w) in [("simple-cubic", 6.0, 1.516386), ("bcc", 8.0, 1.393204), ("fcc", 12.0, 1.344661)] {
+        let h = bulk_ferromagnet(name, j, 0.0, [4, 4, 4], [true; 3]);
+        let c = curie_estimates(&h);
+        let mf = z * j / (3.0 * K_B);
+        assert!((c.mean_field - mf).abs() < 1e-9 * mf, "{name} MF {} vs {mf}", c.mean_field);
+        let rpa = z * j / (3.0 * w * K_B);
+        let got = c.rpa.expect("rpa");
+        assert!((got - rpa).abs() < 2e-3 * rpa, "{name} RPA {got} vs {rpa}");
+    }
+}
+
+/// Films: a film of N layers has a lower mean-field Tc than bulk and approaches it as N
+/// grows (the largest eigenvalue of the layer coupling matrix; for a simple-cubic film,
+/// lambda = J (4 + 2 cos(pi/(N+1))), a textbook tridiagonal-matrix result); an isotropic
+/// monolayer has RPA Tc = 0 (N. D. Mermin and H. Wagner, Phys. Rev. Lett. 17, 1133 (1966)),
+/// which an easy-axis anisotropy lifts.
+#[test]
+fn film_estimates_follow_thickness() {
+    let j = 10.0;
+    for n in [1usize, 2, 5] {
+        let h = bulk_ferromagnet("simple-cubic", j, 0.0, [8, 8, n], [true, true, false]);
+        let c = curie_estimates(&h);
+        let lambda = j * (4.0 + 2.0 * (std::f64::consts::PI / (n as f64 + 1.0)).cos());
+        assert!((c.mean_field - lambda / (3.0 * K_B)).abs() < 1e-9 * c.mean_field, "N={n}");
+    }
+    let mono = curie_estimates(&bulk_ferromagnet("simple-cubic", j, 0.0, [8, 8, 1], [true, true, false]));
+    assert_eq!(mono.rpa, Some(0.0));
+    let gapped = curie_estimates(&bulk_ferromagnet("simple-cubic", j, 0.5, [8, 8, 1], [true, true, false]));
+    let t = gapped.rpa.expect("gapped monolayer");
+    assert!(t > 0.0 && t < gapped.mean_field, "{t}");
+}
+
+#[test]
+fn recommended_dt_resolves_the_fastest_precession() {
+    let h = bulk_ferromagnet("simple-cubic", 10.0, 0.0, [4, 4, 4], [true; 3]);
+    let dt = recommended_dt(&h);
+    // z J / (mu muB) = 60 / (2 * 0.05788) T = 518 T; omega = 0.176 rad/(ps T) * 518 T.
+    let omega = 0.176085963023 * 60.0 / (2.0 * MU_B);
+    assert!(dt <= 0.05 / omega && dt > 0.02 / omega, "{dt}");
+}

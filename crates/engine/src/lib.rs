@@ -5,10 +5,20 @@
 //! of files: `spindrift-io` stores records as HDF5 and JSON.
 #![deny(missing_docs)]
 
+pub mod control;
+mod error;
+pub mod protocol;
 pub mod record;
+mod runner;
+pub mod seeds;
 mod sink;
+mod stages;
 
+pub use control::{Control, Monitor, Poll, Silent, StopReason};
+pub use error::EngineError;
+pub use protocol::{InitialState, Protocol, ScanMethod, Stage, StageKind};
 pub use record::{
     Checkpoint, CurieEstimate, FinalState, PointRow, RowCounts, RunHeader, SeriesRow, StageInfo, StageSummary,
 };
+pub use runner::{initial_spins, Cursor, Outcome, Runner};
 pub use sink::{MemorySink, Sink, SinkError};

@@ -86,7 +86,7 @@ pub struct PointRow {
     pub m_abs: f64,
     /// Its error.
     pub m_abs_err: f64,
-    /// Susceptibility `N (<m^2> - <|m|>^2) / (kB T)`, 1/meV... see the stage docs for normalisation.
+    /// Susceptibility per spin `N (<|m|^2> - <|m|>^2) / (kB T)`, 1/meV (see `spindrift_observe::statistics`).
     pub susceptibility: f64,
     /// Its error.
     pub susceptibility_err: f64,

@@ -31,7 +31,7 @@ impl Supercell {
         periodic: [bool; 3],
         seed: u64,
     ) -> Result<Self, LatticeError> {
-        if cells.iter().any(|&n| n == 0) {
+        if cells.contains(&0) {
             return Err(LatticeError::EmptySupercell { cells });
         }
         let nb = crystal.basis.len();

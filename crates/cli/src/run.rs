@@ -1,0 +1,191 @@
+//! `spindrift run`: a config's stages into a run folder, with checkpoints, resume and
+//! exit codes for early stops.
+
+use crate::args::RunArgs;
+use crate::exit::{self, bad_input, numerical, output, Failure, Outcome};
+use crate::progress::Progress;
+use crate::signals;
+use crate::system::{load_system, set_threads};
+use anyhow::anyhow;
+use spindrift_config::{parse_wall_duration, Loaded, Validated};
+use spindrift_engine::{
+    Control, EngineError, Outcome as RunEnd, RunHeader, Runner, StageSummary, StopReason,
+};
+use spindrift_io::{read_checkpoint, write_summary, RunFile, RunReader, RunSummary};
+use std::path::{Path, PathBuf};
+use std::time::Instant;
+
+/// Default run folder of a config: `runs/<file stem>`.
+pub fn default_out(config: &Path, suffix: &str) -> PathBuf {
+    let stem = config.file_stem().map_or("run".into(), |s| s.to_string_lossy().into_owned());
+    PathBuf::from("runs").join(format!("{stem}{suffix}"))
+}
+
+/// The header of a run file: the system as the config resolved it.
+pub fn header(loaded: &Loaded, v: &Validated) -> RunHeader {
+    let h = &v.hamiltonian;
+    let cell = h.cell();
+    let n = h.len();
+    RunHeader {
+        title: v.title.clone(),
+        seed: v.seed,
+        config_toml: loaded.text.clone(),
+        program_version: env!("CARGO_PKG_VERSION").to_string(),
+        position: (0..n).map(|i| cell.position(i)).collect(),
+        site: (0..n).map(|i| (i % cell.basis_len()) as u32).collect(),
+        species: (0..n).map(|i| cell.species(i) as u32).collect(),
+        moment: (0..n).map(|i| h.moment(i)).collect(),
+        layer: (0..n).map(|i| cell.layer(i) as u32).collect(),
+        species_names: v.species_names.clone(),
+        layer_count: cell.layer_count(),
+    }
+}
+
+pub fn run(args: &RunArgs) -> Outcome {
+    let (loaded, v) = load_system(&args.config, &args.set)?;
+    if v.protocol.stages.is_empty() {
+        return Err(bad_input(anyhow!(
+            "{}: the config has no [[stage]]; nothing to run",
+            args.config.display()
+        )));
+    }
+    if !args.quiet {
+        for w in &v.warnings {
+            eprintln!("warning: {w}");
+        }
+    }
+    let threads = set_threads(args.threads)?;
+    let max_wall = args
+        .max_wall
+        .as_deref()
+        .map(parse_wall_duration)
+        .transpose()
+        .map_err(|e| bad_input(anyhow!("--max-wall: {}", e.message_for("--max-wall"))))?;
+    let started = Instant::now();
+    let stop = signals::install().map_err(|e| output(anyhow!("cannot install signal handlers: {e}")))?;
+    let control = Control::new(stop, max_wall.map(|d| started + d), v.checkpoint_every);
+    let mut progress = Progress::new(args.quiet);
+    let spins = v.hamiltonian.spin_count();
+
+    let (dir, mut file, end) = if let Some(dir) = &args.resume {
+        let checkpoint =
+            read_checkpoint(dir).map_err(|e| bad_input(anyhow!("--resume {}: {e}", dir.display())))?;
+        let stored = RunReader::open(dir)
+            .and_then(|r| r.attributes())
+            .map_err(|e| bad_input(anyhow!("--resume: {e}")))?;
+        if stored.config != loaded.text {
+            return Err(bad_input(anyhow!(
+                "--resume {}: the run was made from a different config (or other --set values); resume with the same ones",
+                dir.display()
+            )));
+        }
+        let mut file = RunFile::reopen(dir, &checkpoint.rows).map_err(output)?;
+        let end = {
+            let mut runner = Runner::resume(
+                v.hamiltonian.clone(),
+                &v.protocol,
+                &mut file,
+                &mut progress,
+                control,
+                checkpoint,
+            )
+            .map_err(engine_failure)?;
+            runner.run(None)
+        };
+        (dir.clone(), file, end)
+    } else {
+        let dir = args.out.clone().unwrap_or_else(|| default_out(&args.config, ""));
+        if dir.join("run.h5").exists() {
+            return Err(bad_input(anyhow!(
+                "{} already holds a run; continue it with --resume {} or choose another --out",
+                dir.display(),
+                dir.display()
+            )));
+        }
+        std::fs::create_dir_all(&dir).map_err(|e| output(anyhow!("cannot create {}: {e}", dir.display())))?;
+        let mut file = RunFile::create(&dir).map_err(output)?;
+        let head = header(&loaded, &v);
+        let end = {
+            let mut runner =
+                Runner::new(v.hamiltonian.clone(), &v.protocol, &mut file, &mut progress, control)
+                    .map_err(engine_failure)?;
+            runner.run(Some(&head))
+        };
+        (dir, file, end)
+    };
+    let wall = started.elapsed().as_secs_f64();
+    let xdmf = file.write_xdmf();
+    let closed = file.close();
+    let (finished, code) = match end {
+        Ok(RunEnd::Finished(s)) => (s, exit::OK),
+        Ok(RunEnd::Stopped { reason, finished }) => {
+            let code = match reason {
+                StopReason::WallLimit => exit::WALL_LIMIT,
+                StopReason::Signal(2) => exit::SIGINT,
+                StopReason::Signal(_) => exit::SIGTERM,
+            };
+            eprintln!(
+                "spindrift: stopped ({}); checkpoint written. Continue with: spindrift run {} --resume {}",
+                match reason {
+                    StopReason::WallLimit => "--max-wall reached".to_string(),
+                    StopReason::Signal(s) => format!("signal {s}"),
+                },
+                args.config.display(),
+                dir.display()
+            );
+            (finished, code)
+        }
+        Err(e) => return Err(engine_failure(e)),
+    };
+    xdmf.map_err(output)?;
+    closed.map_err(output)?;
+    write_summary(&dir, &RunSummary { spins, threads, wall_seconds: wall, stages: finished.clone() })
+        .map_err(output)?;
+    if code == exit::OK {
+        let cp = dir.join("checkpoint.h5");
+        if cp.exists() {
+            std::fs::remove_file(&cp).map_err(|e| output(anyhow!("cannot remove {}: {e}", cp.display())))?;
+        }
+        if !args.quiet {
+            print_summary(&dir, &finished, wall);
+        }
+    }
+    Ok(code)
+}
+
+fn engine_failure(e: EngineError) -> Failure {
+    match e {
+        EngineError::Sink(_) => output(e),
+        EngineError::NonFinite { .. } => numerical(e),
+        _ => bad_input(e),
+    }
+}
+
+fn print_summary(dir: &Path, stages: &[StageSummary], wall: f64) {
+    say!("run folder {}  ({wall:.1} s)", dir.display());
+    for s in stages {
+        let f = &s.final_state;
+        let m = f.magnetization;
+        say!(
+            "  stage {} {:<16} {:>9} steps  {:.3e} spin-steps/s   m = [{:+.4}, {:+.4}, {:+.4}]  E = {:.4} meV/spin  Q = {:+.3}",
+            s.index, s.kind, s.steps, s.spin_steps_per_second, m[0], m[1], m[2], f.energy, f.charge
+        );
+        if let Some(c) = &s.curie_temperature {
+            say!(
+                "      Curie temperature {:.1} +- {:.1} K ({}; a model estimate)",
+                c.value,
+                c.error,
+                c.method
+            );
+        }
+        if let Some((d, a)) = s.coercive_field {
+            say!("      coercive field {d:+.3} T (descending), {a:+.3} T (ascending)");
+        }
+        if let Some(r) = s.remanence {
+            say!("      remanence {r:+.4}");
+        }
+        for (k, v) in &s.extra {
+            say!("      {k} = {v}");
+        }
+    }
+}

@@ -1,0 +1,477 @@
+//! `spindrift sweep` and `spindrift merge`: families of runs over swept config values.
+//!
+//! A sweep is the Cartesian product of the `--vary` values; point `k` runs in
+//! `DIR/point_kkkk/` with the config's seed replaced by one derived from the base seed
+//! and `k`, so a point's result does not depend on which machine or shard ran it.
+//! `DIR/sweep.json` lists the points and their values (every shard writes the same
+//! content, atomically); each point's own `status.json` says whether it finished, so
+//! shards on a shared filesystem never write the same file. Re-running a sweep skips
+//! finished points and resumes points that stopped with a checkpoint.
+
+use crate::args::{MergeArgs, RunArgs, SweepArgs};
+use crate::exit::{self, bad_input, output, Failure, Outcome, OK};
+use crate::run::default_out;
+use crate::system::{available_memory, set_threads};
+use anyhow::anyhow;
+use serde_json::{json, Value};
+use spindrift_config::{load, validate};
+use spindrift_engine::seeds::point_seed;
+use spindrift_io::{read_summary, RunReader};
+use spindrift_observe::{binder_crossing, BinderCurve, ScanPoint};
+use spindrift_plot::{panels_png, Curve, Panel};
+use std::path::{Path, PathBuf};
+
+/// One swept key and its values, as TOML value texts.
+#[derive(Debug, Clone, PartialEq)]
+struct Vary {
+    key: String,
+    values: Vec<String>,
+}
+
+/// Splits `a,b,[1,2],c` at the commas outside brackets and quotes.
+fn split_top(s: &str) -> Vec<String> {
+    let mut out = Vec::new();
+    let (mut depth, mut quoted, mut cur) = (0i32, false, String::new());
+    for ch in s.chars() {
+        match ch {
+            '"' => quoted = !quoted,
+            '[' | '{' if !quoted => depth += 1,
+            ']' | '}' if !quoted => depth -= 1,
+            ',' if depth == 0 && !quoted => {
+                out.push(std::mem::take(&mut cur).trim().to_string());
+                continue;
+            }
+            _ => {}
+        }
+        cur.push(ch);
+    }
+    out.push(cur.trim().to_string());
+    out
+}
+
+fn parse_vary(spec: &str) -> Result<Vary, Failure> {
+    let (key, values) =
+        spec.split_once('=').ok_or_else(|| bad_input(anyhow!("--vary {spec}: expected KEY=V1,V2,...")))?;
+    let key = key.trim().to_string();
+    if key.is_empty() {
+        return Err(bad_input(anyhow!("--vary {spec}: the key is empty")));
+    }
+    let mut out = Vec::new();
+    for v in split_top(values) {
+        if v.is_empty() {
+            return Err(bad_input(anyhow!("--vary {key}: an empty value in `{values}`")));
+        }
+        let parts: Vec<&str> = v.split(':').collect();
+        if parts.len() == 3 && !v.contains('[') && !v.contains('"') {
+            let num = |p: &str| {
+                p.trim().parse::<f64>().map_err(|_| {
+                    bad_input(anyhow!("--vary {key}: `{v}` is not a range from:to:step of numbers"))
+                })
+            };
+            let (a, b, st) = (num(parts[0])?, num(parts[1])?, num(parts[2])?);
+            if !(st > 0.0 && st.is_finite()) {
+                return Err(bad_input(anyhow!("--vary {key}: the step of `{v}` must be positive")));
+            }
+            let n = ((b - a).abs() / st + 1e-9).floor() as usize + 1;
+            if n > 100_000 {
+                return Err(bad_input(anyhow!("--vary {key}: `{v}` gives {n} values")));
+            }
+            let sign = if b >= a { 1.0 } else { -1.0 };
+            let integral =
+                [parts[0], parts[1], parts[2]].iter().all(|p| !p.contains('.') && !p.contains('e'));
+            for i in 0..n {
+                let x = a + sign * st * i as f64;
+                out.push(if integral { format!("{}", x.round() as i64) } else { format!("{x}") });
+            }
+        } else {
+            out.push(v);
+        }
+    }
+    Ok(Vary { key, values: out })
+}
+
+/// Every combination, first `--vary` slowest.
+fn product(varies: &[Vary]) -> Vec<Vec<String>> {
+    let mut points = vec![Vec::new()];
+    for v in varies {
+        points = points
+            .into_iter()
+            .flat_map(|p| {
+                v.values.iter().map(move |x| {
+                    let mut q = p.clone();
+                    q.push(x.clone());
+                    q
+                })
+            })
+            .collect();
+    }
+    points
+}
+
+fn parse_shard(s: &str) -> Result<(usize, usize), Failure> {
+    let bad = || bad_input(anyhow!("--shard {s}: expected I/N with 0 <= I < N"));
+    let (i, n) = s.split_once('/').ok_or_else(bad)?;
+    let (i, n): (usize, usize) = (i.trim().parse().map_err(|_| bad())?, n.trim().parse().map_err(|_| bad())?);
+    if n == 0 || i >= n {
+        return Err(bad());
+    }
+    Ok((i, n))
+}
+
+fn write_atomic(path: &Path, text: &str) -> Result<(), Failure> {
+    let tmp = path.with_extension(format!("tmp.{}", std::process::id()));
+    std::fs::write(&tmp, text).map_err(|e| output(anyhow!("cannot write {}: {e}", tmp.display())))?;
+    std::fs::rename(&tmp, path).map_err(|e| output(anyhow!("cannot write {}: {e}", path.display())))
+}
+
+fn point_dir(dir: &Path, k: usize) -> PathBuf {
+    dir.join(format!("point_{k:04}"))
+}
+
+pub fn sweep(args: &SweepArgs) -> Outcome {
+    let varies = args.vary.iter().map(|s| parse_vary(s)).collect::<Result<Vec<_>, _>>()?;
+    for (k, v) in varies.iter().enumerate() {
+        if varies[..k].iter().any(|w| w.key == v.key) {
+            return Err(bad_input(anyhow!("--vary {}: the key is swept twice", v.key)));
+        }
+    }
+    let shard = args.shard.as_deref().map(parse_shard).transpose()?;
+    let dir = args.out.clone().unwrap_or_else(|| default_out(&args.config, "-sweep"));
+    let base = load(&args.config, &args.set).map_err(bad_input)?;
+    let base_seed = base.raw.seed.unwrap_or(0);
+    let points = product(&varies);
+    // Every point is validated before any runs, so a bad value stops the sweep at once.
+    let mut sets_of = Vec::new();
+    for (k, values) in points.iter().enumerate() {
+        let mut sets = args.set.clone();
+        for (v, x) in varies.iter().zip(values) {
+            sets.push(format!("{}={x}", v.key));
+        }
+        sets.push(format!("seed={}", point_seed(base_seed, k)));
+        let loaded = load(&args.config, &sets)
+            .map_err(|e| bad_input(anyhow!("point {k} ({}): {e}", describe(&varies, values))))?;
+        validate(&loaded, available_memory())
+            .map_err(|e| bad_input(anyhow!("point {k} ({}): {e}", describe(&varies, values))))?;
+        sets_of.push(sets);
+    }
+    std::fs::create_dir_all(&dir).map_err(|e| output(anyhow!("cannot create {}: {e}", dir.display())))?;
+    let manifest = json!({
+        "config": args.config.display().to_string(),
+        "base_seed": base_seed,
+        "set": args.set,
+        "vary": varies.iter().map(|v| json!({"key": v.key, "values": v.values})).collect::<Vec<_>>(),
+        "points": points.iter().enumerate().map(|(k, values)| json!({
+            "index": k,
+            "dir": format!("point_{k:04}"),
+            "values": varies.iter().zip(values).map(|(v, x)| (v.key.clone(), Value::String(x.clone()))).collect::<serde_json::Map<_, _>>(),
+        })).collect::<Vec<_>>(),
+    });
+    write_atomic(&dir.join("sweep.json"), &serde_json::to_string_pretty(&manifest).map_err(output)?)?;
+    set_threads(args.threads)?;
+    let mut failed = 0;
+    for (k, sets) in sets_of.into_iter().enumerate() {
+        if let Some((i, n)) = shard {
+            if k % n != i {
+                continue;
+            }
+        }
+        let pdir = point_dir(&dir, k);
+        let status_path = pdir.join("status.json");
+        let status =
+            std::fs::read_to_string(&status_path).ok().and_then(|t| serde_json::from_str::<Value>(&t).ok());
+        if status.as_ref().and_then(|s| s["status"].as_str()) == Some("done") {
+            eprintln!("point {k}: done already, skipped");
+            continue;
+        }
+        let resume = pdir.join("checkpoint.h5").exists();
+        if !resume && pdir.join("run.h5").exists() {
+            // Killed without a checkpoint: start the point afresh.
+            std::fs::remove_file(pdir.join("run.h5"))
+                .map_err(|e| output(anyhow!("cannot clear {}: {e}", pdir.display())))?;
+        }
+        std::fs::create_dir_all(&pdir)
+            .map_err(|e| output(anyhow!("cannot create {}: {e}", pdir.display())))?;
+        eprintln!("point {k} ({}){}", describe(&varies, &points[k]), if resume { ": resuming" } else { "" });
+        let run_args = RunArgs {
+            config: args.config.clone(),
+            out: if resume { None } else { Some(pdir.clone()) },
+            set: sets,
+            threads: None,
+            resume: resume.then(|| pdir.clone()),
+            max_wall: None,
+            quiet: true,
+        };
+        let (code, message) = match crate::run::run(&run_args) {
+            Ok(code) => (code, None),
+            Err(Failure { code, error }) => (code, Some(format!("{error:#}"))),
+        };
+        let state = match code {
+            exit::OK => "done",
+            exit::WALL_LIMIT | exit::SIGINT | exit::SIGTERM => "stopped",
+            _ => "failed",
+        };
+        write_atomic(
+            &status_path,
+            &serde_json::to_string_pretty(&json!({"status": state, "exit_code": code, "error": message}))
+                .map_err(output)?,
+        )?;
+        match state {
+            "stopped" => return Ok(code),
+            "failed" => {
+                eprintln!("point {k} failed (exit {code}): {}", message.unwrap_or_default());
+                failed += 1;
+            }
+            _ => {}
+        }
+    }
+    if failed > 0 {
+        return Err(Failure {
+            code: exit::NUMERICAL,
+            error: anyhow!("{failed} point(s) failed; see their status.json"),
+        });
+    }
+    eprintln!("sweep folder {}; collect the results with: spindrift merge {}", dir.display(), dir.display());
+    Ok(OK)
+}
+
+fn describe(varies: &[Vary], values: &[String]) -> String {
+    varies.iter().zip(values).map(|(v, x)| format!("{}={x}", v.key)).collect::<Vec<_>>().join(", ")
+}
+
+/// The columns of a merged table.
+const SCALARS: [&str; 12] = [
+    "m_x",
+    "m_y",
+    "m_z",
+    "m_abs",
+    "energy",
+    "charge",
+    "curie_temperature",
+    "curie_temperature_error",
+    "coercive_descending",
+    "coercive_ascending",
+    "remanence",
+    "wall_seconds",
+];
+
+fn scalars_of(summary: &Value) -> Vec<f64> {
+    let mut out = vec![f64::NAN; SCALARS.len()];
+    let stages = summary["stages"].as_array().cloned().unwrap_or_default();
+    if let Some(last) = stages.last() {
+        let m: Vec<f64> = last["final"]["magnetization"]
+            .as_array()
+            .into_iter()
+            .flatten()
+            .map(|x| x.as_f64().unwrap_or(f64::NAN))
+            .collect();
+        if m.len() == 3 {
+            out[0..3].copy_from_slice(&m);
+            out[3] = (m[0] * m[0] + m[1] * m[1] + m[2] * m[2]).sqrt();
+        }
+        out[4] = last["final"]["energy"].as_f64().unwrap_or(f64::NAN);
+        out[5] = last["final"]["charge"].as_f64().unwrap_or(f64::NAN);
+    }
+    for s in &stages {
+        if let Some(c) = s.get("curie_temperature") {
+            out[6] = c["value"].as_f64().unwrap_or(f64::NAN);
+            out[7] = c["error"].as_f64().unwrap_or(f64::NAN);
+        }
+        if let Some(c) = s.get("coercive_field") {
+            out[8] = c["descending"].as_f64().unwrap_or(f64::NAN);
+            out[9] = c["ascending"].as_f64().unwrap_or(f64::NAN);
+        }
+        if let Some(r) = s.get("remanence") {
+            out[10] = r.as_f64().unwrap_or(f64::NAN);
+        }
+    }
+    out[11] = summary["wall_seconds"].as_f64().unwrap_or(f64::NAN);
+    out
+}
+
+pub fn merge(args: &MergeArgs) -> Outcome {
+    for dir in &args.dirs {
+        merge_one(dir)?;
+    }
+    Ok(OK)
+}
+
+fn merge_one(dir: &Path) -> Outcome {
+    let text = std::fs::read_to_string(dir.join("sweep.json"))
+        .map_err(|e| bad_input(anyhow!("{}: not a sweep folder (no sweep.json: {e})", dir.display())))?;
+    let manifest: Value =
+        serde_json::from_str(&text).map_err(|e| bad_input(anyhow!("{}/sweep.json: {e}", dir.display())))?;
+    let keys: Vec<String> = manifest["vary"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .filter_map(|v| v["key"].as_str().map(String::from))
+        .collect();
+    let mut csv = String::new();
+    csv.push_str("index,status");
+    for k in &keys {
+        csv.push_str(&format!(",{k}"));
+    }
+    for s in SCALARS {
+        csv.push_str(&format!(",{s}"));
+    }
+    csv.push('\n');
+    let mut rows = Vec::new();
+    let mut curves = Vec::new();
+    for p in manifest["points"].as_array().into_iter().flatten() {
+        let k = p["index"].as_u64().unwrap_or(0) as usize;
+        let pdir = point_dir(dir, k);
+        let status = std::fs::read_to_string(pdir.join("status.json"))
+            .ok()
+            .and_then(|t| serde_json::from_str::<Value>(&t).ok())
+            .and_then(|v| v["status"].as_str().map(String::from))
+            .unwrap_or_else(|| "pending".into());
+        let summary = if status == "done" { read_summary(&pdir).ok() } else { None };
+        let values: Vec<String> =
+            keys.iter().map(|key| p["values"][key].as_str().unwrap_or("").to_string()).collect();
+        let scalars = summary.as_ref().map_or(vec![f64::NAN; SCALARS.len()], scalars_of);
+        csv.push_str(&format!("{k},{status}"));
+        for v in &values {
+            csv.push_str(&format!(",\"{}\"", v.replace('"', "'")));
+        }
+        for x in &scalars {
+            csv.push_str(&if x.is_finite() { format!(",{x}") } else { ",".to_string() });
+        }
+        csv.push('\n');
+        if status == "done" {
+            if let Some(c) = binder_curve(&pdir) {
+                curves.push(c);
+            }
+        }
+        rows.push((k, status, values, scalars));
+    }
+    write_atomic(&dir.join("merged.csv"), &csv)?;
+    let mut merged = json!({
+        "keys": keys,
+        "columns": SCALARS,
+        "rows": rows.iter().map(|(k, st, v, s)| json!({"index": k, "status": st, "values": v,
+            "scalars": s.iter().map(|x| if x.is_finite() { json!(x) } else { Value::Null }).collect::<Vec<_>>()})).collect::<Vec<_>>(),
+    });
+    // Several system sizes with temperature scans: the Binder cumulants' crossing.
+    if curves.len() >= 2 {
+        match binder_crossing(&curves, 1) {
+            Ok(b) => {
+                say!(
+                    "Binder crossing of {} sizes: Tc = {:.2} +- {:.2} K (a model estimate)",
+                    curves.len(),
+                    b.estimate.value,
+                    b.estimate.error
+                );
+                merged["curie_temperature"] = json!({"value": b.estimate.value, "error": b.estimate.error, "method": b.estimate.method});
+            }
+            Err(e) => eprintln!("no Binder crossing: {e}"),
+        }
+    }
+    write_atomic(&dir.join("merged.json"), &serde_json::to_string_pretty(&merged).map_err(output)?)?;
+    spindrift_io::write_table(
+        &dir.join("merged.h5"),
+        &keys,
+        &rows.iter().map(|r| r.2.clone()).collect::<Vec<_>>(),
+        &SCALARS,
+        &rows.iter().map(|r| r.3.clone()).collect::<Vec<_>>(),
+    )
+    .map_err(output)?;
+    say!("{}", dir.join("merged.csv").display());
+    say!("{}", dir.join("merged.h5").display());
+    Ok(OK)
+}
+
+/// The Binder cumulant of the last temperature scan of a point, sized by its spin count.
+fn binder_curve(pdir: &Path) -> Option<BinderCurve> {
+    let r = RunReader::open(pdir).ok()?;
+    let stage = r.stages().ok()?.into_iter().rfind(|s| s.kind == "temperature-scan")?;
+    let g = format!("/stage_{:03}/points", stage.index);
+    let t = r.read_1d(&format!("{g}/temperature")).ok()?;
+    let u = r.read_1d(&format!("{g}/binder")).ok()?;
+    let e = r.read_1d(&format!("{g}/binder_err")).ok()?;
+    let n = r.lattice().ok()?.moment.iter().filter(|&&m| m > 0.0).count();
+    Some(BinderCurve {
+        size: n as f64,
+        points: t
+            .iter()
+            .zip(u.iter().zip(&e))
+            .map(|(&t, (&v, &e))| ScanPoint { temperature: t, value: v, error: e })
+            .collect(),
+    })
+}
+
+/// `spindrift plot` of a merged sweep: the scalars against the first swept key.
+pub fn plot_merged(dir: &Path, out: &Path) -> Outcome {
+    let text = std::fs::read_to_string(dir.join("merged.json"))
+        .map_err(|e| bad_input(anyhow!("{}: run `spindrift merge` first ({e})", dir.display())))?;
+    let merged: Value = serde_json::from_str(&text).map_err(bad_input)?;
+    let key = merged["keys"][0].as_str().unwrap_or("point").to_string();
+    let mut x = Vec::new();
+    let mut cols: Vec<Vec<f64>> = vec![Vec::new(); SCALARS.len()];
+    for (k, row) in merged["rows"].as_array().into_iter().flatten().enumerate() {
+        let v = row["values"][0].as_str().unwrap_or("");
+        // Numbers plot as numbers; arrays (e.g. cells) by their last element (the thickness).
+        let num = v
+            .trim_matches(|c| c == '[' || c == ']')
+            .rsplit(',')
+            .next()
+            .and_then(|s| s.trim().trim_matches('"').split_whitespace().next()?.parse::<f64>().ok());
+        x.push(num.unwrap_or(k as f64));
+        for (c, col) in cols.iter_mut().enumerate() {
+            col.push(row["scalars"][c].as_f64().unwrap_or(f64::NAN));
+        }
+    }
+    std::fs::create_dir_all(out).map_err(|e| output(anyhow!("cannot create {}: {e}", out.display())))?;
+    let idx = |name: &str| SCALARS.iter().position(|s| *s == name).expect("column");
+    let mut panels = vec![
+        Panel {
+            title: "final |m|".into(),
+            x_label: key.clone(),
+            y_label: "|m|".into(),
+            curves: vec![Curve {
+                label: "|m|".into(),
+                x: x.clone(),
+                y: cols[idx("m_abs")].clone(),
+                err: None,
+            }],
+        },
+        Panel {
+            title: "final energy".into(),
+            x_label: key.clone(),
+            y_label: "meV per spin".into(),
+            curves: vec![Curve {
+                label: "E".into(),
+                x: x.clone(),
+                y: cols[idx("energy")].clone(),
+                err: None,
+            }],
+        },
+        Panel {
+            title: "final topological charge".into(),
+            x_label: key.clone(),
+            y_label: "Q".into(),
+            curves: vec![Curve {
+                label: "Q".into(),
+                x: x.clone(),
+                y: cols[idx("charge")].clone(),
+                err: None,
+            }],
+        },
+    ];
+    if cols[idx("curie_temperature")].iter().any(|v| v.is_finite()) {
+        panels.push(Panel {
+            title: "Curie temperature (susceptibility peak; model estimate)".into(),
+            x_label: key.clone(),
+            y_label: "Tc (K)".into(),
+            curves: vec![Curve {
+                label: "Monte Carlo".into(),
+                x: x.clone(),
+                y: cols[idx("curie_temperature")].clone(),
+                err: Some(cols[idx("curie_temperature_error")].clone()),
+            }],
+        });
+    }
+    let path = out.join("sweep.png");
+    panels_png(&path, &format!("sweep over {key}"), &panels, 2).map_err(output)?;
+    say!("{}", path.display());
+    Ok(OK)
+}

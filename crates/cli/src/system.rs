@@ -1,0 +1,64 @@
+//! Reading a config into a validated system, with what only the command line knows:
+//! the machine's memory and files named by the config.
+
+use crate::exit::{bad_input, Failure};
+use anyhow::anyhow;
+use spindrift_config::{load, validate, Loaded, Validated};
+use spindrift_engine::InitialState;
+use std::path::Path;
+
+/// Memory the system can still give, bytes (`MemAvailable` of `/proc/meminfo`).
+pub fn available_memory() -> Option<u64> {
+    let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+    let line = text.lines().find(|l| l.starts_with("MemAvailable:"))?;
+    let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+    Some(kib * 1024)
+}
+
+/// Loads, validates and resolves a config; every failure is bad input (exit 2).
+pub fn load_system(config: &Path, sets: &[String]) -> Result<(Loaded, Validated), Failure> {
+    let loaded = load(config, sets).map_err(bad_input)?;
+    let mut v = validate(&loaded, available_memory()).map_err(bad_input)?;
+    if let InitialState::FromRun(dir) = &v.protocol.initial {
+        let spins = read_final_spins(dir)
+            .map_err(|e| bad_input(loaded.error_at("initial.path", format!("{e:#}"))))?;
+        if spins.len() != v.hamiltonian.len() {
+            return Err(bad_input(loaded.error_at(
+                "initial.path",
+                format!(
+                    "run {} has {} sites but this system has {}",
+                    dir.display(),
+                    spins.len(),
+                    v.hamiltonian.len()
+                ),
+            )));
+        }
+        v.protocol.initial = InitialState::Spins(spins);
+    }
+    Ok((loaded, v))
+}
+
+fn read_final_spins(dir: &Path) -> anyhow::Result<Vec<[f64; 3]>> {
+    let reader = spindrift_io::RunReader::open(dir)?;
+    if let Some(s) = reader.final_spins()? {
+        return Ok(s);
+    }
+    match reader.last_snapshot()? {
+        Some(s) => Ok(s.spins),
+        None => Err(anyhow!("{} holds neither final spins nor a snapshot", dir.display())),
+    }
+}
+
+/// Sets the number of worker threads for the whole process.
+pub fn set_threads(threads: Option<usize>) -> Result<usize, Failure> {
+    if let Some(n) = threads {
+        if n == 0 {
+            return Err(bad_input(anyhow!("--threads must be at least 1")));
+        }
+        rayon::ThreadPoolBuilder::new()
+            .num_threads(n)
+            .build_global()
+            .map_err(|e| bad_input(anyhow!("--threads: {e}")))?;
+    }
+    Ok(rayon::current_num_threads())
+}

@@ -1,0 +1,391 @@
+//! Validation, part one: the crystal, species and couplings become a [`Hamiltonian`].
+
+use crate::bond_table::read_table;
+use crate::error::ConfigError;
+use crate::load::Loaded;
+use crate::raw::{DmiKind as RawDmiKind, FerroSign, PairListing};
+use crate::units::{lookup_unit, Dimension};
+use spindrift_hamiltonian::{add_shell, DmiKind, Hamiltonian, ShellCoupling, ShellRef, Species};
+use spindrift_lattice::{preset, BasisSite, BondList, Coupling, Crystal, LatticeError, Supercell, Vec3};
+
+/// Bytes of memory a spin costs in a run: the spins, the Heun predictor and its first
+/// derivative (3 x 24 bytes), plus observers' and snapshot buffers amortised. Kept in
+/// step with the dynamics crate; `check` prints the estimate and the benchmark script
+/// compares it with the measured peak.
+pub const BYTES_PER_SPIN: u64 = 88;
+
+/// One coupling entry and what it found, for `check`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CouplingReport {
+    /// Config entry (`exchange.0`, `dmi.1`, `bond.2`, `bond_table.0`).
+    pub key: String,
+    /// Bond length, Å (0 for tables with several).
+    pub distance: f64,
+    /// Pairs added.
+    pub pairs: usize,
+}
+
+/// The system part of a validated config.
+#[derive(Debug, Clone)]
+pub struct SystemBuild {
+    /// The Hamiltonian, with the `[field]` applied.
+    pub hamiltonian: Hamiltonian,
+    /// What each coupling entry found.
+    pub couplings: Vec<CouplingReport>,
+    /// Species names in order.
+    pub species_names: Vec<String>,
+}
+
+fn lattice_error(loaded: &Loaded, e: LatticeError) -> ConfigError {
+    let key = match e {
+        LatticeError::UnknownPreset { .. } => "lattice.preset",
+        LatticeError::BadConstant { .. } => "lattice.a",
+        LatticeError::DegenerateVectors { .. } => "lattice.vectors",
+        LatticeError::OverlappingSites { .. } => "site",
+        LatticeError::EmptySupercell { .. } => "lattice.cells",
+        LatticeError::BadOccupancy { .. } => "site",
+        _ => "lattice",
+    };
+    loaded.error_at(key, e.to_string())
+}
+
+fn unit_vector(loaded: &Loaded, key: &str, v: [f64; 3]) -> Result<Vec3, ConfigError> {
+    let l = (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt();
+    if !(l.is_finite() && l > 0.0) {
+        return Err(loaded.error_at(key, format!("must be a non-zero direction, got {v:?}")));
+    }
+    Ok([v[0] / l, v[1] / l, v[2] / l])
+}
+
+/// Builds the crystal and supercell size (without allocating per-spin data).
+pub fn crystal(loaded: &Loaded) -> Result<(Crystal, [usize; 3], [bool; 3]), ConfigError> {
+    let raw = &loaded.raw;
+    let l = &raw.lattice;
+    if raw.species.is_empty() {
+        return Err(loaded.error_at("species", "at least one [[species]] is needed"));
+    }
+    let species_index = |name: &str, key: &str| -> Result<usize, ConfigError> {
+        raw.species.iter().position(|s| s.name == name).ok_or_else(|| {
+            let names: Vec<&str> = raw.species.iter().map(|s| s.name.as_str()).collect();
+            loaded.error_at(key, format!("no species named `{name}` (defined: {})", names.join(", ")))
+        })
+    };
+    let mut crystal = match (&l.preset, &l.vectors) {
+        (Some(_), Some(_)) => {
+            return Err(loaded.error_at("lattice.vectors", "give either `preset` or `vectors`, not both"))
+        }
+        (None, None) => return Err(loaded.error_at("lattice", "missing `preset` (or `vectors`)")),
+        (Some(p), None) => {
+            let Some(a) = &l.a else {
+                return Err(loaded
+                    .error_at("lattice", format!("preset `{}` needs the lattice constant `a`", p.as_str())));
+            };
+            let a = loaded.quantity("lattice.a", a, Dimension::Length)?;
+            let c = l.c.as_ref().map(|c| loaded.quantity("lattice.c", c, Dimension::Length)).transpose()?;
+            preset(p.as_str(), a, c).map_err(|e| lattice_error(loaded, e))?
+        }
+        (None, Some(v)) => {
+            let mut vectors = [[0.0; 3]; 3];
+            for (r, row) in v.iter().enumerate() {
+                vectors[r] = loaded.vector(&format!("lattice.vectors.{r}"), row, Dimension::Length)?;
+            }
+            if raw.site.is_empty() {
+                return Err(
+                    loaded.error_at("site", "a lattice given by `vectors` needs its [[site]] entries")
+                );
+            }
+            let s = BasisSite { position: [0.0; 3], species: 0, occupancy: 1.0 };
+            Crystal::new(vectors, vec![s]).map_err(|e| lattice_error(loaded, e))?
+        }
+    };
+    if raw.site.is_empty() {
+        if raw.species.len() > 1 {
+            return Err(loaded.error_at(
+                "site",
+                "with several species, say which sits where with [[site]] entries (a preset's sites take the only species otherwise)",
+            ));
+        }
+    } else {
+        let mut basis = Vec::new();
+        for (k, s) in raw.site.iter().enumerate() {
+            let species = species_index(&s.species, &format!("site.{k}.species"))?;
+            let occupancy = s.occupancy.unwrap_or(1.0);
+            if !(occupancy > 0.0 && occupancy <= 1.0) {
+                return Err(loaded.error_at(
+                    &format!("site.{k}.occupancy"),
+                    format!("must be in (0, 1], got {occupancy}"),
+                ));
+            }
+            basis.push(BasisSite { position: s.position, species, occupancy });
+        }
+        crystal = Crystal::new(crystal.vectors, basis).map_err(|e| lattice_error(loaded, e))?;
+    }
+    let Some(cells) = l.cells else {
+        return Err(loaded.error_at("lattice", "missing `cells = [n1, n2, n3]`"));
+    };
+    if cells.contains(&0) {
+        return Err(
+            loaded.error_at("lattice.cells", format!("every entry must be at least 1, got {cells:?}"))
+        );
+    }
+    Ok((crystal, cells, l.periodic.unwrap_or([true; 3])))
+}
+
+/// Builds the whole system.
+pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, ConfigError> {
+    let raw = &loaded.raw;
+    let (crystal, cells, periodic) = crystal(loaded)?;
+    let sites = cells.iter().try_fold(crystal.basis.len() as u64, |acc, &n| acc.checked_mul(n as u64));
+    let estimate = sites.and_then(|s| s.checked_mul(BYTES_PER_SPIN));
+    if let (Some(limit), est) = (memory_limit, estimate) {
+        if est.is_none_or(|e| e > limit) {
+            return Err(loaded.error_at(
+                "lattice.cells",
+                format!(
+                    "{cells:?} cells of {} sites need about {} of memory, more than the {} available",
+                    crystal.basis.len(),
+                    est.map_or("an unrepresentable amount".to_string(), human_bytes),
+                    human_bytes(limit)
+                ),
+            ));
+        }
+    }
+    let seed = raw.seed.unwrap_or(0);
+    let cell = Supercell::new(crystal, cells, periodic, seed).map_err(|e| lattice_error(loaded, e))?;
+    let nb = cell.basis_len();
+
+    let mut species = Vec::new();
+    for (k, s) in raw.species.iter().enumerate() {
+        let key = format!("species.{k}");
+        if raw.species[..k].iter().any(|o| o.name == s.name) {
+            return Err(
+                loaded.error_at(&format!("{key}.name"), format!("species `{}` is defined twice", s.name))
+            );
+        }
+        let Some(moment) = &s.moment else {
+            return Err(loaded.error_at(&key, format!("species `{}` needs its `moment` (μB)", s.name)));
+        };
+        let moment = loaded.quantity(&format!("{key}.moment"), moment, Dimension::Moment)?;
+        if !(moment.is_finite() && moment > 0.0) {
+            return Err(loaded.error_at(&format!("{key}.moment"), format!("must be positive, got {moment}")));
+        }
+        let damping = s.damping.unwrap_or(0.1);
+        if !(damping.is_finite() && damping >= 0.0) {
+            return Err(loaded.error_at(&format!("{key}.damping"), format!("must be >= 0, got {damping}")));
+        }
+        let anisotropy = s
+            .anisotropy
+            .as_ref()
+            .map(|q| loaded.quantity(&format!("{key}.anisotropy"), q, Dimension::Energy))
+            .transpose()?
+            .unwrap_or(0.0);
+        let axis = unit_vector(loaded, &format!("{key}.axis"), s.axis.unwrap_or([0.0, 0.0, 1.0]))?;
+        species.push(Species { name: s.name.clone(), moment, damping, anisotropy, axis });
+    }
+    let species_index = |name: &str, key: &str| -> Result<usize, ConfigError> {
+        species.iter().position(|s| s.name == name).ok_or_else(|| {
+            let names: Vec<&str> = species.iter().map(|s| s.name.as_str()).collect();
+            loaded.error_at(key, format!("no species named `{name}` (defined: {})", names.join(", ")))
+        })
+    };
+
+    let mut bonds = BondList::new(nb);
+    let mut couplings = Vec::new();
+    let shell_ref = |key: &str,
+                     shell: Option<usize>,
+                     distance: Option<&crate::Quantity>|
+     -> Result<ShellRef, ConfigError> {
+        match (shell, distance) {
+            (Some(_), Some(_)) => Err(loaded.error_at(key, "give either `shell` or `distance`, not both")),
+            (None, None) => Err(loaded.error_at(key, "missing `shell` (or `distance`)")),
+            (Some(0), None) => {
+                Err(loaded.error_at(&format!("{key}.shell"), "shells count from 1 (nearest neighbours)"))
+            }
+            (Some(n), None) => Ok(ShellRef::Index(n)),
+            (None, Some(d)) => {
+                Ok(ShellRef::Distance(loaded.quantity(&format!("{key}.distance"), d, Dimension::Length)?))
+            }
+        }
+    };
+    let pair_of = |key: &str, pair: &Option<[String; 2]>| -> Result<Option<(usize, usize)>, ConfigError> {
+        pair.as_ref()
+            .map(|[a, b]| {
+                Ok((species_index(a, &format!("{key}.pair"))?, species_index(b, &format!("{key}.pair"))?))
+            })
+            .transpose()
+    };
+    for (k, e) in raw.exchange.iter().enumerate() {
+        let key = format!("exchange.{k}");
+        let spec = ShellCoupling {
+            shell: shell_ref(&key, e.shell, e.distance.as_ref())?,
+            j: loaded.quantity(&format!("{key}.j"), &e.j, Dimension::Energy)?,
+            dmi: None,
+            pair: pair_of(&key, &e.pair)?,
+        };
+        let found =
+            add_shell(&cell, &mut bonds, &spec).map_err(|err| loaded.error_at(&key, err.to_string()))?;
+        couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs });
+    }
+    let layer_normal = cell.crystal().layer_normal();
+    for (k, d) in raw.dmi.iter().enumerate() {
+        let key = format!("dmi.{k}");
+        let kind = match d.kind.unwrap_or(RawDmiKind::Interfacial) {
+            RawDmiKind::Interfacial => DmiKind::Interfacial {
+                normal: unit_vector(loaded, &format!("{key}.normal"), d.normal.unwrap_or(layer_normal))?,
+            },
+            RawDmiKind::Bulk => {
+                if d.normal.is_some() {
+                    return Err(
+                        loaded.error_at(&format!("{key}.normal"), "`normal` applies to interfacial DMI only")
+                    );
+                }
+                DmiKind::Bulk
+            }
+        };
+        let spec = ShellCoupling {
+            shell: shell_ref(&key, d.shell, d.distance.as_ref())?,
+            j: 0.0,
+            dmi: Some((loaded.quantity(&format!("{key}.d"), &d.d, Dimension::Energy)?, kind)),
+            pair: pair_of(&key, &d.pair)?,
+        };
+        let found =
+            add_shell(&cell, &mut bonds, &spec).map_err(|err| loaded.error_at(&key, err.to_string()))?;
+        couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs });
+    }
+    let bond_vector = |from: usize, to: usize, o: [i32; 3]| -> Vec3 {
+        let c = cell.crystal();
+        let (pf, pt) = (c.basis[from].position, c.basis[to].position);
+        c.to_cartesian([
+            o[0] as f64 + pt[0] - pf[0],
+            o[1] as f64 + pt[1] - pf[1],
+            o[2] as f64 + pt[2] - pf[2],
+        ])
+    };
+    let check_offset = |key: &str, o: [i32; 3]| -> Result<(), ConfigError> {
+        if cell.offset_allowed(o) {
+            Ok(())
+        } else {
+            Err(loaded.error_at(
+                &format!("{key}.cell"),
+                format!(
+                    "cell offset {o:?} does not fit in the supercell {cells:?} with periodic = {periodic:?}"
+                ),
+            ))
+        }
+    };
+    for (k, b) in raw.bond.iter().enumerate() {
+        let key = format!("bond.{k}");
+        for (v, what) in [(b.from, "from"), (b.to, "to")] {
+            if v >= nb {
+                return Err(loaded.error_at(
+                    &format!("{key}.{what}"),
+                    format!("{v} is not a basis site (sites 0..{})", nb - 1),
+                ));
+            }
+        }
+        let o = b.cell.unwrap_or([0, 0, 0]);
+        if b.from == b.to && o == [0, 0, 0] {
+            return Err(loaded.error_at(&key, "a site cannot be bonded to itself"));
+        }
+        check_offset(&key, o)?;
+        let mut c = Coupling::default();
+        if let Some(t) = &b.tensor {
+            if b.j.is_some() || b.dmi.is_some() {
+                return Err(loaded.error_at(
+                    &format!("{key}.tensor"),
+                    "`tensor` replaces `j` and `dmi`; give one or the others",
+                ));
+            }
+            let mut m = [[0.0; 3]; 3];
+            for (r, row) in t.iter().enumerate() {
+                m[r] = loaded.vector(&format!("{key}.tensor.{r}"), row, Dimension::Energy)?;
+            }
+            // Split into isotropic J, antisymmetric part as a DMI vector, and the
+            // remaining symmetric traceless tensor: -S_i.A.S_j = -D.(S_i x S_j) with
+            // D = (A_yz, A_zx, A_xy) for A = (M - M^T)/2.
+            let j = (m[0][0] + m[1][1] + m[2][2]) / 3.0;
+            let a = |p: usize, q: usize| 0.5 * (m[p][q] - m[q][p]);
+            c.j = j;
+            c.d = [a(1, 2), a(2, 0), a(0, 1)];
+            let mut s = [[0.0; 3]; 3];
+            for p in 0..3 {
+                for q in 0..3 {
+                    s[p][q] = 0.5 * (m[p][q] + m[q][p]) - if p == q { j } else { 0.0 };
+                }
+            }
+            if s.iter().flatten().any(|x| x.abs() > 0.0) {
+                c.tensor = Some(s);
+            }
+        } else {
+            c.j =
+                b.j.as_ref()
+                    .map(|q| loaded.quantity(&format!("{key}.j"), q, Dimension::Energy))
+                    .transpose()?
+                    .unwrap_or(0.0);
+            c.d = b
+                .dmi
+                .as_ref()
+                .map(|v| loaded.vector(&format!("{key}.dmi"), v, Dimension::Energy))
+                .transpose()?
+                .unwrap_or([0.0; 3]);
+        }
+        let v = bond_vector(b.from, b.to, o);
+        bonds.add_pair(b.from, b.to, o, v, c).map_err(|e| loaded.error_at(&key, e.to_string()))?;
+        couplings.push(CouplingReport { key, distance: spindrift_lattice::norm(v), pairs: 1 });
+    }
+    for (k, t) in raw.bond_table.iter().enumerate() {
+        let key = format!("bond_table.{k}");
+        let unit = t.unit.as_deref().unwrap_or("meV");
+        let scale = match lookup_unit(unit) {
+            Some((Dimension::Energy, f)) => f,
+            _ => {
+                return Err(loaded.error_at(&format!("{key}.unit"), format!("`{unit}` is not an energy unit")))
+            }
+        };
+        let path = loaded.resolve_path(&t.path);
+        let rows = read_table(
+            &path,
+            &key,
+            scale,
+            t.pairs.unwrap_or(PairListing::Unique),
+            t.ferromagnetic.unwrap_or(FerroSign::Positive),
+            nb,
+        )?;
+        for r in &rows {
+            if !cell.offset_allowed(r.cell) {
+                return Err(ConfigError::new(
+                    &path,
+                    &key,
+                    Some(r.line),
+                    format!("cell offset {:?} does not fit in the supercell {cells:?}", r.cell),
+                ));
+            }
+            let v = bond_vector(r.from, r.to, r.cell);
+            bonds
+                .add_pair(r.from, r.to, r.cell, v, Coupling { j: r.j, d: r.d, tensor: None })
+                .map_err(|e| loaded.error_at(&key, e.to_string()))?;
+        }
+        couplings.push(CouplingReport { key, distance: 0.0, pairs: rows.len() });
+    }
+    bonds.prune();
+    let field = match raw.field.as_ref().and_then(|f| f.b.as_ref()) {
+        Some(b) => loaded.vector("field.b", b, Dimension::Field)?,
+        None => [0.0; 3],
+    };
+    let species_names = species.iter().map(|s| s.name.clone()).collect();
+    let hamiltonian = Hamiltonian::new(cell, species, bonds, field)
+        .map_err(|e| loaded.error_at("species", e.to_string()))?;
+    Ok(SystemBuild { hamiltonian, couplings, species_names })
+}
+
+/// `1.5 GiB`-style rendering.
+pub fn human_bytes(b: u64) -> String {
+    let units = ["B", "KiB", "MiB", "GiB", "TiB", "PiB"];
+    let mut x = b as f64;
+    let mut k = 0;
+    while x >= 1024.0 && k + 1 < units.len() {
+        x /= 1024.0;
+        k += 1;
+    }
+    format!("{x:.1} {}", units[k])
+}

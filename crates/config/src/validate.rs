@@ -1,0 +1,61 @@
+//! The second stage of reading a config: everything resolved and checked, ready to run.
+
+use crate::error::ConfigError;
+use crate::load::Loaded;
+use crate::protocol::{self, SystemDefaults};
+use crate::system::{self, CouplingReport};
+use spindrift_engine::Protocol;
+use spindrift_hamiltonian::timestep::recommended_dt;
+use spindrift_hamiltonian::Hamiltonian;
+use std::time::Duration;
+
+/// A config turned into a system and a protocol.
+#[derive(Debug, Clone)]
+pub struct Validated {
+    /// Title (empty if none).
+    pub title: String,
+    /// Base seed.
+    pub seed: u64,
+    /// The spin system.
+    pub hamiltonian: Hamiltonian,
+    /// What to do with it.
+    pub protocol: Protocol,
+    /// Species names.
+    pub species_names: Vec<String>,
+    /// What each coupling entry found.
+    pub couplings: Vec<CouplingReport>,
+    /// Recommended time step, ps.
+    pub recommended_dt: f64,
+    /// Estimated peak memory of a run, bytes.
+    pub memory_estimate_bytes: u64,
+    /// Wall-clock checkpoint interval (`[run] checkpoint_every`).
+    pub checkpoint_every: Option<Duration>,
+    /// Whether snapshots are compressed (`[output] snapshot_compression`, default true).
+    pub snapshot_compression: bool,
+    /// Doubtful but allowed settings.
+    pub warnings: Vec<String>,
+}
+
+/// Validates a loaded config. `memory_limit` (bytes) refuses systems that would not fit.
+pub fn validate(loaded: &Loaded, memory_limit: Option<u64>) -> Result<Validated, ConfigError> {
+    let sys = system::build(loaded, memory_limit)?;
+    let h = sys.hamiltonian;
+    let dt = recommended_dt(&h);
+    let mut warnings = Vec::new();
+    let protocol = protocol::build(loaded, &SystemDefaults { dt, field: h.field() }, &mut warnings)?;
+    let bonds: u64 = (0..h.cell().basis_len()).map(|b| h.bonds().from_basis(b).len() as u64).sum();
+    let memory_estimate_bytes = h.len() as u64 * system::BYTES_PER_SPIN + bonds * 160 + 4096;
+    Ok(Validated {
+        title: loaded.raw.title.clone().unwrap_or_default(),
+        seed: loaded.raw.seed.unwrap_or(0),
+        hamiltonian: h,
+        protocol,
+        species_names: sys.species_names,
+        couplings: sys.couplings,
+        recommended_dt: dt,
+        memory_estimate_bytes,
+        checkpoint_every: loaded.raw.run.as_ref().and_then(|r| r.checkpoint_every.as_ref()).map(|d| d.0),
+        snapshot_compression: loaded.raw.output.as_ref().and_then(|o| o.snapshot_compression).unwrap_or(true),
+        warnings,
+    })
+}

@@ -1,0 +1,266 @@
+//! Stochastic Landau-Lifshitz-Gilbert dynamics with Heun's predictor-corrector.
+//!
+//! # Equation
+//!
+//! In Landau-Lifshitz form (INTERFACE.md, "Physics conventions"),
+//!
+//! `dS_i/dt = f(S_i, B_i) = - gamma/(1+alpha_i^2) [ S_i x B_i + alpha_i S_i x (S_i x B_i) ]`,
+//!
+//! with `gamma` in rad/(ps T), `B_i = -(1/(mu_i muB)) dH/dS_i + b_i` in T and `t` in ps.
+//! The thermal field `b_i` is white noise with
+//! `<b_ia(t) b_jb(t')> = 2 alpha_i kB T / (gamma mu_i muB) delta_ij delta_ab delta(t - t')`
+//! (W. F. Brown, Phys. Rev. 130, 1677 (1963)). Over one step `dt` its mean is a Gaussian of
+//! variance `2 alpha_i kB T / (gamma mu_i muB dt)` per component: `kB T` in meV over
+//! `mu_i muB` in meV/T is a field in T, and dividing by `gamma dt` (in 1/T) leaves T^2.
+//!
+//! # Scheme
+//!
+//! Heun's method in the Stratonovich sense: one noise draw `b_i` per spin and step, used in
+//! both stages (J. L. Garcia-Palacios and F. J. Lazaro, Phys. Rev. B 58, 14937 (1998)):
+//!
+//! * predictor `P_i = S_i + dt f(S_i, B_i(S) + b_i)`,
+//! * corrector `S_i' = S_i + dt/2 [f(S_i, B_i(S) + b_i) + f(P_i, B_i(P) + b_i)]
+//!   = (S_i + P_i + dt f(P_i, B_i(P) + b_i)) / 2`,
+//! * then `S_i'` is renormalised to unit length.
+//!
+//! The second form of the corrector needs no copy of `f(S)`: the predictor carries it.
+//! The step is two passes over fixed chunks of [`CHUNK`] sites, run in parallel with rayon;
+//! every site's result depends only on its inputs, never on how chunks are scheduled, and
+//! the noise of step `n` at site `i` is `NoiseStream::new(seed, 0).gaussian3(n, i)` scaled by
+//! the site's standard deviation, so the result is bitwise the same for any thread count,
+//! and a resumed run that passes the same step index draws the same noise.
+//!
+//! # Memory
+//!
+//! Three arrays of `N` 3-vectors (72 bytes per site): the predictor, the scaled noise, and
+//! the field at the predictor, which afterwards holds the pre-step spins (see
+//! [`Heun::step`] on errors). Nothing is allocated in [`Heun::step`].
+
+use crate::error::{check_len, first_bad, StepError};
+use rayon::prelude::*;
+use spindrift_hamiltonian::constants::{GAMMA_PER_PS, K_B};
+use spindrift_hamiltonian::{Hamiltonian, CHUNK};
+use spindrift_lattice::{cross, dot, Vec3};
+use spindrift_noise::{NoiseStream, STREAM_LLG_THERMAL};
+
+/// Parameters of one Heun step. Both may change from step to step (a temperature ramp
+/// passes a new temperature; a field ramp calls [`Hamiltonian::set_field`] between steps).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct HeunParams {
+    /// Time step, ps. Default `0.001` (1 fs); see
+    /// `spindrift_hamiltonian::timestep::recommended_dt` for a system's own choice.
+    pub dt: f64,
+    /// Temperature of the thermal field, K. Default `0` (deterministic dynamics).
+    pub temperature: f64,
+}
+
+impl Default for HeunParams {
+    fn default() -> Self {
+        Self { dt: 1e-3, temperature: 0.0 }
+    }
+}
+
+/// Constants of one basis site for the current step.
+#[derive(Debug, Clone, Copy, Default)]
+struct SiteConst {
+    /// `gamma / (1 + alpha^2)`, rad/(ps T).
+    gamma_ll: f64,
+    /// Gilbert damping.
+    alpha: f64,
+    /// Standard deviation of each thermal-field component over one step, T.
+    sigma: f64,
+}
+
+/// The right-hand side `f(S, B)` of the Landau-Lifshitz equation, 1/ps.
+#[inline(always)]
+fn llg_rhs(s: Vec3, b: Vec3, gamma_ll: f64, alpha: f64) -> Vec3 {
+    let t = cross(s, b);
+    let d = cross(s, t);
+    [-gamma_ll * (t[0] + alpha * d[0]), -gamma_ll * (t[1] + alpha * d[1]), -gamma_ll * (t[2] + alpha * d[2])]
+}
+
+/// The stochastic Heun integrator. It owns only scratch buffers; the caller owns the spins.
+#[derive(Debug, Clone)]
+pub struct Heun {
+    stream: NoiseStream,
+    damping: Vec<f64>,
+    consts: Vec<SiteConst>,
+    predictor: Vec<Vec3>,
+    noise: Vec<Vec3>,
+    /// The field at the predictor during the corrector; the pre-step spins after it.
+    scratch: Vec<Vec3>,
+}
+
+impl Heun {
+    /// An integrator for the supercell and species of `h`, drawing its thermal noise from
+    /// stream 0 of `seed`. Every later call must pass a Hamiltonian with the same
+    /// supercell and species (the applied field may change).
+    pub fn new(h: &Hamiltonian, seed: u64) -> Self {
+        let n = h.len();
+        let damping = h.basis_damping();
+        Self {
+            stream: NoiseStream::new(seed, STREAM_LLG_THERMAL),
+            consts: vec![SiteConst::default(); damping.len()],
+            damping,
+            predictor: vec![[0.0; 3]; n],
+            noise: vec![[0.0; 3]; n],
+            scratch: vec![[0.0; 3]; n],
+        }
+    }
+
+    /// Bytes of scratch memory per site (the three buffers).
+    pub fn bytes_per_site(&self) -> usize {
+        3 * std::mem::size_of::<Vec3>()
+    }
+
+    /// Advances `spins` by one step `params.dt` at `params.temperature`, under the
+    /// Hamiltonian's current applied field. `step_index` selects the noise (see the module
+    /// documentation): pass `0, 1, 2, ...` over a run, and the same index again when a
+    /// run resumes.
+    ///
+    /// On [`StepError::NonFinite`] the spins are restored to their values before the call
+    /// (the corrector keeps each pre-step spin in a scratch buffer as it overwrites it), so
+    /// the caller keeps the last good state without copying it every step. Other errors are
+    /// returned before anything is touched. Vacant sites stay `[0, 0, 0]`.
+    pub fn step(
+        &mut self,
+        h: &Hamiltonian,
+        spins: &mut [Vec3],
+        params: &HeunParams,
+        step_index: u64,
+    ) -> Result<(), StepError> {
+        check_len(self.predictor.len(), spins.len())?;
+        check_len(self.predictor.len(), h.len())?;
+        let dt = params.dt;
+        if !(dt.is_finite() && dt > 0.0) {
+            return Err(StepError::BadParameter { name: "dt", value: dt, expected: "finite and > 0 ps" });
+        }
+        let temperature = params.temperature;
+        if !(temperature.is_finite() && temperature >= 0.0) {
+            return Err(StepError::BadParameter {
+                name: "temperature",
+                value: temperature,
+                expected: "finite and >= 0 K",
+            });
+        }
+        let mu = h.basis_mu_mev();
+        let mut thermal = false;
+        for (b, c) in self.consts.iter_mut().enumerate() {
+            let alpha = self.damping[b];
+            let variance = 2.0 * alpha * K_B * temperature / (GAMMA_PER_PS * mu[b] * dt);
+            *c = SiteConst { gamma_ll: GAMMA_PER_PS / (1.0 + alpha * alpha), alpha, sigma: variance.sqrt() };
+            thermal |= variance > 0.0;
+        }
+
+        let consts = &self.consts[..];
+        let nb = consts.len();
+        let occupation = h.cell().occupation();
+        let stream = self.stream;
+
+        // Pass 1: field at S, noise, predictor. The field is written straight into the
+        // predictor's chunk, which is only read by this chunk in this pass.
+        {
+            let spins: &[Vec3] = spins;
+            let predictor_chunk = |start: usize, pred: &mut [Vec3], noise: &mut [Vec3]| {
+                h.field_range(spins, start, pred);
+                if thermal {
+                    stream.fill_gaussian3(step_index, start as u64, noise);
+                }
+                let mut b = start % nb;
+                for k in 0..pred.len() {
+                    let i = start + k;
+                    let c = consts[b];
+                    b += 1;
+                    if b == nb {
+                        b = 0;
+                    }
+                    if occupation.is_some_and(|o| !o[i]) {
+                        pred[k] = [0.0; 3];
+                        continue;
+                    }
+                    let mut field = pred[k];
+                    if thermal {
+                        let g = noise[k];
+                        let th = [c.sigma * g[0], c.sigma * g[1], c.sigma * g[2]];
+                        noise[k] = th;
+                        field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
+                    }
+                    let s = spins[i];
+                    let f = llg_rhs(s, field, c.gamma_ll, c.alpha);
+                    pred[k] = [s[0] + dt * f[0], s[1] + dt * f[1], s[2] + dt * f[2]];
+                }
+            };
+            if spins.len() <= CHUNK {
+                predictor_chunk(0, &mut self.predictor, &mut self.noise);
+            } else {
+                self.predictor
+                    .par_chunks_mut(CHUNK)
+                    .zip(self.noise.par_chunks_mut(CHUNK))
+                    .enumerate()
+                    .for_each(|(k, (pred, noise))| predictor_chunk(k * CHUNK, pred, noise));
+            }
+        }
+
+        // Pass 2: field at P, corrector, renormalisation. Each pre-step spin moves into the
+        // scratch slot its field occupied, so a failure anywhere can be undone.
+        let predictor = &self.predictor[..];
+        let corrector_chunk = |start: usize, out: &mut [Vec3], scratch: &mut [Vec3], noise: &[Vec3]| {
+            h.field_range(predictor, start, scratch);
+            let mut bad = None;
+            let mut b = start % nb;
+            for k in 0..out.len() {
+                let i = start + k;
+                let c = consts[b];
+                b += 1;
+                if b == nb {
+                    b = 0;
+                }
+                if occupation.is_some_and(|o| !o[i]) {
+                    scratch[k] = out[k];
+                    continue;
+                }
+                let mut field = scratch[k];
+                if thermal {
+                    let th = noise[k];
+                    field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
+                }
+                let p = predictor[i];
+                let f = llg_rhs(p, field, c.gamma_ll, c.alpha);
+                let s = out[k];
+                let v = [
+                    0.5 * (s[0] + p[0] + dt * f[0]),
+                    0.5 * (s[1] + p[1] + dt * f[1]),
+                    0.5 * (s[2] + p[2] + dt * f[2]),
+                ];
+                scratch[k] = s;
+                let n2 = dot(v, v);
+                // One comparison catches NaN, infinity and a collapsed spin alike.
+                if !(n2.is_finite() && n2 > 0.0) {
+                    bad = first_bad(bad, Some(i));
+                    continue;
+                }
+                let inv = 1.0 / n2.sqrt();
+                out[k] = [v[0] * inv, v[1] * inv, v[2] * inv];
+            }
+            bad
+        };
+        let bad = if spins.len() <= CHUNK {
+            corrector_chunk(0, spins, &mut self.scratch, &self.noise)
+        } else {
+            spins
+                .par_chunks_mut(CHUNK)
+                .zip(self.scratch.par_chunks_mut(CHUNK))
+                .zip(self.noise.par_chunks(CHUNK))
+                .enumerate()
+                .map(|(k, ((out, scratch), noise))| corrector_chunk(k * CHUNK, out, scratch, noise))
+                .reduce(|| None, first_bad)
+        };
+        if let Some(site) = bad {
+            spins.par_chunks_mut(CHUNK).zip(self.scratch.par_chunks(CHUNK)).for_each(|(s, old)| {
+                s.copy_from_slice(old);
+            });
+            return Err(StepError::NonFinite { site, step: step_index });
+        }
+        Ok(())
+    }
+}

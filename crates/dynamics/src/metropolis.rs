@@ -1,0 +1,277 @@
+//! Metropolis Monte Carlo with single-spin moves.
+//!
+//! # Moves
+//!
+//! Each attempt picks one of three trial moves for spin `S` (fixed probabilities, so the
+//! mixture is as symmetric as its parts):
+//!
+//! * with probability [`P_CONE`], a Gaussian move `S' = (S + sigma g) / |S + sigma g|`, `g`
+//!   three standard normal deviates: its density depends only on the angle between `S` and
+//!   `S'`, so it is symmetric; `sigma` sets its reach and is tuned (see below);
+//! * with probability [`P_UNIFORM`], a new direction uniform on the sphere, which
+//!   decorrelates fast at high temperature;
+//! * otherwise the reflection `S' = -S`, which crosses anisotropy barriers that small moves
+//!   cannot.
+//!
+//! A move that changes the energy by `dE` (meV, from [`Hamiltonian::energy_change`]) is
+//! accepted with probability `min(1, exp(-dE / kB T))` (N. Metropolis, A. W. Rosenbluth,
+//! M. N. Rosenbluth, A. H. Teller and E. Teller, J. Chem. Phys. 21, 1087 (1953)); at
+//! `T = 0` only moves with `dE <= 0` are accepted.
+//!
+//! # Adapting the Gaussian move
+//!
+//! When a sweep is called with `adapt = true`, `sigma` is updated after the sweep from the
+//! acceptance rate `r` of its Gaussian moves: `sigma <- sigma (1/2 + r) / (3/2 - r)`, which
+//! leaves `sigma` alone at `r = 1/2`, grows it when most moves pass and shrinks it when most
+//! fail, by at most a factor 3 per sweep; `sigma` stays within
+//! [[`SIGMA_MIN`], [`SIGMA_MAX`]]. Aiming at one half is common practice for
+//! random-walk moves. Adapting breaks detailed balance, so the engine adapts during
+//! equilibration only and measures with `adapt = false`, where `sigma` is fixed and the
+//! chain samples the Boltzmann distribution exactly. `sigma` is state to checkpoint
+//! ([`Metropolis::sigma`], [`Metropolis::set_sigma`]).
+//!
+//! # Parallel and reproducible
+//!
+//! Sites are coloured so that no bond joins two sites of one colour ([`Colouring`]); a
+//! sweep visits the colours in order and updates all sites of a colour at once. Within a
+//! colour the trial of site `i` in sweep `n` uses only the fixed spins of other colours
+//! and the random numbers addressed by `(n, i)` in stream 1:
+//! `gaussian3(2n, i)` for the Gaussian move and `uniform4(2n + 1, i)` for the choice of
+//! move (word 0), the uniform direction (words 1 and 2) and the acceptance (word 3). So
+//! a sweep gives bitwise the same spins for any thread count.
+//!
+//! Each colour is processed in blocks of at most [`BLOCK`] sites: the trials of a block
+//! are decided in parallel into a buffer, then written back in parallel over chunks of the
+//! spin array. Memory: 4 bytes per site for the colour lists, plus a buffer of
+//! `24 * min(largest colour, BLOCK)` bytes.
+
+use crate::colouring::Colouring;
+use crate::error::{check_len, StepError};
+use rayon::prelude::*;
+use spindrift_hamiltonian::constants::K_B;
+use spindrift_hamiltonian::{Hamiltonian, CHUNK};
+use spindrift_lattice::{dot, Vec3};
+use spindrift_noise::{NoiseStream, STREAM_METROPOLIS};
+
+/// Probability of the Gaussian move.
+pub const P_CONE: f64 = 0.75;
+/// Probability of the uniform move (the reflection takes the rest, 0.125).
+pub const P_UNIFORM: f64 = 0.125;
+/// Smallest Gaussian width.
+pub const SIGMA_MIN: f64 = 1e-6;
+/// Largest Gaussian width; at this width the move is practically uniform.
+pub const SIGMA_MAX: f64 = 100.0;
+/// Initial Gaussian width.
+pub const SIGMA_START: f64 = 0.5;
+/// Sites per block of a colour.
+pub const BLOCK: usize = 64 * CHUNK;
+
+/// Counts of one sweep.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct SweepStats {
+    /// Accepted trial moves.
+    pub accepted: u64,
+    /// Attempted trial moves (one per occupied site).
+    pub attempted: u64,
+}
+
+impl SweepStats {
+    /// Fraction of moves accepted (0 when none were attempted).
+    pub fn acceptance(&self) -> f64 {
+        if self.attempted == 0 {
+            0.0
+        } else {
+            self.accepted as f64 / self.attempted as f64
+        }
+    }
+}
+
+#[derive(Debug, Clone, Copy, Default)]
+struct Counts {
+    accepted: u64,
+    attempted: u64,
+    cone_accepted: u64,
+    cone_attempted: u64,
+}
+
+impl Counts {
+    fn add(self, o: Self) -> Self {
+        Self {
+            accepted: self.accepted + o.accepted,
+            attempted: self.attempted + o.attempted,
+            cone_accepted: self.cone_accepted + o.cone_accepted,
+            cone_attempted: self.cone_attempted + o.cone_attempted,
+        }
+    }
+}
+
+/// Metropolis sampler. Owns the colouring and a buffer; the caller owns the spins.
+#[derive(Debug, Clone)]
+pub struct Metropolis {
+    stream: NoiseStream,
+    colouring: Colouring,
+    buffer: Vec<Vec3>,
+    sigma: f64,
+    len: usize,
+}
+
+impl Metropolis {
+    /// A sampler for the supercell of `h`, drawing from stream 1 of `seed`. Colours the
+    /// bond graph once.
+    pub fn new(h: &Hamiltonian, seed: u64) -> Result<Self, StepError> {
+        let colouring = Colouring::new(h)?;
+        let buffer = vec![[0.0; 3]; colouring.largest_class().min(BLOCK)];
+        Ok(Self {
+            stream: NoiseStream::new(seed, STREAM_METROPOLIS),
+            colouring,
+            buffer,
+            sigma: SIGMA_START,
+            len: h.len(),
+        })
+    }
+
+    /// The colouring of the bond graph.
+    pub fn colouring(&self) -> &Colouring {
+        &self.colouring
+    }
+
+    /// Width of the Gaussian move (dimensionless, relative to the unit spin).
+    pub fn sigma(&self) -> f64 {
+        self.sigma
+    }
+
+    /// Sets the width of the Gaussian move, clamped to [[`SIGMA_MIN`], [`SIGMA_MAX`]]
+    /// (e.g. when resuming from a checkpoint).
+    pub fn set_sigma(&mut self, sigma: f64) {
+        self.sigma = if sigma.is_nan() { SIGMA_START } else { sigma.clamp(SIGMA_MIN, SIGMA_MAX) };
+    }
+
+    /// Bytes held per site of the supercell (colour lists and buffer).
+    pub fn bytes_per_site(&self) -> f64 {
+        self.colouring.bytes_per_site(self.len)
+            + (self.buffer.len() * std::mem::size_of::<Vec3>()) as f64 / self.len.max(1) as f64
+    }
+
+    /// One sweep: one trial move per occupied site, at `temperature` (K). `sweep_index`
+    /// selects the random numbers (pass `0, 1, 2, ...`, and the same index again when a
+    /// run resumes). With `adapt`, tunes the Gaussian width after the sweep (equilibration
+    /// only; see the module documentation).
+    pub fn sweep(
+        &mut self,
+        h: &Hamiltonian,
+        spins: &mut [Vec3],
+        temperature: f64,
+        sweep_index: u64,
+        adapt: bool,
+    ) -> Result<SweepStats, StepError> {
+        check_len(self.len, spins.len())?;
+        check_len(self.len, h.len())?;
+        if !(temperature.is_finite() && temperature >= 0.0) {
+            return Err(StepError::BadParameter {
+                name: "temperature",
+                value: temperature,
+                expected: "finite and >= 0 K",
+            });
+        }
+        // At T = 0 this is infinite and only downhill moves pass.
+        let beta = 1.0 / (K_B * temperature);
+        let stream = self.stream;
+        let sigma = self.sigma;
+        let gauss_step = sweep_index.wrapping_mul(2);
+        let unif_step = gauss_step.wrapping_add(1);
+        let n = spins.len();
+        let mut total = Counts::default();
+
+        for c in 0..self.colouring.len() {
+            let class = self.colouring.class(c);
+            let mut block_start = 0;
+            while block_start < class.len() {
+                let block = &class[block_start..(block_start + BLOCK).min(class.len())];
+                let buffer = &mut self.buffer[..block.len()];
+                // Decide every trial of the block; the spins of this colour do not change
+                // until all are decided, and no trial reads another spin of its colour.
+                let decide = |out: &mut [Vec3], sites: &[u32]| {
+                    let spins: &[Vec3] = spins;
+                    let mut k = Counts::default();
+                    for (o, &site) in out.iter_mut().zip(sites) {
+                        let i = site as usize;
+                        let s = spins[i];
+                        let u = stream.uniform4(unif_step, i as u64);
+                        let cone = u[0] < P_CONE;
+                        let trial = if cone {
+                            let g = stream.gaussian3(gauss_step, i as u64);
+                            let v = [s[0] + sigma * g[0], s[1] + sigma * g[1], s[2] + sigma * g[2]];
+                            let n2 = dot(v, v);
+                            if n2 > 0.0 && n2.is_finite() {
+                                let inv = 1.0 / n2.sqrt();
+                                Some([v[0] * inv, v[1] * inv, v[2] * inv])
+                            } else {
+                                None
+                            }
+                        } else if u[0] < P_CONE + P_UNIFORM {
+                            let z = 2.0 * u[1] - 1.0;
+                            let r = (1.0 - z * z).max(0.0).sqrt();
+                            let phi = std::f64::consts::TAU * u[2];
+                            Some([r * phi.cos(), r * phi.sin(), z])
+                        } else {
+                            Some([-s[0], -s[1], -s[2]])
+                        };
+                        let accepted = trial.filter(|t| {
+                            let de = h.energy_change(spins, i, *t);
+                            de <= 0.0 || u[3] < (-de * beta).exp()
+                        });
+                        *o = accepted.unwrap_or(s);
+                        k.attempted += 1;
+                        k.cone_attempted += cone as u64;
+                        if accepted.is_some() {
+                            k.accepted += 1;
+                            k.cone_accepted += cone as u64;
+                        }
+                    }
+                    k
+                };
+                let counts = if block.len() <= CHUNK {
+                    decide(buffer, block)
+                } else {
+                    buffer
+                        .par_chunks_mut(CHUNK)
+                        .zip(block.par_chunks(CHUNK))
+                        .map(|(o, s)| decide(o, s))
+                        .reduce(Counts::default, Counts::add)
+                };
+                total = total.add(counts);
+
+                // Write back, in parallel over the chunks of the spin array that hold
+                // sites of this block.
+                let buffer = &self.buffer[..block.len()];
+                let colouring = &self.colouring;
+                let block_end = block_start + block.len();
+                let first_chunk = block[0] as usize / CHUNK;
+                let last_chunk = block[block.len() - 1] as usize / CHUNK;
+                let write = |k: usize, chunk: &mut [Vec3]| {
+                    let lo = colouring.offset(c, k).max(block_start);
+                    let hi = colouring.offset(c, k + 1).min(block_end);
+                    for e in lo..hi {
+                        chunk[class[e] as usize - k * CHUNK] = buffer[e - block_start];
+                    }
+                };
+                let region = &mut spins[first_chunk * CHUNK..((last_chunk + 1) * CHUNK).min(n)];
+                if last_chunk == first_chunk {
+                    write(first_chunk, region);
+                } else {
+                    region
+                        .par_chunks_mut(CHUNK)
+                        .enumerate()
+                        .for_each(|(kk, chunk)| write(first_chunk + kk, chunk));
+                }
+                block_start = block_end;
+            }
+        }
+
+        if adapt && total.cone_attempted > 0 {
+            let r = total.cone_accepted as f64 / total.cone_attempted as f64;
+            self.set_sigma(self.sigma * (0.5 + r) / (1.5 - r));
+        }
+        Ok(SweepStats { accepted: total.accepted, attempted: total.attempted })
+    }
+}

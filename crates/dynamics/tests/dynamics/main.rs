@@ -1,0 +1,10 @@
+//! Tests of spindrift-dynamics, one module per source file. Physics checks are meant for
+//! `cargo test --release`.
+
+mod colouring;
+mod common;
+mod determinism;
+mod heun;
+mod initial;
+mod metropolis;
+mod relax;

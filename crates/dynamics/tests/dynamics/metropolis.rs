@@ -1,0 +1,145 @@
+//! Metropolis sampling against exact equilibrium averages.
+
+use crate::common::*;
+use spindrift_dynamics::initial;
+use spindrift_dynamics::{Metropolis, StepError};
+use spindrift_hamiltonian::constants::{K_B, MU_B};
+use spindrift_hamiltonian::Hamiltonian;
+use spindrift_lattice::{preset, BondList, Supercell, Vec3};
+
+fn average(h: &Hamiltonian, t: f64, f: impl Fn(Vec3) -> f64) -> (f64, f64) {
+    let mut s = vec![[0.0, 0.0, 1.0]; h.len()];
+    let mut mc = Metropolis::new(h, 23).unwrap();
+    let (equilibrate, measure) = (300u64, 3_000u64);
+    for n in 0..equilibrate {
+        mc.sweep(h, &mut s, t, n, true).unwrap();
+    }
+    let mut sum = 0.0;
+    let mut acc = 0.0;
+    for n in equilibrate..equilibrate + measure {
+        let st = mc.sweep(h, &mut s, t, n, false).unwrap();
+        acc += st.acceptance();
+        sum += s.iter().map(|v| f(*v)).sum::<f64>();
+    }
+    (sum / (measure as f64 * s.len() as f64), acc / measure as f64)
+}
+
+/// Detailed balance: free moments in a field sample `<m.b> = L(x)`, `x = mu muB B / kB T`
+/// (Langevin function, `common::langevin`), within 1%, at x = 1 and x = 5, with the field
+/// along a direction that is no lattice axis.
+#[test]
+fn free_spins_give_the_langevin_function() {
+    let (mu, b) = (2.0, 4.0);
+    let dir = [0.48, -0.6, 0.64];
+    let h = build(
+        "simple-cubic",
+        3.0,
+        [64, 64, 1],
+        [true; 3],
+        &[],
+        species(mu, 0.1, 0.0, [0.0, 0.0, 1.0]),
+        [b * dir[0], b * dir[1], b * dir[2]],
+    );
+    for x in [1.0, 5.0] {
+        let t = mu * MU_B * b / (K_B * x);
+        let (m, acc) = average(&h, t, |s| s[0] * dir[0] + s[1] * dir[1] + s[2] * dir[2]);
+        let expect = langevin(x);
+        println!(
+            "Metropolis, free spins, x = {x}: <m.b> = {m:.5}, L(x) = {expect:.5}, rel. error {:.2e}, acceptance {acc:.3}",
+            (m - expect) / expect
+        );
+        assert!((m - expect).abs() < 0.01 * expect, "x = {x}: {m} vs {expect}");
+    }
+}
+
+/// Uniaxial anisotropy: `<cos^2 theta>` against the Boltzmann average with weight
+/// `exp(k cos^2 theta / kB T)` (W. F. Brown, Phys. Rev. 130, 1677 (1963)), within 1%, at a
+/// temperature where the two minima are separated by a barrier of 4 kB T: the reflection
+/// move carries spins across.
+#[test]
+fn anisotropy_average_is_boltzmann() {
+    let (k, a) = (0.5, 4.0);
+    let t = k / (a * K_B);
+    let h = build(
+        "simple-cubic",
+        3.0,
+        [64, 64, 1],
+        [true; 3],
+        &[],
+        species(2.0, 0.1, k, [0.0, 0.0, 1.0]),
+        [0.0; 3],
+    );
+    let (m, _) = average(&h, t, |s| s[2] * s[2]);
+    let w = |c: f64| (a * c * c).exp();
+    let expect = simpson(|c| c * c * w(c), -1.0, 1.0, 2000) / simpson(w, -1.0, 1.0, 2000);
+    let (z, _) = average(&h, t, |s| s[2]);
+    println!("Metropolis, anisotropy k/kBT = {a}: <cos^2> = {m:.5}, Boltzmann {expect:.5}; <cos> = {z:.4}");
+    assert!((m - expect).abs() < 0.01 * expect, "{m} vs {expect}");
+    // Both wells are visited equally (symmetry of the energy).
+    assert!(z.abs() < 0.02, "{z}");
+}
+
+/// At zero temperature no accepted move raises the energy (Metropolis rule with
+/// `exp(-dE/0) = 0`), and a ferromagnet in a field only goes down in energy.
+#[test]
+fn zero_temperature_sweeps_only_go_downhill() {
+    let h = build(
+        "triangular",
+        3.0,
+        [12, 12, 1],
+        [true; 3],
+        &[shell(1, 4.0, interfacial(1.0))],
+        species(2.0, 0.1, 0.1, [0.0, 0.0, 1.0]),
+        [0.0, 0.0, 2.0],
+    );
+    let mut s = vec![[0.0; 3]; h.len()];
+    initial::random(&h, &mut s, 8).unwrap();
+    let mut mc = Metropolis::new(&h, 1).unwrap();
+    let mut e = h.energy(&s).total();
+    for n in 0..50 {
+        mc.sweep(&h, &mut s, 0.0, n, true).unwrap();
+        let e2 = h.energy(&s).total();
+        assert!(e2 <= e + 1e-9 * e.abs(), "{e2} > {e}");
+        e = e2;
+    }
+    assert!(matches!(mc.sweep(&h, &mut s, -1.0, 0, false), Err(StepError::BadParameter { .. })));
+}
+
+/// Vacant sites are never touched, and the sampler's memory is small.
+#[test]
+fn diluted_lattice_and_memory() {
+    let mut crystal = preset("bcc", 3.0, None).unwrap();
+    for b in &mut crystal.basis {
+        b.occupancy = 0.6;
+    }
+    let cell = Supercell::new(crystal, [10, 10, 10], [true; 3], 3).unwrap();
+    let mut bonds = BondList::new(2);
+    spindrift_hamiltonian::add_shell(&cell, &mut bonds, &shell(1, 5.0, None)).unwrap();
+    let h = Hamiltonian::new(cell, vec![species(2.0, 0.1, 0.0, [0.0, 0.0, 1.0])], bonds, [0.0; 3]).unwrap();
+    let mut s = vec![[0.0; 3]; h.len()];
+    initial::random(&h, &mut s, 2).unwrap();
+    let mut mc = Metropolis::new(&h, 5).unwrap();
+    let st = mc.sweep(&h, &mut s, 300.0, 0, false).unwrap();
+    assert_eq!(st.attempted as usize, h.spin_count());
+    for (i, v) in s.iter().enumerate() {
+        if !h.cell().is_occupied(i) {
+            assert_eq!(*v, [0.0; 3]);
+        }
+    }
+    let big = build(
+        "simple-cubic",
+        3.0,
+        [128, 128, 8],
+        [true; 3],
+        &[shell(1, 5.0, None)],
+        species(2.0, 0.1, 0.0, [0.0, 0.0, 1.0]),
+        [0.0; 3],
+    );
+    let mc = Metropolis::new(&big, 0).unwrap();
+    println!(
+        "Metropolis memory on 128x128x8 simple cubic: {:.2} bytes per spin ({} colours)",
+        mc.bytes_per_site(),
+        mc.colouring().len()
+    );
+    assert!(mc.bytes_per_site() < 20.0);
+}

@@ -1,0 +1,31 @@
+//! Errors of a run.
+
+use crate::sink::SinkError;
+use thiserror::Error;
+
+/// Why a run could not go on.
+#[derive(Debug, Clone, Error)]
+#[non_exhaustive]
+pub enum EngineError {
+    /// Records could not be stored.
+    #[error("output: {0}")]
+    Sink(#[from] SinkError),
+    /// The spins became non-finite; the last good state was saved.
+    #[error("stage {stage}: spin {site} became non-finite at step {step} (time step too large, or couplings too strong?); the last good state was saved")]
+    NonFinite {
+        /// Stage index.
+        stage: usize,
+        /// Step within the stage.
+        step: u64,
+        /// Site index.
+        site: usize,
+    },
+    /// Something the configuration should have caught (a bug or an unusual system).
+    #[error("stage {stage}: {message}")]
+    Setup {
+        /// Stage index.
+        stage: usize,
+        /// What went wrong.
+        message: String,
+    },
+}

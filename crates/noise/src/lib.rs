@@ -1,0 +1,218 @@
+//! Counter-based random numbers for Spindrift's thermal noise and Monte Carlo.
+//!
+//! Every random number is a pure function of `(seed, stream, step, site)`, so a run gives
+//! bitwise the same noise whether one thread or many evaluate it, in whatever order or
+//! chunking, and a resumed run draws exactly what an uninterrupted one would have drawn.
+//!
+//! # Algorithm
+//!
+//! The block function is Philox4x32-10 ([`philox4x32_10`]; J. K. Salmon, M. A. Moraes,
+//! R. O. Dror, D. E. Shaw, "Parallel random numbers: as easy as 1, 2, 3", SC'11, 2011),
+//! checked against the known-answer vectors of the authors' Random123 distribution.
+//! A [`NoiseStream`] fixes the 64-bit key; each call encrypts one 128-bit counter into four
+//! 32-bit words:
+//!
+//! | Philox input | words | content |
+//! | --- | --- | --- |
+//! | key | `[k0, k1]` | low and high halves of `mix(seed + salt(stream))` (see below) |
+//! | counter | `[c0, c1]` | low and high halves of the site index |
+//! | counter | `[c2, c3]` | low and high halves of the step index |
+//!
+//! `mix` is the SplitMix64 finaliser (G. L. Steele, D. Lea, C. H. Flood, "Fast splittable
+//! pseudorandom number generators", OOPSLA 2014), a bijection of 64-bit words, so for one
+//! stream every seed has its own key. The salt `salt(stream) = mix((stream + 1) *
+//! 0x9e3779b97f4a7c15)` (SplitMix64's output number `stream` from state 0) moves different
+//! streams to unrelated keys: two `(seed, stream)` pairs share a key only if their seeds
+//! differ by exactly the difference of two pseudo-random 64-bit salts.
+//!
+//! # Stream ids
+//!
+//! Each consumer of randomness uses its own stream, so that, for example, changing the
+//! initial state does not change the thermal noise:
+//!
+//! | id | constant | use |
+//! | --- | --- | --- |
+//! | 0 | [`STREAM_LLG_THERMAL`] | thermal field of the stochastic LLG equation; `step` is the time step, `site` the spin |
+//! | 1 | [`STREAM_METROPOLIS`] | Metropolis trial moves and acceptance; `step` is the sweep, `site` the spin |
+//! | 2 | [`STREAM_INITIAL_STATE`] | random initial spins and random dilution; `step` is 0 (dilution) or 1 (spins) by the caller's choice |
+//!
+//! Further ids are free for new consumers; document them here when they are taken.
+//!
+//! # Deviates
+//!
+//! * [`NoiseStream::gaussian3`] gives three independent standard normal deviates per
+//!   `(step, site)` from one Philox call (words `w0..w3`), by the Box-Muller transform
+//!   (G. E. P. Box, M. E. Muller, Ann. Math. Statist. 29, 610, 1958) on uniforms
+//!   `u_i = (w_i + 1/2) / 2^32` in the open interval `(0, 1)`:
+//!   `r1 (cos 2 pi u1, sin 2 pi u1)` and `r2 sin(pi (u3 - 1/2))`, with
+//!   `r_i = sqrt(-2 ln u_i)`. The third uses only the sine half of its pair, on a half turn:
+//!   the sine of an angle uniform on `(-pi/2, pi/2)` has the same (arcsine) law as the
+//!   cosine of an angle uniform on the circle, and costs one polynomial instead of two.
+//!
+//!   **Tail cut-off:** the smallest uniform is `2^-33`, so the Box-Muller radius is at most
+//!   `sqrt(66 ln 2) = 6.7637`, and no deviate exceeds 6.7637 in magnitude. An exact standard
+//!   normal exceeds that with probability `1.3e-11` per deviate; below it the radial law is
+//!   exact up to the `2^-32` quantisation of `u`.
+//! * [`NoiseStream::fill_gaussian3`] evaluates many consecutive sites at once, bit for bit
+//!   equal to the per-site calls: Philox on blocks of 16 sites, then branch-free
+//!   logarithm and sine/cosine kernels (Taylor series, within `4.4e-16` relative of the C
+//!   library's, see the tests) that the compiler vectorises. The kernels use only correctly
+//!   rounded IEEE operations and Rust never contracts them into fused multiply-adds, so the
+//!   numbers are also the same on every platform and for every `target-cpu`.
+//! * [`NoiseStream::uniform4`] and [`NoiseStream::fill_uniform4`] give four uniforms
+//!   `w_i / 2^32` on `[0, 1)`, resolution `2^-32`.
+//!
+//! # Cost
+//!
+//! On the baseline x86-64 target (SSE2) `fill_gaussian3` takes about 17 ns per site
+//! (three deviates), of which Philox is about 4 ns; with `-C target-cpu=x86-64-v3` (AVX2)
+//! about 9.5 ns, with the same bits. `fill_uniform4` takes about 5 ns per site.
+//! * [`NoiseStream::uniform4`] and [`NoiseStream::fill_uniform4`] give four uniforms on
+//!   `[0, 1)` with resolution `2^-32`.
+//!
+//! All deviates are dimensionless; callers scale them (for example by the thermal field's
+//! standard deviation in tesla).
+//!
+//! ```
+//! use spindrift_noise::{NoiseStream, STREAM_LLG_THERMAL};
+//!
+//! let noise = NoiseStream::new(7, STREAM_LLG_THERMAL);
+//! let mut b = vec![[0.0; 3]; 1000];
+//! // A thread that owns sites 1000..2000 fills its own slice for time step 42.
+//! noise.fill_gaussian3(42, 1000, &mut b);
+//! assert_eq!(b[5], noise.gaussian3(42, 1005));
+//! ```
+#![deny(missing_docs)]
+
+mod philox;
+mod transform;
+
+pub use philox::philox4x32_10;
+
+use transform::{gaussian3_from_words, uniform4_from_words};
+
+/// Stream id of the stochastic LLG thermal field.
+pub const STREAM_LLG_THERMAL: u32 = 0;
+/// Stream id of Metropolis Monte Carlo (trial moves and acceptance).
+pub const STREAM_METROPOLIS: u32 = 1;
+/// Stream id of random initial states (random spins, random dilution).
+pub const STREAM_INITIAL_STATE: u32 = 2;
+
+/// Sites per block in the bulk functions. The block's words (256 bytes) stay in L1; 8 to 32
+/// measured the same within noise, 16 is in the middle.
+const LANES: usize = 16;
+
+/// SplitMix64's increment, `2^64` divided by the golden ratio.
+const GOLDEN_GAMMA: u64 = 0x9e37_79b9_7f4a_7c15;
+
+/// The SplitMix64 output function (Steele, Lea, Flood, OOPSLA 2014): a bijection of `u64`
+/// with full avalanche.
+#[inline]
+fn mix64(mut z: u64) -> u64 {
+    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+    z ^ (z >> 31)
+}
+
+/// One independent source of random numbers: a Philox key derived from a run's seed and a
+/// stream id. It holds no state; every deviate is addressed by `(step, site)`.
+///
+/// Cheap to copy and to share between threads.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub struct NoiseStream {
+    key: [u32; 2],
+}
+
+impl NoiseStream {
+    /// The stream `stream` (see the crate documentation for the ids in use) of the run
+    /// seeded with `seed`.
+    pub fn new(seed: u64, stream: u32) -> Self {
+        let salt = mix64(u64::from(stream).wrapping_add(1).wrapping_mul(GOLDEN_GAMMA));
+        let k = mix64(seed.wrapping_add(salt));
+        NoiseStream { key: [k as u32, (k >> 32) as u32] }
+    }
+
+    /// The four raw Philox words for `(step, site)`: `philox4x32_10` of the counter
+    /// `[site lo, site hi, step lo, step hi]` under this stream's key. For consumers that
+    /// need their own transform of the same random bits.
+    #[inline]
+    pub fn words(&self, step: u64, site: u64) -> [u32; 4] {
+        philox4x32_10(counter(step, site), self.key)
+    }
+
+    /// Three independent standard normal deviates (mean 0, variance 1, dimensionless) for
+    /// `(step, site)`, from one Philox call. Magnitudes never exceed 6.7637 (see the crate
+    /// documentation for this cut-off).
+    #[inline]
+    pub fn gaussian3(&self, step: u64, site: u64) -> [f64; 3] {
+        gaussian3_from_words(self.words(step, site))
+    }
+
+    /// `out[k] = self.gaussian3(step, first_site + k)` for every `k`, bit for bit, with site
+    /// indices wrapping modulo `2^64`. Evaluated in blocks for speed; allocates nothing.
+    pub fn fill_gaussian3(&self, step: u64, first_site: u64, out: &mut [[f64; 3]]) {
+        let mut site = first_site;
+        let mut blocks = out.chunks_exact_mut(LANES);
+        for block in &mut blocks {
+            let w = self.words_lanes::<LANES>(step, site);
+            for j in 0..LANES {
+                block[j] = gaussian3_from_words([w[0][j], w[1][j], w[2][j], w[3][j]]);
+            }
+            site = site.wrapping_add(LANES as u64);
+        }
+        for (k, g) in blocks.into_remainder().iter_mut().enumerate() {
+            *g = self.gaussian3(step, site.wrapping_add(k as u64));
+        }
+    }
+
+    /// Four independent uniform deviates on `[0, 1)`, multiples of `2^-32`, for
+    /// `(step, site)`, from one Philox call. A test `u < p` accepts with probability `p`
+    /// rounded up to a multiple of `2^-32`, and never when `p <= 0`.
+    #[inline]
+    pub fn uniform4(&self, step: u64, site: u64) -> [f64; 4] {
+        uniform4_from_words(self.words(step, site))
+    }
+
+    /// `out[k] = self.uniform4(step, first_site + k)` for every `k`, bit for bit, with site
+    /// indices wrapping modulo `2^64`. Allocates nothing.
+    pub fn fill_uniform4(&self, step: u64, first_site: u64, out: &mut [[f64; 4]]) {
+        let mut site = first_site;
+        let mut blocks = out.chunks_exact_mut(LANES);
+        for block in &mut blocks {
+            let w = self.words_lanes::<LANES>(step, site);
+            for j in 0..LANES {
+                block[j] = uniform4_from_words([w[0][j], w[1][j], w[2][j], w[3][j]]);
+            }
+            site = site.wrapping_add(LANES as u64);
+        }
+        for (k, u) in blocks.into_remainder().iter_mut().enumerate() {
+            *u = self.uniform4(step, site.wrapping_add(k as u64));
+        }
+    }
+
+    /// Philox words of `L` consecutive sites, as four word arrays (word-major), so that
+    /// the transforms after it run as plain loops over lanes.
+    #[inline(always)]
+    fn words_lanes<const L: usize>(&self, step: u64, first_site: u64) -> [[u32; L]; 4] {
+        let mut w = [[0u32; L]; 4];
+        // Whole independent Philox evaluations per lane: the compiler vectorises this loop
+        // across lanes. Interleaving the rounds of all lanes by hand ran out of registers
+        // and measured three times slower.
+        for j in 0..L {
+            let v = self.words(step, first_site.wrapping_add(j as u64));
+            for i in 0..4 {
+                w[i][j] = v[i];
+            }
+        }
+        w
+    }
+}
+
+/// The Philox counter of `(step, site)`: site in words 0 and 1, step in words 2 and 3.
+#[inline(always)]
+fn counter(step: u64, site: u64) -> [u32; 4] {
+    [site as u32, (site >> 32) as u32, step as u32, (step >> 32) as u32]
+}
+
+#[cfg(test)]
+mod tests;

@@ -239,7 +239,7 @@ fn describe(varies: &[Vary], values: &[String]) -> String {
 }
 
 /// The columns of a merged table.
-const SCALARS: [&str; 12] = [
+const SCALARS: [&str; 11] = [
     "m_x",
     "m_y",
     "m_z",
@@ -251,7 +251,6 @@ const SCALARS: [&str; 12] = [
     "coercive_descending",
     "coercive_ascending",
     "remanence",
-    "wall_seconds",
 ];
 
 fn scalars_of(summary: &Value) -> Vec<f64> {
@@ -284,7 +283,6 @@ fn scalars_of(summary: &Value) -> Vec<f64> {
             out[10] = r.as_f64().unwrap_or(f64::NAN);
         }
     }
-    out[11] = summary["wall_seconds"].as_f64().unwrap_or(f64::NAN);
     out
 }
 

@@ -3,7 +3,7 @@
 //! * [`Heun`]: the stochastic Landau-Lifshitz-Gilbert equation with Heun's
 //!   predictor-corrector ([`heun`] states the equation, the noise and the scheme).
 //! * [`Relaxer`]: zero-temperature energy minimisation by projected steepest descent with
-//!   Barzilai-Borwein steps ([`relax`]).
+//!   Barzilai-Borwein steps ([`mod@relax`]).
 //! * [`Metropolis`]: Metropolis Monte Carlo sweeps with adaptive Gaussian, uniform and
 //!   reflection moves, parallel over the colour classes of a [`Colouring`] of the bond
 //!   graph ([`metropolis`]).
@@ -19,6 +19,9 @@
 //! every parallel loop works on fixed chunks of `spindrift_hamiltonian::CHUNK` sites, and
 //! sums are added chunk by chunk in order, so results are bitwise the same for any number
 //! of threads, and a run resumed with the same step or sweep index continues exactly.
+//!
+//! Sources of methods and test references are named beside them; their bibliographic
+//! details are quoted from memory.
 //!
 //! Architecture invariant: this crate knows nothing of configuration files, output
 //! formats, stages or observers; it steps spins under a `Hamiltonian`.

@@ -292,18 +292,15 @@ impl Relaxer {
         params: &RelaxParams,
     ) -> Result<RelaxReport, StepError> {
         let start = self.iteration;
-        let mut torque;
-        loop {
-            torque = self.iterate(h, spins, params.torque_tolerance)?;
-            if torque < params.torque_tolerance || torque == 0.0 {
-                break;
+        let torque = loop {
+            // Once the budget is spent, only measure where the spins ended.
+            let spent = self.iteration - start >= params.max_iterations;
+            let tolerance = if spent { f64::INFINITY } else { params.torque_tolerance };
+            let torque = self.iterate(h, spins, tolerance)?;
+            if spent || torque < params.torque_tolerance || torque == 0.0 {
+                break torque;
             }
-            if self.iteration - start >= params.max_iterations {
-                // The last call moved the spins: measure where they ended.
-                torque = self.iterate(h, spins, f64::INFINITY)?;
-                break;
-            }
-        }
+        };
         let converged = torque < params.torque_tolerance || torque == 0.0;
         let energy = h.energy(spins).total() / h.spin_count().max(1) as f64;
         Ok(RelaxReport { steps: self.iteration - start, torque, converged, energy })

@@ -10,6 +10,9 @@ use std::sync::atomic::{AtomicI32, Ordering};
 use std::sync::Arc;
 use std::time::{Duration, Instant};
 
+/// Default interval between flushes of the output, wall clock.
+pub const FLUSH_EVERY: Duration = Duration::from_secs(5);
+
 /// Why a run stopped before its end.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum StopReason {
@@ -26,6 +29,8 @@ pub enum Poll {
     Continue,
     /// Write a checkpoint and carry on.
     Checkpoint,
+    /// Make the rows written so far durable, and carry on.
+    Flush,
     /// Write a checkpoint and stop.
     Stop(StopReason),
 }
@@ -56,7 +61,11 @@ pub struct Control {
     pub deadline: Option<Instant>,
     /// Write a checkpoint this often (wall clock).
     pub checkpoint_every: Option<Duration>,
+    /// Flush the output this often (wall clock), so that a killed run keeps its rows up
+    /// to the last flush. Default [`FLUSH_EVERY`].
+    pub flush_every: Duration,
     last_checkpoint: Instant,
+    last_flush: Instant,
     polls: u64,
 }
 
@@ -69,7 +78,8 @@ impl Default for Control {
 impl Control {
     /// Control with the given stop flag, deadline and checkpoint interval.
     pub fn new(stop: Arc<AtomicI32>, deadline: Option<Instant>, checkpoint_every: Option<Duration>) -> Self {
-        Self { stop, deadline, checkpoint_every, last_checkpoint: Instant::now(), polls: 0 }
+        let now = Instant::now();
+        Self { stop, deadline, checkpoint_every, flush_every: FLUSH_EVERY, last_checkpoint: now, last_flush: now, polls: 0 }
     }
 
     /// Called at every safe point. Clock reads are thinned out: the flag is an atomic
@@ -90,7 +100,12 @@ impl Control {
         }
         if self.checkpoint_every.is_some_and(|e| now.duration_since(self.last_checkpoint) >= e) {
             self.last_checkpoint = now;
+            self.last_flush = now;
             return Poll::Checkpoint;
+        }
+        if now.duration_since(self.last_flush) >= self.flush_every {
+            self.last_flush = now;
+            return Poll::Flush;
         }
         Poll::Continue
     }

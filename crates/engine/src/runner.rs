@@ -333,6 +333,10 @@ impl<'a> Runner<'a> {
     ) -> Result<Option<StopReason>, EngineError> {
         match self.control.poll() {
             Poll::Continue => Ok(None),
+            Poll::Flush => {
+                self.sink.flush()?;
+                Ok(None)
+            }
             Poll::Checkpoint => {
                 self.checkpoint(cursor())?;
                 self.monitor.note("checkpoint written");

@@ -6,9 +6,10 @@ pub fn stage_seed(seed: u64, index: usize) -> u64 {
     mix(seed ^ mix(0x5EED_0000 + index as u64))
 }
 
-/// Seed of point `index` of a sweep (the `spindrift sweep` point number).
+/// Seed of point `index` of a sweep (the `spindrift sweep` point number). It has 63
+/// bits, so that it can be written back into a config (TOML integers are signed).
 pub fn point_seed(seed: u64, index: usize) -> u64 {
-    mix(seed ^ mix(0xB01D_0000_0000 + index as u64))
+    mix(seed ^ mix(0xB01D_0000_0000 + index as u64)) >> 1
 }
 
 fn mix(mut z: u64) -> u64 {

@@ -1,0 +1,371 @@
+//! End-to-end checks of the `spindrift` binary as a user runs it: exit codes, messages,
+//! files read back by independent tools, determinism, stop and resume.
+
+mod common;
+
+use common::{bin, repo, spindrift, temp_dir, write_config};
+use serde_json::Value;
+use spindrift_io::RunReader;
+use std::path::Path;
+use std::process::{Child, Stdio};
+use std::time::{Duration, Instant};
+
+fn stderr(o: &std::process::Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+/// `check --json` prints the keys INTERFACE.md promises, with the values of the
+/// definitions (mean field for classical spins `kB T = J0 / 3`, textbook).
+#[test]
+fn check_json_has_the_interface_keys() {
+    let o = spindrift(&["check", "configs/demo.toml", "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: Value = serde_json::from_slice(&o.stdout).expect("json");
+    for k in ["spins", "memory_estimate_bytes", "energy_initial", "curie_mean_field", "curie_rpa", "recommended_dt"] {
+        assert!(v.get(k).is_some(), "missing {k}");
+    }
+    for k in ["total", "exchange", "dmi", "anisotropy", "zeeman"] {
+        assert!(v["energy_initial"][k].is_number(), "energy_initial.{k}");
+    }
+    assert_eq!(v["spins"], 4096);
+    // J0 = 6 (6.0 - 0.4) meV over two shells of six neighbours.
+    let mf = 6.0 * (6.0 - 0.4) / (3.0 * 8.617333262e-2);
+    assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf);
+    assert!(v["curie_rpa"].as_f64().unwrap() < mf);
+    let text = spindrift(&["check", "configs/demo.toml"]);
+    assert!(String::from_utf8_lossy(&text.stdout).contains("mean field"));
+}
+
+/// A bond table in mRy: every pair once, reverse bonds added; the mean-field estimate is
+/// the coupling sum over 3 kB (CODATA 2018 Rydberg 13.605693122994 eV).
+#[test]
+fn bond_table_in_mry_gives_the_expected_couplings() {
+    let o = spindrift(&["check", "tests/configs/table.toml", "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let j0 = (8.0 * 1.2 + 6.0 * 0.3) * 13.605693122994;
+    let mf = j0 / (3.0 * 8.617333262e-2);
+    let got = v["curie_mean_field"].as_f64().unwrap();
+    assert!((got - mf).abs() < 1e-9 * mf, "{got} vs {mf}");
+}
+
+/// Bad input gets exit code 2 and a message naming the key, file or line; never a panic.
+#[test]
+fn bad_input_is_reported_with_exit_code_2() {
+    let dir = temp_dir("bad");
+    let good = "[lattice]\npreset = \"square\"\na = 3.0\ncells = [8, 8, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\n[[exchange]]\nshell = 1\nj = 5.0\n[[stage]]\nkind = \"evolve\"\nduration = 0.01\n";
+    let cases: Vec<(String, &str)> = vec![
+        (good.replace("kind = \"evolve\"", "kind = \"evolve\"\ntempreature = 3"), "did you mean `temperature`"),
+        (good.replace("cells = [8, 8, 1]", "cells = \"big\""), "lattice.cells"),
+        (good.replace("cells = [8, 8, 1]", "cells = [-8, 8, 1]"), "lattice.cells"),
+        (good.replace("cells = [8, 8, 1]", "cells = [0, 8, 1]"), "lattice.cells"),
+        (good.replace("moment = 2.0", "moment = 2.0\n[[site]]\nspecies = \"Q\"\nposition = [0, 0, 0]"), "no species named `Q`"),
+        ("[lattice]\nvectors = [[1, 0, 0], [2, 0, 0], [0, 0, 1]]\ncells = [4, 4, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\n[[site]]\nspecies = \"A\"\nposition = [0, 0, 0]\n".to_string(), "collinear"),
+        (good.replace("name = \"A\"\nmoment = 2.0", "name = \"A\"\nmoment = 2.0\n[[site]]\nspecies = \"A\"\nposition = [0, 0, 0]\n[[site]]\nspecies = \"A\"\nposition = [1, 0, 0]"), "overlap"),
+        (good.replace("shell = 1", "shell = 40"), "exchange.0"),
+        (good.replace("cells = [8, 8, 1]", "cells = [100000, 100000, 1000]"), "memory"),
+        (good.replace("duration = 0.01", "duration = \"10 mT\""), "stage.0.duration"),
+        (good.replace("duration = 0.01", "duration = 0.01\ndt = \"1 ps\""), "recommended"),
+        (good.replace("[[stage]]", "[[bond_table]]\npath = \"table.dat\"\n[[stage]]"), "table.dat"),
+    ];
+    std::fs::write(dir.join("table.dat"), "0 0 1 0 0 1.0\n0 0 0 1 x 1.0\n").unwrap();
+    for (k, (text, needle)) in cases.iter().enumerate() {
+        let p = write_config(&dir, &format!("c{k}.toml"), text);
+        let o = spindrift(&["check", p.to_str().unwrap()]);
+        let e = stderr(&o);
+        assert_eq!(o.status.code(), Some(2), "case {k}: {e}");
+        assert!(e.contains(needle), "case {k}: expected `{needle}` in: {e}");
+        assert!(!e.contains("panicked"), "case {k}: {e}");
+    }
+    // The malformed table line is named with its file and line number.
+    let p = dir.join(format!("c{}.toml", cases.len() - 1));
+    let e = stderr(&spindrift(&["check", p.to_str().unwrap()]));
+    assert!(e.contains("table.dat:2"), "{e}");
+    // Flags: a missing file and a bad --set.
+    assert_eq!(spindrift(&["check", "no/such.toml"]).status.code(), Some(2));
+    let o = spindrift(&["check", "configs/demo.toml", "--set", "lattice.cells.7=3"]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert_eq!(spindrift(&["run", "configs/demo.toml", "--threads", "0", "--out", dir.join("x").to_str().unwrap()]).status.code(), Some(2));
+}
+
+const FILM: &str = "tests/configs/evolve-small.toml";
+const BIG: &str = "lattice.cells=[48,48,3]";
+
+fn run_film(out: &Path, threads: &str, extra: &[&str]) -> std::process::Output {
+    let mut args = vec!["run", FILM, "--out", out.to_str().unwrap(), "--threads", threads, "--set", BIG, "-q"];
+    args.extend_from_slice(extra);
+    spindrift(&args)
+}
+
+/// Every dataset of two run files, compared bit for bit.
+fn assert_same_run(a: &Path, b: &Path) {
+    let (ra, rb) = (RunReader::open(a).unwrap(), RunReader::open(b).unwrap());
+    let stages = ra.stages().unwrap();
+    assert_eq!(stages, rb.stages().unwrap());
+    let mut compared = 0;
+    for s in &stages {
+        for d in ra.datasets(s.index).unwrap() {
+            let (sa, va) = ra.read_flat(&d.path).unwrap();
+            let (sb, vb) = rb.read_flat(&d.path).unwrap();
+            assert_eq!(sa, sb, "{}", d.path);
+            let same = va.iter().zip(&vb).all(|(x, y)| x.to_bits() == y.to_bits());
+            assert!(same, "{} differs", d.path);
+            compared += 1;
+        }
+    }
+    assert!(compared > 10, "only {compared} datasets");
+    let (fa, fb) = (ra.final_spins().unwrap().unwrap(), rb.final_spins().unwrap().unwrap());
+    assert!(fa.iter().flatten().zip(fb.iter().flatten()).all(|(x, y)| x.to_bits() == y.to_bits()), "final spins differ");
+}
+
+/// The same config and seed give bitwise the same output with 1 and 2 threads (two
+/// chunks of sites, so the work is really split).
+#[test]
+fn results_are_identical_for_any_thread_count() {
+    let dir = temp_dir("threads");
+    let (a, b) = (dir.join("one"), dir.join("two"));
+    assert!(run_film(&a, "1", &[]).status.success());
+    assert!(run_film(&b, "2", &[]).status.success());
+    assert_same_run(&a, &b);
+}
+
+fn spawn_film(out: &Path) -> Child {
+    bin()
+        .args(["run", FILM, "--out", out.to_str().unwrap(), "--threads", "2", "--set", BIG, "--set", "stage.0.duration=\"30 ps\"", "-q"])
+        .stdout(Stdio::null())
+        .stderr(Stdio::piped())
+        .spawn()
+        .expect("spawn")
+}
+
+/// Waits until the run file in `dir` has at least `rows` series rows in stage 0.
+fn wait_for_rows(dir: &Path, rows: usize) {
+    let start = Instant::now();
+    while start.elapsed() < Duration::from_secs(120) {
+        if let Ok(r) = RunReader::open(dir) {
+            if r.shape("/stage_000/series/step").map(|s| s[0]).unwrap_or(0) >= rows {
+                return;
+            }
+        }
+        std::thread::sleep(Duration::from_millis(50));
+    }
+    panic!("no rows appeared in {}", dir.display());
+}
+
+fn signal(child: &Child, sig: &str) {
+    let ok = std::process::Command::new("kill").args([sig, &child.id().to_string()]).status().expect("kill").success();
+    assert!(ok);
+}
+
+/// Stopped by a real SIGTERM part-way, then resumed: the run file equals, bit for bit,
+/// that of a run never stopped. Exit codes 143 then 0; the checkpoint goes on success.
+#[test]
+fn sigterm_then_resume_equals_an_uninterrupted_run() {
+    let dir = temp_dir("resume");
+    let (straight, stopped) = (dir.join("straight"), dir.join("stopped"));
+    let o = run_film(&straight, "2", &["--set", "stage.0.duration=\"30 ps\""]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let mut child = spawn_film(&stopped);
+    // Rows are flushed in blocks; wait for the first block, then stop.
+    wait_for_rows(&stopped, 1);
+    signal(&child, "-TERM");
+    let status = child.wait().unwrap();
+    assert_eq!(status.code(), Some(143));
+    assert!(stopped.join("checkpoint.h5").exists());
+    let o = spindrift(&["run", FILM, "--resume", stopped.to_str().unwrap(), "--set", BIG, "--set", "stage.0.duration=\"30 ps\"", "-q"]);
+    assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
+    assert!(!stopped.join("checkpoint.h5").exists());
+    assert_same_run(&straight, &stopped);
+    // An independent reader agrees: h5diff (The HDF Group's tool) finds no difference in
+    // the stages and the final spins.
+    for path in ["/stage_000", "/stage_001", "/final"] {
+        let out = std::process::Command::new("h5diff")
+            .args(["-c", "-r", straight.join("run.h5").to_str().unwrap(), stopped.join("run.h5").to_str().unwrap(), path, path])
+            .output()
+            .expect("h5diff (apt-get install hdf5-tools)");
+        let text = String::from_utf8_lossy(&out.stdout);
+        let differs = text.lines().any(|l| l.contains("differences found") && !l.trim_start().starts_with("0 "));
+        // Empty datasets (a stage without snapshots) are "not comparable" to h5diff.
+        let incomparable = text.lines().any(|l| l.starts_with("Not comparable") && !l.contains("empty dataset"));
+        assert!(out.status.success() && !differs && !incomparable, "{path}: {text}");
+    }
+    // Resuming with another config is refused.
+    let o = spindrift(&["run", FILM, "--resume", straight.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+}
+
+/// `--max-wall` stops with exit 75 and a checkpoint; the run then resumes to the end.
+#[test]
+fn max_wall_stops_with_a_checkpoint() {
+    let dir = temp_dir("wall").join("run");
+    let o = run_film(&dir, "2", &["--set", "stage.0.duration=\"200 ps\"", "--max-wall", "1 s"]);
+    assert_eq!(o.status.code(), Some(75), "{}", stderr(&o));
+    assert!(dir.join("checkpoint.h5").exists());
+    let summary: Value = serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    assert!(summary["stages"].as_array().unwrap().is_empty());
+    let o = spindrift(&["inspect", dir.to_str().unwrap()]);
+    assert!(o.status.success());
+    assert!(String::from_utf8_lossy(&o.stdout).contains("checkpoint is present"));
+}
+
+/// A run killed with SIGKILL leaves a readable run file with the rows up to its last flush.
+#[test]
+fn sigkill_leaves_a_readable_run_file() {
+    let dir = temp_dir("kill").join("run");
+    let mut child = spawn_film(&dir);
+    wait_for_rows(&dir, 1);
+    signal(&child, "-KILL");
+    let _ = child.wait();
+    let r = RunReader::open(&dir).expect("readable after SIGKILL");
+    let rows = r.shape("/stage_000/series/step").unwrap()[0];
+    assert!(rows >= 1);
+    let t = r.read_1d("/stage_000/series/time").unwrap();
+    assert_eq!(t.len(), rows);
+    assert!(t.windows(2).all(|w| w[1] > w[0]));
+    let o = spindrift(&["inspect", dir.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+}
+
+/// The run file has INTERFACE.md's layout, read by an independent reader (h5dump, The
+/// HDF Group), with a `unit` attribute on the dimensional datasets; summary.json and
+/// run.xdmf are written; `plot` draws PNG files.
+#[test]
+fn run_file_layout_read_by_h5dump() {
+    let dir = temp_dir("layout").join("run");
+    let o = spindrift(&["run", FILM, "--out", dir.to_str().unwrap(), "-q"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let h5 = dir.join("run.h5");
+    let dump = |args: &[&str]| -> String {
+        let o = std::process::Command::new("h5dump").args(args).arg(&h5).output().expect("h5dump (apt-get install hdf5-tools)");
+        assert!(o.status.success(), "h5dump {args:?}: {}", String::from_utf8_lossy(&o.stderr));
+        String::from_utf8_lossy(&o.stdout).into_owned()
+    };
+    let header = dump(&["-H"]);
+    for name in [
+        "/lattice/position",
+        "/stage_000/series/magnetization_by_layer",
+        "/stage_000/snapshots/spins",
+        "/stage_001/points/susceptibility_err",
+        "/final/spins",
+    ] {
+        let leaf = name.rsplit('/').next().unwrap();
+        assert!(header.contains(&format!("DATASET \"{leaf}\"")), "{name} missing");
+    }
+    for (path, unit) in [
+        ("/stage_000/series/time", "ps"),
+        ("/stage_000/series/field", "T"),
+        ("/stage_000/series/energy", "meV/spin"),
+        ("/stage_000/series/temperature", "K"),
+        ("/lattice/position", "angstrom"),
+    ] {
+        let a = dump(&["-a", &format!("{path}/unit")]);
+        assert!(a.contains(&format!("\"{unit}\"")), "{path}: {a}");
+    }
+    let shape = dump(&["-H", "-d", "/stage_000/snapshots/spins"]);
+    assert!(shape.contains("( 4, 1728, 3 )"), "{shape}");
+    let root = dump(&["-a", "/format"]);
+    assert!(root.contains("spindrift-run"));
+    let summary: Value = serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    for k in ["spins", "threads", "wall_seconds", "stages"] {
+        assert!(summary.get(k).is_some(), "summary.{k}");
+    }
+    let st = &summary["stages"][0];
+    for k in ["index", "kind", "steps", "spin_steps_per_second", "final"] {
+        assert!(st.get(k).is_some(), "stage.{k}");
+    }
+    for k in ["time", "magnetization", "energy", "energy_terms", "charge"] {
+        assert!(st["final"].get(k).is_some(), "final.{k}");
+    }
+    assert!(dir.join("run.xdmf").exists());
+    let o = spindrift(&["plot", dir.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    for f in ["stage_000_series.png", "stage_001_series.png", "final_layer_000.png", "final_layer_002.png"] {
+        assert!(dir.join("plots").join(f).exists(), "{f}");
+    }
+    // A second run into the same folder is refused rather than overwriting it.
+    let o = spindrift(&["run", FILM, "--out", dir.to_str().unwrap(), "-q"]);
+    assert_eq!(o.status.code(), Some(2));
+}
+
+const SWEEP_CONFIG: &str = "[lattice]\npreset = \"square\"\na = 3.0\ncells = [12, 12, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\nanisotropy = 0.2\n[[exchange]]\nshell = 1\nj = 5.0\n[initial]\nstate = \"random\"\n[[stage]]\nkind = \"evolve\"\nduration = \"2 ps\"\ntemperature = 10\nobserve_every = 200\n";
+
+/// A sweep of 4 points split into 2 shards run as separate processes gives the same
+/// merged table as the unsharded sweep; re-running skips finished points; bad --vary keys
+/// are refused before anything runs.
+#[test]
+fn sweep_shards_merge_to_the_same_table() {
+    let dir = temp_dir("sweep");
+    let cfg = write_config(&dir, "s.toml", SWEEP_CONFIG);
+    let c = cfg.to_str().unwrap();
+    let whole = dir.join("whole");
+    let sharded = dir.join("sharded");
+    let vary = ["--vary", "stage.0.temperature=5,20", "--vary", "field.b=[0,0,0],[0,0,2]"];
+    let run = |out: &Path, extra: &[&str]| {
+        let mut a = vec!["sweep", c, "--out", out.to_str().unwrap()];
+        a.extend_from_slice(&vary);
+        a.extend_from_slice(extra);
+        let o = spindrift(&a);
+        assert!(o.status.success(), "{}", stderr(&o));
+        o
+    };
+    run(&whole, &[]);
+    run(&sharded, &["--shard", "0/2"]);
+    run(&sharded, &["--shard", "1/2"]);
+    let again = run(&whole, &[]);
+    assert_eq!(stderr(&again).matches("done already").count(), 4);
+    for d in [&whole, &sharded] {
+        let o = spindrift(&["merge", d.to_str().unwrap()]);
+        assert!(o.status.success(), "{}", stderr(&o));
+    }
+    let a = std::fs::read_to_string(whole.join("merged.csv")).unwrap();
+    let b = std::fs::read_to_string(sharded.join("merged.csv")).unwrap();
+    assert_eq!(a.lines().count(), 5);
+    assert_eq!(a, b);
+    assert!(!a.contains(",pending,") && !a.contains(",failed,"), "{a}");
+    let o = spindrift(&["plot", whole.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(whole.join("plots/sweep.png").exists());
+    // Bad keys and values: exit 2, naming the key, and no point folder made.
+    let bad = dir.join("bad");
+    let o = spindrift(&["sweep", c, "--out", bad.to_str().unwrap(), "--vary", "stage.0.tempreature=1,2"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("tempreature"), "{}", stderr(&o));
+    let o = spindrift(&["sweep", c, "--out", bad.to_str().unwrap(), "--vary", "stage.0.temperature=5,-3"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(!bad.join("point_0000").exists());
+    let _ = repo();
+}
+
+/// A point stopped mid-run is resumed by re-running the sweep; finished points are not
+/// re-run, and the result equals an uninterrupted sweep.
+#[test]
+fn stopped_sweep_point_is_resumed() {
+    let dir = temp_dir("sweep-stop");
+    let long = SWEEP_CONFIG.replace("cells = [12, 12, 1]", "cells = [72, 72, 1]").replace("\"2 ps\"", "\"20 ps\"");
+    let cfg = write_config(&dir, "s.toml", &long);
+    let c = cfg.to_str().unwrap();
+    let args = |out: &Path| -> Vec<String> {
+        ["sweep", c, "--out", out.to_str().unwrap(), "--vary", "stage.0.temperature=5,20"].iter().map(|s| s.to_string()).collect()
+    };
+    let straight = dir.join("straight");
+    let o = bin().args(args(&straight)).output().unwrap();
+    assert!(o.status.success(), "{}", stderr(&o));
+    let stopped = dir.join("stopped");
+    let mut child = bin().args(args(&stopped)).stderr(Stdio::piped()).stdout(Stdio::null()).spawn().unwrap();
+    // Stop during point 1, once point 0 has finished.
+    let start = Instant::now();
+    while !stopped.join("point_0001/run.h5").exists() && start.elapsed() < Duration::from_secs(120) {
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    wait_for_rows(&stopped.join("point_0001"), 1);
+    signal(&child, "-TERM");
+    assert_eq!(child.wait().unwrap().code(), Some(143));
+    let o = bin().args(args(&stopped)).output().unwrap();
+    assert!(o.status.success(), "{}", stderr(&o));
+    let e = stderr(&o);
+    assert!(e.contains("point 0: done already") && e.contains("resuming"), "{e}");
+    for k in 0..2 {
+        let p = format!("point_{k:04}");
+        assert_same_run(&straight.join(&p), &stopped.join(&p));
+    }
+}

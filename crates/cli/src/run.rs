@@ -66,6 +66,12 @@ pub fn run(args: &RunArgs) -> Outcome {
     let control = Control::new(stop, max_wall.map(|d| started + d), v.checkpoint_every);
     let mut progress = Progress::new(args.quiet);
     let spins = v.hamiltonian.spin_count();
+    let curie = spindrift_hamiltonian::curie::curie_estimates(&v.hamiltonian);
+    let estimates = vec![
+        ("curie_mean_field".to_string(), curie.mean_field),
+        ("curie_rpa".to_string(), curie.rpa.unwrap_or(f64::NAN)),
+        ("recommended_dt".to_string(), v.recommended_dt),
+    ];
 
     let (dir, mut file, end) = if let Some(dir) = &args.resume {
         let checkpoint =
@@ -139,8 +145,11 @@ pub fn run(args: &RunArgs) -> Outcome {
     };
     xdmf.map_err(output)?;
     closed.map_err(output)?;
-    write_summary(&dir, &RunSummary { spins, threads, wall_seconds: wall, stages: finished.clone() })
-        .map_err(output)?;
+    write_summary(
+        &dir,
+        &RunSummary { spins, threads, wall_seconds: wall, stages: finished.clone(), estimates },
+    )
+    .map_err(output)?;
     if code == exit::OK {
         let cp = dir.join("checkpoint.h5");
         if cp.exists() {

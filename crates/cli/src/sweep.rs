@@ -239,7 +239,7 @@ fn describe(varies: &[Vary], values: &[String]) -> String {
 }
 
 /// The columns of a merged table.
-const SCALARS: [&str; 11] = [
+const SCALARS: [&str; 13] = [
     "m_x",
     "m_y",
     "m_z",
@@ -251,6 +251,8 @@ const SCALARS: [&str; 11] = [
     "coercive_descending",
     "coercive_ascending",
     "remanence",
+    "curie_mean_field",
+    "curie_rpa",
 ];
 
 fn scalars_of(summary: &Value) -> Vec<f64> {
@@ -283,6 +285,8 @@ fn scalars_of(summary: &Value) -> Vec<f64> {
             out[10] = r.as_f64().unwrap_or(f64::NAN);
         }
     }
+    out[11] = summary["estimates"]["curie_mean_field"].as_f64().unwrap_or(f64::NAN);
+    out[12] = summary["estimates"]["curie_rpa"].as_f64().unwrap_or(f64::NAN);
     out
 }
 
@@ -349,8 +353,17 @@ fn merge_one(dir: &Path) -> Outcome {
         "rows": rows.iter().map(|(k, st, v, s)| json!({"index": k, "status": st, "values": v,
             "scalars": s.iter().map(|x| if x.is_finite() { json!(x) } else { Value::Null }).collect::<Vec<_>>()})).collect::<Vec<_>>(),
     });
-    // Several system sizes with temperature scans: the Binder cumulants' crossing.
-    if curves.len() >= 2 {
+    // Several sizes of one system with temperature scans: the Binder cumulants' crossing.
+    // Only when the sweep varies nothing but `lattice.cells`, and every point has the same
+    // number of cells along a3 (films of one thickness) or is a cube (bulk): crossing
+    // curves of different thicknesses would mean nothing.
+    let sizes_only = keys.len() == 1 && keys[0] == "lattice.cells" && {
+        let cells: Vec<Vec<f64>> = rows.iter().map(|r| parse_numbers(&r.2[0])).collect();
+        let same_depth = cells.iter().all(|c| c.len() == 3 && c[2] == cells[0][2]);
+        let cubes = cells.iter().all(|c| c.len() == 3 && c[0] == c[1] && c[1] == c[2]);
+        same_depth || cubes
+    };
+    if sizes_only && curves.len() >= 2 {
         match binder_crossing(&curves, 1) {
             Ok(b) => {
                 say!(
@@ -376,6 +389,11 @@ fn merge_one(dir: &Path) -> Outcome {
     say!("{}", dir.join("merged.csv").display());
     say!("{}", dir.join("merged.h5").display());
     Ok(OK)
+}
+
+/// The numbers in a value text such as `[12,12,3]`.
+fn parse_numbers(v: &str) -> Vec<f64> {
+    v.trim_matches(|c| c == '[' || c == ']').split(',').filter_map(|x| x.trim().parse().ok()).collect()
 }
 
 /// The Binder cumulant of the last temperature scan of a point, sized by its spin count.
@@ -420,54 +438,66 @@ pub fn plot_merged(dir: &Path, out: &Path) -> Outcome {
     }
     std::fs::create_dir_all(out).map_err(|e| output(anyhow!("cannot create {}: {e}", out.display())))?;
     let idx = |name: &str| SCALARS.iter().position(|s| *s == name).expect("column");
-    let mut panels = vec![
-        Panel {
-            title: "final |m|".into(),
-            x_label: key.clone(),
-            y_label: "|m|".into(),
-            curves: vec![Curve {
-                label: "|m|".into(),
-                x: x.clone(),
-                y: cols[idx("m_abs")].clone(),
-                err: None,
-            }],
-        },
-        Panel {
-            title: "final energy".into(),
-            x_label: key.clone(),
-            y_label: "meV per spin".into(),
-            curves: vec![Curve {
-                label: "E".into(),
-                x: x.clone(),
-                y: cols[idx("energy")].clone(),
-                err: None,
-            }],
-        },
-        Panel {
-            title: "final topological charge".into(),
-            x_label: key.clone(),
-            y_label: "Q".into(),
-            curves: vec![Curve {
-                label: "Q".into(),
-                x: x.clone(),
-                y: cols[idx("charge")].clone(),
-                err: None,
-            }],
-        },
-    ];
-    if cols[idx("curie_temperature")].iter().any(|v| v.is_finite()) {
-        panels.push(Panel {
-            title: "Curie temperature (susceptibility peak; model estimate)".into(),
-            x_label: key.clone(),
-            y_label: "Tc (K)".into(),
-            curves: vec![Curve {
-                label: "Monte Carlo".into(),
-                x: x.clone(),
-                y: cols[idx("curie_temperature")].clone(),
-                err: Some(cols[idx("curie_temperature_error")].clone()),
-            }],
-        });
-    }
+    let x_label = if key == "lattice.cells" { "layers (cells along a3)".to_string() } else { key.clone() };
+    let line = |label: &str, name: &str, err: Option<&str>| Curve {
+        label: label.into(),
+        x: x.clone(),
+        y: cols[idx(name)].clone(),
+        err: err.map(|e| cols[idx(e)].clone()),
+    };
+    let panel = |title: &str, y_label: &str, curves: Vec<Curve>| Panel {
+        title: title.into(),
+        x_label: x_label.clone(),
+        y_label: y_label.into(),
+        curves,
+    };
+    let has = |name: &str| cols[idx(name)].iter().any(|v| v.is_finite());
+    let panels = if has("curie_temperature") {
+        // Temperature scans: the final state is the last temperature's, so only the
+        // Curie temperatures are worth a figure, beside the estimates `check` prints.
+        let ratio: Vec<f64> = cols[idx("curie_temperature")]
+            .iter()
+            .zip(&cols[idx("curie_mean_field")])
+            .map(|(t, m)| t / m)
+            .collect();
+        vec![
+            panel(
+                "Curie temperature (model estimates: classical spins, finite size)",
+                "Tc (K)",
+                vec![
+                    line(
+                        "Monte Carlo (susceptibility peak)",
+                        "curie_temperature",
+                        Some("curie_temperature_error"),
+                    ),
+                    line("mean field", "curie_mean_field", None),
+                    line("RPA", "curie_rpa", None),
+                ],
+            ),
+            panel(
+                "Monte Carlo over mean field",
+                "Tc / Tc(mean field)",
+                vec![Curve { label: "ratio".into(), x: x.clone(), y: ratio, err: None }],
+            ),
+        ]
+    } else {
+        let mut p = vec![
+            panel("final |m|", "|m|", vec![line("|m|", "m_abs", None)]),
+            panel("final energy", "meV per spin", vec![line("E", "energy", None)]),
+            panel("final topological charge", "Q", vec![line("Q", "charge", None)]),
+        ];
+        if has("coercive_ascending") {
+            p.push(panel(
+                "coercive field",
+                "T",
+                vec![
+                    line("descending", "coercive_descending", None),
+                    line("ascending", "coercive_ascending", None),
+                ],
+            ));
+        }
+        p
+    };
     let path = out.join("sweep.png");
     panels_png(&path, &format!("sweep over {key}"), &panels, 2).map_err(output)?;
     say!("{}", path.display());

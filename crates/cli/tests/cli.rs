@@ -21,7 +21,14 @@ fn check_json_has_the_interface_keys() {
     let o = spindrift(&["check", "configs/demo.toml", "--json"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let v: Value = serde_json::from_slice(&o.stdout).expect("json");
-    for k in ["spins", "memory_estimate_bytes", "energy_initial", "curie_mean_field", "curie_rpa", "recommended_dt"] {
+    for k in [
+        "spins",
+        "memory_estimate_bytes",
+        "energy_initial",
+        "curie_mean_field",
+        "curie_rpa",
+        "recommended_dt",
+    ] {
         assert!(v.get(k).is_some(), "missing {k}");
     }
     for k in ["total", "exchange", "dmi", "anisotropy", "zeeman"] {
@@ -85,14 +92,20 @@ fn bad_input_is_reported_with_exit_code_2() {
     assert_eq!(spindrift(&["check", "no/such.toml"]).status.code(), Some(2));
     let o = spindrift(&["check", "configs/demo.toml", "--set", "lattice.cells.7=3"]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
-    assert_eq!(spindrift(&["run", "configs/demo.toml", "--threads", "0", "--out", dir.join("x").to_str().unwrap()]).status.code(), Some(2));
+    assert_eq!(
+        spindrift(&["run", "configs/demo.toml", "--threads", "0", "--out", dir.join("x").to_str().unwrap()])
+            .status
+            .code(),
+        Some(2)
+    );
 }
 
 const FILM: &str = "tests/configs/evolve-small.toml";
 const BIG: &str = "lattice.cells=[48,48,3]";
 
 fn run_film(out: &Path, threads: &str, extra: &[&str]) -> std::process::Output {
-    let mut args = vec!["run", FILM, "--out", out.to_str().unwrap(), "--threads", threads, "--set", BIG, "-q"];
+    let mut args =
+        vec!["run", FILM, "--out", out.to_str().unwrap(), "--threads", threads, "--set", BIG, "-q"];
     args.extend_from_slice(extra);
     spindrift(&args)
 }
@@ -115,7 +128,10 @@ fn assert_same_run(a: &Path, b: &Path) {
     }
     assert!(compared > 10, "only {compared} datasets");
     let (fa, fb) = (ra.final_spins().unwrap().unwrap(), rb.final_spins().unwrap().unwrap());
-    assert!(fa.iter().flatten().zip(fb.iter().flatten()).all(|(x, y)| x.to_bits() == y.to_bits()), "final spins differ");
+    assert!(
+        fa.iter().flatten().zip(fb.iter().flatten()).all(|(x, y)| x.to_bits() == y.to_bits()),
+        "final spins differ"
+    );
 }
 
 /// The same config and seed give bitwise the same output with 1 and 2 threads (two
@@ -131,7 +147,19 @@ fn results_are_identical_for_any_thread_count() {
 
 fn spawn_film(out: &Path) -> Child {
     bin()
-        .args(["run", FILM, "--out", out.to_str().unwrap(), "--threads", "2", "--set", BIG, "--set", "stage.0.duration=\"30 ps\"", "-q"])
+        .args([
+            "run",
+            FILM,
+            "--out",
+            out.to_str().unwrap(),
+            "--threads",
+            "2",
+            "--set",
+            BIG,
+            "--set",
+            "stage.0.duration=\"30 ps\"",
+            "-q",
+        ])
         .stdout(Stdio::null())
         .stderr(Stdio::piped())
         .spawn()
@@ -153,7 +181,11 @@ fn wait_for_rows(dir: &Path, rows: usize) {
 }
 
 fn signal(child: &Child, sig: &str) {
-    let ok = std::process::Command::new("kill").args([sig, &child.id().to_string()]).status().expect("kill").success();
+    let ok = std::process::Command::new("kill")
+        .args([sig, &child.id().to_string()])
+        .status()
+        .expect("kill")
+        .success();
     assert!(ok);
 }
 
@@ -172,7 +204,17 @@ fn sigterm_then_resume_equals_an_uninterrupted_run() {
     let status = child.wait().unwrap();
     assert_eq!(status.code(), Some(143));
     assert!(stopped.join("checkpoint.h5").exists());
-    let o = spindrift(&["run", FILM, "--resume", stopped.to_str().unwrap(), "--set", BIG, "--set", "stage.0.duration=\"30 ps\"", "-q"]);
+    let o = spindrift(&[
+        "run",
+        FILM,
+        "--resume",
+        stopped.to_str().unwrap(),
+        "--set",
+        BIG,
+        "--set",
+        "stage.0.duration=\"30 ps\"",
+        "-q",
+    ]);
     assert_eq!(o.status.code(), Some(0), "{}", stderr(&o));
     assert!(!stopped.join("checkpoint.h5").exists());
     assert_same_run(&straight, &stopped);
@@ -180,13 +222,22 @@ fn sigterm_then_resume_equals_an_uninterrupted_run() {
     // the stages and the final spins.
     for path in ["/stage_000", "/stage_001", "/final"] {
         let out = std::process::Command::new("h5diff")
-            .args(["-c", "-r", straight.join("run.h5").to_str().unwrap(), stopped.join("run.h5").to_str().unwrap(), path, path])
+            .args([
+                "-c",
+                "-r",
+                straight.join("run.h5").to_str().unwrap(),
+                stopped.join("run.h5").to_str().unwrap(),
+                path,
+                path,
+            ])
             .output()
             .expect("h5diff (apt-get install hdf5-tools)");
         let text = String::from_utf8_lossy(&out.stdout);
-        let differs = text.lines().any(|l| l.contains("differences found") && !l.trim_start().starts_with("0 "));
+        let differs =
+            text.lines().any(|l| l.contains("differences found") && !l.trim_start().starts_with("0 "));
         // Empty datasets (a stage without snapshots) are "not comparable" to h5diff.
-        let incomparable = text.lines().any(|l| l.starts_with("Not comparable") && !l.contains("empty dataset"));
+        let incomparable =
+            text.lines().any(|l| l.starts_with("Not comparable") && !l.contains("empty dataset"));
         assert!(out.status.success() && !differs && !incomparable, "{path}: {text}");
     }
     // Resuming with another config is refused.
@@ -201,7 +252,8 @@ fn max_wall_stops_with_a_checkpoint() {
     let o = run_film(&dir, "2", &["--set", "stage.0.duration=\"200 ps\"", "--max-wall", "1 s"]);
     assert_eq!(o.status.code(), Some(75), "{}", stderr(&o));
     assert!(dir.join("checkpoint.h5").exists());
-    let summary: Value = serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    let summary: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
     assert!(summary["stages"].as_array().unwrap().is_empty());
     let o = spindrift(&["inspect", dir.to_str().unwrap()]);
     assert!(o.status.success());
@@ -236,7 +288,11 @@ fn run_file_layout_read_by_h5dump() {
     assert!(o.status.success(), "{}", stderr(&o));
     let h5 = dir.join("run.h5");
     let dump = |args: &[&str]| -> String {
-        let o = std::process::Command::new("h5dump").args(args).arg(&h5).output().expect("h5dump (apt-get install hdf5-tools)");
+        let o = std::process::Command::new("h5dump")
+            .args(args)
+            .arg(&h5)
+            .output()
+            .expect("h5dump (apt-get install hdf5-tools)");
         assert!(o.status.success(), "h5dump {args:?}: {}", String::from_utf8_lossy(&o.stderr));
         String::from_utf8_lossy(&o.stdout).into_owned()
     };
@@ -265,7 +321,8 @@ fn run_file_layout_read_by_h5dump() {
     assert!(shape.contains("( 4, 1728, 3 )"), "{shape}");
     let root = dump(&["-a", "/format"]);
     assert!(root.contains("spindrift-run"));
-    let summary: Value = serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    let summary: Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
     for k in ["spins", "threads", "wall_seconds", "stages"] {
         assert!(summary.get(k).is_some(), "summary.{k}");
     }
@@ -341,11 +398,15 @@ fn sweep_shards_merge_to_the_same_table() {
 #[test]
 fn stopped_sweep_point_is_resumed() {
     let dir = temp_dir("sweep-stop");
-    let long = SWEEP_CONFIG.replace("cells = [12, 12, 1]", "cells = [72, 72, 1]").replace("\"2 ps\"", "\"20 ps\"");
+    let long =
+        SWEEP_CONFIG.replace("cells = [12, 12, 1]", "cells = [72, 72, 1]").replace("\"2 ps\"", "\"20 ps\"");
     let cfg = write_config(&dir, "s.toml", &long);
     let c = cfg.to_str().unwrap();
     let args = |out: &Path| -> Vec<String> {
-        ["sweep", c, "--out", out.to_str().unwrap(), "--vary", "stage.0.temperature=5,20"].iter().map(|s| s.to_string()).collect()
+        ["sweep", c, "--out", out.to_str().unwrap(), "--vary", "stage.0.temperature=5,20"]
+            .iter()
+            .map(|s| s.to_string())
+            .collect()
     };
     let straight = dir.join("straight");
     let o = bin().args(args(&straight)).output().unwrap();

@@ -60,7 +60,9 @@ fn relaxed_skyrmion_has_charge_minus_one() {
 /// Uniform and helix states carry no topological charge (Berg and Lüscher 1981).
 #[test]
 fn uniform_and_helix_have_no_charge() {
-    for initial in ["state = \"uniform\"\ndirection = [0.3, 0.2, 1.0]", "state = \"helix\"\nwavevector = [0.2094, 0, 0]"] {
+    for initial in
+        ["state = \"uniform\"\ndirection = [0.3, 0.2, 1.0]", "state = \"helix\"\nwavevector = [0.2094, 0, 0]"]
+    {
         let cfg = format!(
             "[lattice]\npreset = \"square\"\na = 3.0\ncells = [30, 30, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\n[[exchange]]\nshell = 1\nj = 10.0\n[initial]\n{initial}\n[[stage]]\nkind = \"evolve\"\nduration = 0.01\ndt = 0.001\n"
         );
@@ -115,7 +117,10 @@ fn stoner_wohlfarth_switching_fields() {
     for (angle, expected) in [(0.001, bk), (45.0, 0.5 * bk)] {
         let (down, up) = stoner_wohlfarth_coercivity(angle);
         for b in [down, up] {
-            assert!((b - expected).abs() < 0.01 * expected, "angle {angle}: coercive {b} T, expected {expected} T");
+            assert!(
+                (b - expected).abs() < 0.01 * expected,
+                "angle {angle}: coercive {b} T, expected {expected} T"
+            );
         }
     }
 }
@@ -172,7 +177,11 @@ fn heisenberg_curie_temperature_from_binder_crossing() {
         .collect();
     let crossing = binder_crossing(&curves, 5).expect("Binder cumulants cross");
     let t = crossing.estimate.value;
-    assert!((t - tc).abs() < 0.02 * tc, "Binder crossing {t:.2} K +- {:.2}, reference {tc:.2} K", crossing.estimate.error);
+    assert!(
+        (t - tc).abs() < 0.02 * tc,
+        "Binder crossing {t:.2} K +- {:.2}, reference {tc:.2} K",
+        crossing.estimate.error
+    );
     let mf = curie_estimates(&system(&format!(
         "[lattice]\npreset = \"simple-cubic\"\na = 2.5\ncells = [10, 10, 10]\n[[species]]\nname = \"H\"\nmoment = 2.0\n[[exchange]]\nshell = 1\nj = {j}\n"
     ))

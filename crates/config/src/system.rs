@@ -34,6 +34,9 @@ pub struct SystemBuild {
     pub couplings: Vec<CouplingReport>,
     /// Species names in order.
     pub species_names: Vec<String>,
+    /// Couplings that the crystal has but this supercell cannot hold (e.g. interlayer
+    /// exchange in a monolayer), reported rather than refused.
+    pub warnings: Vec<String>,
 }
 
 fn lattice_error(loaded: &Loaded, e: LatticeError) -> ConfigError {
@@ -191,6 +194,7 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
 
     let mut bonds = BondList::new(nb);
     let mut couplings = Vec::new();
+    let mut warnings = Vec::new();
     let shell_ref = |key: &str,
                      shell: Option<usize>,
                      distance: Option<&crate::Quantity>|
@@ -222,9 +226,10 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
             dmi: None,
             pair: pair_of(&key, &e.pair)?,
         };
-        let found =
-            add_shell(&cell, &mut bonds, &spec).map_err(|err| loaded.error_at(&key, err.to_string()))?;
-        couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs });
+        match add_shell(&cell, &mut bonds, &spec) {
+            Ok(found) => couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs }),
+            Err(err) => absent(loaded, &cell, &spec, &key, err, &mut warnings)?,
+        }
     }
     let layer_normal = cell.crystal().layer_normal();
     for (k, d) in raw.dmi.iter().enumerate() {
@@ -248,9 +253,10 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
             dmi: Some((loaded.quantity(&format!("{key}.d"), &d.d, Dimension::Energy)?, kind)),
             pair: pair_of(&key, &d.pair)?,
         };
-        let found =
-            add_shell(&cell, &mut bonds, &spec).map_err(|err| loaded.error_at(&key, err.to_string()))?;
-        couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs });
+        match add_shell(&cell, &mut bonds, &spec) {
+            Ok(found) => couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs }),
+            Err(err) => absent(loaded, &cell, &spec, &key, err, &mut warnings)?,
+        }
     }
     let bond_vector = |from: usize, to: usize, o: [i32; 3]| -> Vec3 {
         let c = cell.crystal();
@@ -375,7 +381,35 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
     let species_names = species.iter().map(|s| s.name.clone()).collect();
     let hamiltonian = Hamiltonian::new(cell, species, bonds, field)
         .map_err(|e| loaded.error_at("species", e.to_string()))?;
-    Ok(SystemBuild { hamiltonian, couplings, species_names })
+    Ok(SystemBuild { hamiltonian, couplings, species_names, warnings })
+}
+
+/// A shell coupling found no pairs. If the bulk crystal has them, only the supercell's
+/// open boundaries cut them (a monolayer has no interlayer bonds): a warning. Otherwise
+/// the entry is wrong: an error.
+fn absent(
+    loaded: &Loaded,
+    cell: &Supercell,
+    spec: &ShellCoupling,
+    key: &str,
+    err: spindrift_hamiltonian::NoNeighbours,
+    warnings: &mut Vec<String>,
+) -> Result<(), ConfigError> {
+    let bulk = Supercell::new(cell.crystal().clone(), [4, 4, 4], [true; 3], 0)
+        .map_err(|e| lattice_error(loaded, e))?;
+    let mut probe = BondList::new(cell.basis_len());
+    match add_shell(&bulk, &mut probe, spec) {
+        Ok(found) => {
+            warnings.push(format!(
+                "{key}: no pairs at {:.4} Å fit in this supercell (cells {:?}, periodic {:?}); the coupling is left out",
+                found.distance,
+                cell.cells(),
+                cell.periodic()
+            ));
+            Ok(())
+        }
+        Err(_) => Err(loaded.error_at(key, err.to_string())),
+    }
 }
 
 /// `1.5 GiB`-style rendering.

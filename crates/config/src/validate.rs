@@ -41,7 +41,7 @@ pub fn validate(loaded: &Loaded, memory_limit: Option<u64>) -> Result<Validated,
     let sys = system::build(loaded, memory_limit)?;
     let h = sys.hamiltonian;
     let dt = recommended_dt(&h);
-    let mut warnings = Vec::new();
+    let mut warnings = sys.warnings;
     let protocol = protocol::build(loaded, &SystemDefaults { dt, field: h.field() }, &mut warnings)?;
     let bonds: u64 = (0..h.cell().basis_len()).map(|b| h.bonds().from_basis(b).len() as u64).sum();
     let memory_estimate_bytes = h.len() as u64 * system::BYTES_PER_SPIN + bonds * 160 + 4096;

@@ -43,6 +43,11 @@ use spindrift_lattice::{dot, Vec3};
 /// Largest angle, rad, by which any spin may turn in one iteration.
 pub const MAX_TURN: f64 = 0.3;
 
+/// Step without curvature information, in units of the inverse of
+/// [`Hamiltonian::max_field_bound`] (dimensionless; an explicit Euler step of the
+/// damping flow with this step is stable for any curvature the system can have).
+pub const FIRST_STEP: f64 = 0.5;
+
 /// Parameters of a minimisation.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct RelaxParams {
@@ -244,8 +249,11 @@ impl Relaxer {
             bb.min(cap)
         } else {
             // No usable curvature yet (first iteration, or s.y <= 0 away from a
-            // minimum): turn the fastest spin by the largest angle allowed.
-            cap
+            // minimum): an explicit step of the damping flow that is small against the
+            // stiffest curvature the Hamiltonian can have, so that a spin in a shallow
+            // metastable well (a hysteresis loop just below its switching field) is not
+            // thrown over the barrier before the curvature is known.
+            cap.min(FIRST_STEP / h.max_field_bound().max(f64::MIN_POSITIVE))
         };
 
         // Pass B: move, and keep what the next step length needs.

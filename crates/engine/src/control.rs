@@ -79,7 +79,15 @@ impl Control {
     /// Control with the given stop flag, deadline and checkpoint interval.
     pub fn new(stop: Arc<AtomicI32>, deadline: Option<Instant>, checkpoint_every: Option<Duration>) -> Self {
         let now = Instant::now();
-        Self { stop, deadline, checkpoint_every, flush_every: FLUSH_EVERY, last_checkpoint: now, last_flush: now, polls: 0 }
+        Self {
+            stop,
+            deadline,
+            checkpoint_every,
+            flush_every: FLUSH_EVERY,
+            last_checkpoint: now,
+            last_flush: now,
+            polls: 0,
+        }
     }
 
     /// Called at every safe point. Clock reads are thinned out: the flag is an atomic

@@ -39,6 +39,9 @@ pub struct RunSummary {
     pub wall_seconds: f64,
     /// Summaries of the finished stages, in order.
     pub stages: Vec<StageSummary>,
+    /// Named estimates of the system made before the run (e.g. `curie_mean_field`,
+    /// `curie_rpa`, K), written as the object `estimates`.
+    pub estimates: Vec<(String, f64)>,
 }
 
 /// Keys of a stage object that [`StageSummary::extra`] entries must not overwrite.
@@ -117,6 +120,7 @@ pub fn summary_json(summary: &RunSummary) -> Value {
         "threads": summary.threads,
         "wall_seconds": num(summary.wall_seconds),
         "stages": summary.stages.iter().map(stage_json).collect::<Vec<_>>(),
+        "estimates": summary.estimates.iter().map(|(k, v)| (k.clone(), num(*v))).collect::<Map<_, _>>(),
     })
 }
 

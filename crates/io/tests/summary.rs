@@ -31,13 +31,16 @@ fn summary_json_has_the_interface_keys() {
         threads: 2,
         wall_seconds: 12.5,
         stages: vec![summary(0, "evolve"), scan, summary(2, "field-loop"), relax],
+        estimates: vec![("curie_mean_field".into(), 600.5), ("curie_rpa".into(), f64::NAN)],
     };
     write_summary(tmp.path(), &run).unwrap();
     let text = std::fs::read_to_string(tmp.path().join("summary.json")).unwrap();
     let v: Value = serde_json::from_str(&text).expect("valid JSON");
     assert_eq!(read_summary(tmp.path()).unwrap(), v);
 
-    assert_eq!(keys(&v), set(&["spins", "threads", "wall_seconds", "stages"]));
+    assert_eq!(keys(&v), set(&["spins", "threads", "wall_seconds", "stages", "estimates"]));
+    assert_eq!(v["estimates"]["curie_mean_field"], 600.5);
+    assert!(v["estimates"]["curie_rpa"].is_null());
     assert_eq!(v["spins"], 9216);
     assert_eq!(v["threads"], 2);
     assert_eq!(v["wall_seconds"], 12.5);

@@ -19,7 +19,9 @@ pub fn run_memory(toml: &str) -> MemorySink {
     let v = system(toml);
     let mut sink = MemorySink::default();
     let mut monitor = Silent;
-    let mut runner = Runner::new(v.hamiltonian.clone(), &v.protocol, &mut sink, &mut monitor, Control::default()).expect("runner");
+    let mut runner =
+        Runner::new(v.hamiltonian.clone(), &v.protocol, &mut sink, &mut monitor, Control::default())
+            .expect("runner");
     match runner.run(None).expect("run") {
         Outcome::Finished(_) => {}
         other => panic!("run did not finish: {other:?}"),

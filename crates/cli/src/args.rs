@@ -86,6 +86,10 @@ pub struct SweepArgs {
     /// Worker threads per run.
     #[arg(long, value_name = "N")]
     pub threads: Option<usize>,
+    /// Stop with a checkpoint after this wall-clock time for the whole sweep (`11.5 h`);
+    /// running the sweep again resumes.
+    #[arg(long, value_name = "DURATION")]
+    pub max_wall: Option<String>,
     /// Override a config value for every point.
     #[arg(long = "set", value_name = "KEY=VALUE")]
     pub set: Vec<String>,

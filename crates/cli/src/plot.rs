@@ -38,14 +38,14 @@ pub fn plot(args: &PlotArgs) -> Outcome {
         let n_points = reader.shape(&format!("{points}/temperature")).map(|s| s[0]).unwrap_or(0);
         if n_points > 0 && s.kind == "field-loop" {
             let path = out.join(format!("{prefix}_loop.png"));
-            loop_figure(&reader, &points, &format!("{title}: hysteresis loop (stage {})", s.index), &path)?;
+            loop_figure(&reader, &points, &format!("{title} (stage {})", s.index), &path)?;
             written.push(path);
         } else if n_points > 1 {
             let path = out.join(format!("{prefix}_scan.png"));
             scan_figure(
                 &reader,
                 &points,
-                &format!("{title}: temperature scan (stage {}; model estimates)", s.index),
+                &format!("{title} (stage {}; model estimates)", s.index),
                 &path,
             )?;
             written.push(path);

@@ -136,6 +136,13 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
         }
     }
     let shard = args.shard.as_deref().map(parse_shard).transpose()?;
+    let started = std::time::Instant::now();
+    let max_wall = args
+        .max_wall
+        .as_deref()
+        .map(spindrift_config::parse_wall_duration)
+        .transpose()
+        .map_err(|e| bad_input(anyhow!("--max-wall: {}", e.message_for("--max-wall"))))?;
     let dir = args.out.clone().unwrap_or_else(|| default_out(&args.config, "-sweep"));
     let base = load(&args.config, &args.set).map_err(bad_input)?;
     let base_seed = base.raw.seed.unwrap_or(0);
@@ -192,13 +199,24 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
         std::fs::create_dir_all(&pdir)
             .map_err(|e| output(anyhow!("cannot create {}: {e}", pdir.display())))?;
         eprintln!("point {k} ({}){}", describe(&varies, &points[k]), if resume { ": resuming" } else { "" });
+        let remaining = match max_wall {
+            Some(limit) => {
+                let left = limit.saturating_sub(started.elapsed());
+                if left.is_zero() {
+                    eprintln!("sweep: --max-wall reached before point {k}; run the sweep again to go on");
+                    return Ok(exit::WALL_LIMIT);
+                }
+                Some(format!("{} s", left.as_secs_f64()))
+            }
+            None => None,
+        };
         let run_args = RunArgs {
             config: args.config.clone(),
             out: if resume { None } else { Some(pdir.clone()) },
             set: sets,
             threads: None,
             resume: resume.then(|| pdir.clone()),
-            max_wall: None,
+            max_wall: remaining,
             quiet: true,
         };
         let (code, message) = match crate::run::run(&run_args) {
@@ -499,7 +517,8 @@ pub fn plot_merged(dir: &Path, out: &Path) -> Outcome {
         p
     };
     let path = out.join("sweep.png");
-    panels_png(&path, &format!("sweep over {key}"), &panels, 2).map_err(output)?;
+    let title = if key == "lattice.cells" { "Curie temperature against thickness".to_string() } else { format!("sweep over {key}") };
+    panels_png(&path, &title, &panels, 2).map_err(output)?;
     say!("{}", path.display());
     Ok(OK)
 }

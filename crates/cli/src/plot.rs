@@ -42,12 +42,7 @@ pub fn plot(args: &PlotArgs) -> Outcome {
             written.push(path);
         } else if n_points > 1 {
             let path = out.join(format!("{prefix}_scan.png"));
-            scan_figure(
-                &reader,
-                &points,
-                &format!("{title} (stage {}; model estimates)", s.index),
-                &path,
-            )?;
+            scan_figure(&reader, &points, &format!("{title} (stage {}; model estimates)", s.index), &path)?;
             written.push(path);
         }
     }

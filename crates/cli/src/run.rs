@@ -86,6 +86,7 @@ pub fn run(args: &RunArgs) -> Outcome {
             )));
         }
         let mut file = RunFile::reopen(dir, &checkpoint.rows).map_err(output)?;
+        file.set_snapshot_compression(v.snapshot_compression);
         let end = {
             let mut runner = Runner::resume(
                 v.hamiltonian.clone(),
@@ -110,6 +111,7 @@ pub fn run(args: &RunArgs) -> Outcome {
         }
         std::fs::create_dir_all(&dir).map_err(|e| output(anyhow!("cannot create {}: {e}", dir.display())))?;
         let mut file = RunFile::create(&dir).map_err(output)?;
+        file.set_snapshot_compression(v.snapshot_compression);
         let head = header(&loaded, &v);
         let end = {
             let mut runner =

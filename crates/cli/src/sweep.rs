@@ -517,7 +517,11 @@ pub fn plot_merged(dir: &Path, out: &Path) -> Outcome {
         p
     };
     let path = out.join("sweep.png");
-    let title = if key == "lattice.cells" { "Curie temperature against thickness".to_string() } else { format!("sweep over {key}") };
+    let title = if key == "lattice.cells" {
+        "Curie temperature against thickness".to_string()
+    } else {
+        format!("sweep over {key}")
+    };
     panels_png(&path, &title, &panels, 2).map_err(output)?;
     say!("{}", path.display());
     Ok(OK)

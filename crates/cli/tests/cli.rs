@@ -430,3 +430,41 @@ fn stopped_sweep_point_is_resumed() {
         assert_same_run(&straight.join(&p), &stopped.join(&p));
     }
 }
+
+/// `[output] snapshot_compression = false` stores snapshots without a deflate filter, as
+/// h5dump (The HDF Group) reports; the default compresses.
+#[test]
+fn snapshot_compression_can_be_turned_off() {
+    let dir = temp_dir("compression");
+    let text = std::fs::read_to_string(repo().join(FILM)).unwrap().replace(
+        "[[stage]]\nkind = \"metropolis\"",
+        "[output]\nsnapshot_compression = false\n\n[[stage]]\nkind = \"metropolis\"",
+    );
+    let cfg = write_config(&dir, "c.toml", &text);
+    for (name, extra) in [("plain", vec!["--set", "output.snapshot_compression=false"]), ("deflate", vec![])]
+    {
+        let out = dir.join(name);
+        let mut args = vec![
+            "run",
+            cfg.to_str().unwrap(),
+            "--out",
+            out.to_str().unwrap(),
+            "-q",
+            "--set",
+            "stage.0.duration=\"2 ps\"",
+        ];
+        args.extend(extra);
+        if name == "deflate" {
+            args.extend(["--set", "output.snapshot_compression=true"]);
+        }
+        let o = spindrift(&args);
+        assert!(o.status.success(), "{}", stderr(&o));
+        let d = std::process::Command::new("h5dump")
+            .args(["-p", "-H", "-d", "/stage_000/snapshots/spins"])
+            .arg(out.join("run.h5"))
+            .output()
+            .unwrap();
+        let text = String::from_utf8_lossy(&d.stdout);
+        assert_eq!(text.contains("DEFLATE"), name == "deflate", "{name}: {text}");
+    }
+}

@@ -217,3 +217,72 @@ fn heisenberg_scan_short(seed: u64, t: f64) -> spindrift_engine::PointRow {
     );
     run_memory(&cfg).points[0][0].clone()
 }
+
+/// A temperature scan by stochastic LLG samples the Boltzmann distribution: free spins
+/// in a field give <m.b> = L(x) = coth x - 1/x with x = mu muB B / (kB T) (Langevin
+/// function, any statistical-mechanics textbook), within 1.5% (the Heun thermal bias at
+/// 2 fs is a few tenths of a percent; the rest is sampling).
+#[test]
+fn llg_temperature_scan_follows_the_langevin_function() {
+    let cfg = r#"
+seed = 9
+[lattice]
+preset = "simple-cubic"
+a = 3.0
+cells = [16, 16, 16]
+periodic = [false, false, false]
+[[species]]
+name = "F"
+moment = 2.0
+damping = 0.5
+[field]
+b = [0, 0, 10.0]
+[initial]
+state = "random"
+[[stage]]
+kind = "temperature-scan"
+method = "llg"
+temperatures = [7.0, 14.0]
+dt = "2 fs"
+equilibrate = 2000
+measure = 6000
+observe_every = 20
+"#;
+    let sink = run_memory(cfg);
+    for p in &sink.points[0] {
+        let x = 2.0 * MU_B * 10.0 / (K_B * p.temperature);
+        let langevin = 1.0 / x.tanh() - 1.0 / x;
+        let mz = p.magnetization[2];
+        assert!(
+            (mz - langevin).abs() < 0.015 * langevin,
+            "T = {}: <m_z> = {mz}, L(x) = {langevin}",
+            p.temperature
+        );
+    }
+}
+
+/// A diverging integration stops with a numerical error naming the stage, step and site,
+/// and the spins saved as final are the last good (finite, unit) state.
+#[test]
+fn diverging_dynamics_stop_with_the_last_good_state() {
+    use spindrift_engine::{Control, EngineError, MemorySink, Runner, Silent, StageKind};
+    let mut v = system(
+        "[lattice]\npreset = \"square\"\na = 3.0\ncells = [8, 8, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\n[[exchange]]\nshell = 1\nj = 10.0\n[initial]\nstate = \"random\"\n[[stage]]\nkind = \"evolve\"\nduration = 0.01\n",
+    );
+    // A step no config would accept (the validator refuses dt far above the recommended
+    // one); set directly on the validated protocol to force the failure.
+    if let StageKind::Evolve { dt, duration, .. } = &mut v.protocol.stages[0].kind {
+        *dt = 1e300;
+        *duration = 1e301;
+    }
+    let mut sink = MemorySink::default();
+    let mut monitor = Silent;
+    let mut runner =
+        Runner::new(v.hamiltonian.clone(), &v.protocol, &mut sink, &mut monitor, Control::default()).unwrap();
+    let err = runner.run(None).expect_err("must diverge");
+    drop(runner);
+    assert!(matches!(err, EngineError::NonFinite { stage: 0, .. }), "{err}");
+    let last = sink.final_spins.expect("last good state saved");
+    assert!(last.iter().all(|s| s.iter().all(|x| x.is_finite())
+        && ((s[0] * s[0] + s[1] * s[1] + s[2] * s[2]).sqrt() - 1.0).abs() < 1e-12));
+}

@@ -63,6 +63,7 @@ pub struct RunFile {
     sites: Option<usize>,
     stages: BTreeMap<usize, StageWriter>,
     block_rows: usize,
+    compress_snapshots: bool,
 }
 
 impl RunFile {
@@ -83,6 +84,7 @@ impl RunFile {
             sites: None,
             stages: BTreeMap::new(),
             block_rows: DEFAULT_BLOCK_ROWS,
+            compress_snapshots: true,
         })
     }
 
@@ -144,10 +146,18 @@ impl RunFile {
             sites,
             stages,
             block_rows: DEFAULT_BLOCK_ROWS,
+            compress_snapshots: true,
         })
     }
 
-    /// Sets how many rows each table buffers before writing a block (at least 1).
+    /// Whether snapshots of stages begun from now on are deflate-compressed (default
+    /// true; compression saves space on smooth textures and costs time on large ones).
+    pub fn set_snapshot_compression(&mut self, on: bool) {
+        self.compress_snapshots = on;
+    }
+
+    /// Sets how many rows each table buffers before writing a block (at least 1; default
+    /// [`DEFAULT_BLOCK_ROWS`]).
     pub fn set_block_rows(&mut self, rows: usize) {
         self.block_rows = rows.max(1);
     }
@@ -286,6 +296,7 @@ impl RunFile {
             info.layer_count,
             info.species_count,
             sites,
+            self.compress_snapshots,
             &path,
         )?;
         self.stages.insert(info.index, stage);

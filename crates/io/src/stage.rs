@@ -284,6 +284,7 @@ impl StageWriter {
         layers: usize,
         species: usize,
         sites: usize,
+        compress: bool,
         file: &Path,
     ) -> Result<Self, IoError> {
         let name = stage_group_name(index);
@@ -299,7 +300,7 @@ impl StageWriter {
         set_str_attr(&group, "kind", kind).ctx(file, || format!("writing attribute kind of /{name}"))?;
         let sg = group.create_group("series").ctx(file, || format!("creating group /{name}/series"))?;
         let series = SeriesTable::from_columns(create_columns(&sg, &series_specs(layers, species), file)?);
-        let snapshots = Self::create_snapshots(&group, sites, file)?;
+        let snapshots = Self::create_snapshots(&group, sites, compress, file)?;
         Ok(StageWriter {
             kind: kind.to_owned(),
             group,
@@ -312,7 +313,12 @@ impl StageWriter {
         })
     }
 
-    fn create_snapshots(group: &Group, sites: usize, file: &Path) -> Result<SnapshotTable, IoError> {
+    fn create_snapshots(
+        group: &Group,
+        sites: usize,
+        compress: bool,
+        file: &Path,
+    ) -> Result<SnapshotTable, IoError> {
         let g = group
             .create_group("snapshots")
             .ctx(file, || format!("creating group {}/snapshots", group.name()))?;
@@ -327,7 +333,7 @@ impl StageWriter {
                 Elem::F64,
                 &[sites, 3],
                 Some(1),
-                Some(SNAPSHOT_DEFLATE),
+                compress.then_some(SNAPSHOT_DEFLATE),
                 file,
             )?,
         })

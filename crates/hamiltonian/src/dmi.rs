@@ -8,8 +8,8 @@
 //! normal (in-plane, perpendicular to the bond), bulk `D_ij = d r_ij/|r_ij|`
 //! (see [`interfacial_vector`] and [`bulk_vector`]).
 
-use crate::term::Term;
-use spindrift_lattice::{cross, dot, norm, BondList, Supercell, Vec3};
+use crate::term::PairTerm;
+use spindrift_lattice::{cross, norm, BondList, Supercell, Vec3};
 
 /// Interfacial DMI vector `d (n x r/|r|)`, meV.
 pub fn interfacial_vector(d: f64, normal: Vec3, r: Vec3) -> Vec3 {
@@ -52,6 +52,10 @@ impl Dmi {
             .collect();
         Self { per_basis }
     }
+}
+
+impl PairTerm for Dmi {
+    const NAME: &'static str = "dmi";
 
     fn pair_gradient(&self, cell: &Supercell, spins: &[Vec3], i: usize) -> Vec3 {
         let (c, b) = cell.decompose(i);
@@ -67,32 +71,10 @@ impl Dmi {
     }
 }
 
-impl Term for Dmi {
-    fn name(&self) -> &'static str {
-        "dmi"
-    }
-
-    fn energy(&self, cell: &Supercell, spins: &[Vec3]) -> f64 {
-        (0..spins.len()).map(|i| -0.5 * dot(spins[i], self.pair_gradient(cell, spins, i))).sum()
-    }
-
-    fn site_energy(&self, cell: &Supercell, spins: &[Vec3], i: usize, s: Vec3) -> f64 {
-        -dot(s, self.pair_gradient(cell, spins, i))
-    }
-
-    fn add_gradient(&self, cell: &Supercell, spins: &[Vec3], out: &mut [Vec3]) {
-        for (i, o) in out.iter_mut().enumerate() {
-            let h = self.pair_gradient(cell, spins, i);
-            for a in 0..3 {
-                o[a] += h[a];
-            }
-        }
-    }
-}
-
 #[cfg(test)]
 mod tests {
     use super::*;
+    use spindrift_lattice::dot;
 
     /// Interfacial DMI vectors lie in the plane and perpendicular to their bond, and the
     /// reverse bond carries -D (definition in INTERFACE.md; common practice).

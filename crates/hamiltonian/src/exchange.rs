@@ -4,7 +4,7 @@
 //! Gradient `-dE/dS_i = sum_j (J_ij S_j + T_ij S_j)`. Bonds are stored in both
 //! directions with `T_ji = T_ij^T`, so the energy is half the sum over directed bonds.
 
-use crate::term::Term;
+use crate::term::PairTerm;
 use spindrift_lattice::{dot, BondList, Supercell, Vec3};
 
 #[derive(Debug, Clone)]
@@ -41,6 +41,10 @@ impl Exchange {
             .collect();
         Self { per_basis }
     }
+}
+
+impl PairTerm for Exchange {
+    const NAME: &'static str = "exchange";
 
     fn pair_gradient(&self, cell: &Supercell, spins: &[Vec3], i: usize) -> Vec3 {
         let (c, b) = cell.decompose(i);
@@ -58,28 +62,5 @@ impl Exchange {
             }
         }
         h
-    }
-}
-
-impl Term for Exchange {
-    fn name(&self) -> &'static str {
-        "exchange"
-    }
-
-    fn energy(&self, cell: &Supercell, spins: &[Vec3]) -> f64 {
-        (0..spins.len()).map(|i| -0.5 * dot(spins[i], self.pair_gradient(cell, spins, i))).sum()
-    }
-
-    fn site_energy(&self, cell: &Supercell, spins: &[Vec3], i: usize, s: Vec3) -> f64 {
-        -dot(s, self.pair_gradient(cell, spins, i))
-    }
-
-    fn add_gradient(&self, cell: &Supercell, spins: &[Vec3], out: &mut [Vec3]) {
-        for (i, o) in out.iter_mut().enumerate() {
-            let h = self.pair_gradient(cell, spins, i);
-            for a in 0..3 {
-                o[a] += h[a];
-            }
-        }
     }
 }

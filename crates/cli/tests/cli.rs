@@ -469,3 +469,27 @@ fn snapshot_compression_can_be_turned_off() {
         assert_eq!(text.contains("DEFLATE"), name == "deflate", "{name}: {text}");
     }
 }
+
+/// `[initial] state = "file"` starts from the final spins of an earlier run folder (path
+/// relative to the config's folder): the second run's first row has the first run's
+/// final energy; a run folder of another size is refused with exit 2.
+#[test]
+fn initial_state_from_an_earlier_run() {
+    let dir = temp_dir("from-file");
+    let first = write_config(&dir, "first.toml", SWEEP_CONFIG);
+    let out = dir.join("first");
+    let o = spindrift(&["run", first.to_str().unwrap(), "--out", out.to_str().unwrap(), "-q"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let second = SWEEP_CONFIG.replace("state = \"random\"", "state = \"file\"\npath = \"first\"");
+    let cfg = write_config(&dir, "second.toml", &second);
+    let o = spindrift(&["run", cfg.to_str().unwrap(), "--out", dir.join("second").to_str().unwrap(), "-q"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let a: Value = serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    let r = RunReader::open(&dir.join("second")).unwrap();
+    let e0 = r.read_1d("/stage_000/series/energy").unwrap()[0];
+    let e1 = a["stages"][0]["final"]["energy"].as_f64().unwrap();
+    assert!((e0 - e1).abs() < 1e-12 * e1.abs(), "{e0} vs {e1}");
+    let o = spindrift(&["check", cfg.to_str().unwrap(), "--set", "lattice.cells=[10,10,1]"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("initial.path"), "{}", stderr(&o));
+}

@@ -112,12 +112,16 @@ pub fn run(args: &RunArgs) -> Outcome {
         std::fs::create_dir_all(&dir).map_err(|e| output(anyhow!("cannot create {}: {e}", dir.display())))?;
         let mut file = RunFile::create(&dir).map_err(output)?;
         file.set_snapshot_compression(v.snapshot_compression);
+        // The header (positions and indices of every site) is written and dropped before
+        // the run, so its ~44 bytes per spin are not held for the whole run.
         let head = header(&loaded, &v);
+        spindrift_engine::Sink::header(&mut file, &head).map_err(output)?;
+        drop(head);
         let end = {
             let mut runner =
                 Runner::new(v.hamiltonian.clone(), &v.protocol, &mut file, &mut progress, control)
                     .map_err(engine_failure)?;
-            runner.run(Some(&head))
+            runner.run(None)
         };
         (dir, file, end)
     };

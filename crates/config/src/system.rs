@@ -8,11 +8,11 @@ use crate::units::{lookup_unit, Dimension};
 use spindrift_hamiltonian::{add_shell, DmiKind, Hamiltonian, ShellCoupling, ShellRef, Species};
 use spindrift_lattice::{preset, BasisSite, BondList, Coupling, Crystal, LatticeError, Supercell, Vec3};
 
-/// Bytes of memory a spin costs in a run: the spins, the Heun predictor and its first
-/// derivative (3 x 24 bytes), plus observers' and snapshot buffers amortised. Kept in
-/// step with the dynamics crate; `check` prints the estimate and the benchmark script
-/// compares it with the measured peak.
-pub const BYTES_PER_SPIN: u64 = 88;
+/// Bytes of memory a spin costs in an `evolve` run: the spins (24) and the Heun
+/// predictor and noise buffers (48), plus a little for observers' scratch; the lattice
+/// header is written and dropped before the run. Measured as peak RSS with
+/// `/usr/bin/time -v` by `scripts/bench` (10^7 spins), which `check` should match to 10%.
+pub const BYTES_PER_SPIN: u64 = 76;
 
 /// One coupling entry and what it found, for `check`.
 #[derive(Debug, Clone, PartialEq)]

@@ -1,6 +1,9 @@
 //! One Heun step (T = 0 and T = 300 K) and one Metropolis sweep on 128 x 128 x 8 simple
 //! cubic with exchange, interfacial DMI on in-plane bonds, anisotropy and a field.
-//! Criterion reports elements (spins) per second; ns per spin-step is its inverse.
+//! Criterion reports elements (spins) per second; ns per spin-step is its inverse. The
+//! second group runs the 300 K step and the sweep in pools of one and two threads, for the
+//! parallel speed-up (the default group uses rayon's global pool). Seeded spins; set-up
+//! (system, colouring, pools) outside the timing.
 
 // criterion_group! defines an undocumented function.
 #![allow(missing_docs)]
@@ -60,6 +63,33 @@ fn bench(c: &mut Criterion) {
             sweep += 1;
         })
     });
+    group.finish();
+
+    let mut group = c.benchmark_group("128x128x8 sc, threads");
+    group.throughput(Throughput::Elements(n as u64));
+    group.sample_size(20);
+    for threads in [1, 2] {
+        let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+        let mut heun = Heun::new(&h, 1);
+        let p = HeunParams { dt: 1e-3, temperature: 300.0 };
+        let mut s = spins.clone();
+        let mut step = 0u64;
+        group.bench_function(format!("heun step T=300 K, {threads} thread(s)"), |b| {
+            b.iter(|| {
+                pool.install(|| heun.step(&h, &mut s, &p, step)).unwrap();
+                step += 1;
+            })
+        });
+        let mut mc = Metropolis::new(&h, 1).unwrap();
+        let mut s = spins.clone();
+        let mut sweep = 0u64;
+        group.bench_function(format!("metropolis sweep T=300 K, {threads} thread(s)"), |b| {
+            b.iter(|| {
+                pool.install(|| mc.sweep(&h, &mut s, 300.0, sweep, false)).unwrap();
+                sweep += 1;
+            })
+        });
+    }
     group.finish();
 }
 

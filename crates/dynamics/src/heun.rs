@@ -32,9 +32,10 @@
 //!
 //! # Memory
 //!
-//! Three arrays of `N` 3-vectors (72 bytes per site): the predictor, the scaled noise, and
-//! the field at the predictor, which afterwards holds the pre-step spins (see
-//! [`Heun::step`] on errors). Nothing is allocated in [`Heun::step`].
+//! Two arrays of `N` 3-vectors (48 bytes per site): the predictor, and the scaled noise,
+//! which the corrector overwrites with the pre-step spins as it consumes it (see
+//! [`Heun::step`] on errors). The field at the predictor lives only in a block of
+//! `BLOCK` (256) sites on the stack. Nothing is allocated in [`Heun::step`].
 
 use crate::error::{check_len, first_bad, StepError};
 use rayon::prelude::*;
@@ -79,6 +80,10 @@ fn llg_rhs(s: Vec3, b: Vec3, gamma_ll: f64, alpha: f64) -> Vec3 {
     [-gamma_ll * (t[0] + alpha * d[0]), -gamma_ll * (t[1] + alpha * d[1]), -gamma_ll * (t[2] + alpha * d[2])]
 }
 
+/// Sites per block within a chunk: the predictor's field and noise, and the corrector's
+/// field buffer on the stack (6 KiB), stay in L1 between being made and being used.
+const BLOCK: usize = 256;
+
 /// The stochastic Heun integrator. It owns only scratch buffers; the caller owns the spins.
 #[derive(Debug, Clone)]
 pub struct Heun {
@@ -86,9 +91,8 @@ pub struct Heun {
     damping: Vec<f64>,
     consts: Vec<SiteConst>,
     predictor: Vec<Vec3>,
+    /// The scaled thermal field of the step; the pre-step spins after the corrector.
     noise: Vec<Vec3>,
-    /// The field at the predictor during the corrector; the pre-step spins after it.
-    scratch: Vec<Vec3>,
 }
 
 impl Heun {
@@ -104,13 +108,12 @@ impl Heun {
             damping,
             predictor: vec![[0.0; 3]; n],
             noise: vec![[0.0; 3]; n],
-            scratch: vec![[0.0; 3]; n],
         }
     }
 
-    /// Bytes of scratch memory per site (the three buffers).
+    /// Bytes of scratch memory per site (the two buffers).
     pub fn bytes_per_site(&self) -> usize {
-        3 * std::mem::size_of::<Vec3>()
+        2 * std::mem::size_of::<Vec3>()
     }
 
     /// Advances `spins` by one step `params.dt` at `params.temperature`, under the
@@ -119,7 +122,7 @@ impl Heun {
     /// run resumes.
     ///
     /// On [`StepError::NonFinite`] the spins are restored to their values before the call
-    /// (the corrector keeps each pre-step spin in a scratch buffer as it overwrites it), so
+    /// (the corrector keeps each pre-step spin in the noise buffer as it overwrites it), so
     /// the caller keeps the last good state without copying it every step. Other errors are
     /// returned before anything is touched. Vacant sites stay `[0, 0, 0]`.
     pub fn step(
@@ -162,32 +165,38 @@ impl Heun {
         {
             let spins: &[Vec3] = spins;
             let predictor_chunk = |start: usize, pred: &mut [Vec3], noise: &mut [Vec3]| {
-                h.field_range(spins, start, pred);
-                if thermal {
-                    stream.fill_gaussian3(step_index, start as u64, noise);
-                }
-                let mut b = start % nb;
-                for k in 0..pred.len() {
-                    let i = start + k;
-                    let c = consts[b];
-                    b += 1;
-                    if b == nb {
-                        b = 0;
-                    }
-                    if occupation.is_some_and(|o| !o[i]) {
-                        pred[k] = [0.0; 3];
-                        continue;
-                    }
-                    let mut field = pred[k];
+                // Blocks of BLOCK sites keep the field and the noise in L1 between being
+                // made and being used.
+                for (block, (pred, noise)) in pred.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate()
+                {
+                    let first = start + block * BLOCK;
+                    h.field_range(spins, first, pred);
                     if thermal {
-                        let g = noise[k];
-                        let th = [c.sigma * g[0], c.sigma * g[1], c.sigma * g[2]];
-                        noise[k] = th;
-                        field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
+                        stream.fill_gaussian3(step_index, first as u64, noise);
                     }
-                    let s = spins[i];
-                    let f = llg_rhs(s, field, c.gamma_ll, c.alpha);
-                    pred[k] = [s[0] + dt * f[0], s[1] + dt * f[1], s[2] + dt * f[2]];
+                    let mut b = first % nb;
+                    for k in 0..pred.len() {
+                        let i = first + k;
+                        let c = consts[b];
+                        b += 1;
+                        if b == nb {
+                            b = 0;
+                        }
+                        if occupation.is_some_and(|o| !o[i]) {
+                            pred[k] = [0.0; 3];
+                            continue;
+                        }
+                        let mut field = pred[k];
+                        if thermal {
+                            let g = noise[k];
+                            let th = [c.sigma * g[0], c.sigma * g[1], c.sigma * g[2]];
+                            noise[k] = th;
+                            field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
+                        }
+                        let s = spins[i];
+                        let f = llg_rhs(s, field, c.gamma_ll, c.alpha);
+                        pred[k] = [s[0] + dt * f[0], s[1] + dt * f[1], s[2] + dt * f[2]];
+                    }
                 }
             };
             if spins.len() <= CHUNK {
@@ -201,62 +210,67 @@ impl Heun {
             }
         }
 
-        // Pass 2: field at P, corrector, renormalisation. Each pre-step spin moves into the
-        // scratch slot its field occupied, so a failure anywhere can be undone.
+        // Pass 2: field at P, corrector, renormalisation. The field at P goes into a small
+        // block on the stack; each pre-step spin moves into the noise slot it has just
+        // consumed, so a failure anywhere can be undone without a third array.
         let predictor = &self.predictor[..];
-        let corrector_chunk = |start: usize, out: &mut [Vec3], scratch: &mut [Vec3], noise: &[Vec3]| {
-            h.field_range(predictor, start, scratch);
+        let corrector_chunk = |start: usize, out: &mut [Vec3], noise: &mut [Vec3]| {
+            let mut field_block = [[0.0; 3]; BLOCK];
             let mut bad = None;
             let mut b = start % nb;
-            for k in 0..out.len() {
-                let i = start + k;
-                let c = consts[b];
-                b += 1;
-                if b == nb {
-                    b = 0;
+            for (block, (out, noise)) in out.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate() {
+                let first = start + block * BLOCK;
+                let fields = &mut field_block[..out.len()];
+                h.field_range(predictor, first, fields);
+                for k in 0..out.len() {
+                    let i = first + k;
+                    let c = consts[b];
+                    b += 1;
+                    if b == nb {
+                        b = 0;
+                    }
+                    let s = out[k];
+                    if occupation.is_some_and(|o| !o[i]) {
+                        noise[k] = s;
+                        continue;
+                    }
+                    let mut field = fields[k];
+                    if thermal {
+                        let th = noise[k];
+                        field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
+                    }
+                    let p = predictor[i];
+                    let f = llg_rhs(p, field, c.gamma_ll, c.alpha);
+                    let v = [
+                        0.5 * (s[0] + p[0] + dt * f[0]),
+                        0.5 * (s[1] + p[1] + dt * f[1]),
+                        0.5 * (s[2] + p[2] + dt * f[2]),
+                    ];
+                    noise[k] = s;
+                    let n2 = dot(v, v);
+                    // One comparison catches NaN, infinity and a collapsed spin alike.
+                    if !(n2.is_finite() && n2 > 0.0) {
+                        bad = first_bad(bad, Some(i));
+                        continue;
+                    }
+                    let inv = 1.0 / n2.sqrt();
+                    out[k] = [v[0] * inv, v[1] * inv, v[2] * inv];
                 }
-                if occupation.is_some_and(|o| !o[i]) {
-                    scratch[k] = out[k];
-                    continue;
-                }
-                let mut field = scratch[k];
-                if thermal {
-                    let th = noise[k];
-                    field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
-                }
-                let p = predictor[i];
-                let f = llg_rhs(p, field, c.gamma_ll, c.alpha);
-                let s = out[k];
-                let v = [
-                    0.5 * (s[0] + p[0] + dt * f[0]),
-                    0.5 * (s[1] + p[1] + dt * f[1]),
-                    0.5 * (s[2] + p[2] + dt * f[2]),
-                ];
-                scratch[k] = s;
-                let n2 = dot(v, v);
-                // One comparison catches NaN, infinity and a collapsed spin alike.
-                if !(n2.is_finite() && n2 > 0.0) {
-                    bad = first_bad(bad, Some(i));
-                    continue;
-                }
-                let inv = 1.0 / n2.sqrt();
-                out[k] = [v[0] * inv, v[1] * inv, v[2] * inv];
             }
             bad
         };
         let bad = if spins.len() <= CHUNK {
-            corrector_chunk(0, spins, &mut self.scratch, &self.noise)
+            corrector_chunk(0, spins, &mut self.noise)
         } else {
             spins
                 .par_chunks_mut(CHUNK)
-                .zip(self.scratch.par_chunks_mut(CHUNK))
-                .zip(self.noise.par_chunks(CHUNK))
+                .zip(self.noise.par_chunks_mut(CHUNK))
                 .enumerate()
-                .map(|(k, ((out, scratch), noise))| corrector_chunk(k * CHUNK, out, scratch, noise))
+                .map(|(k, (out, noise))| corrector_chunk(k * CHUNK, out, noise))
                 .reduce(|| None, first_bad)
         };
         if let Some(site) = bad {
-            spins.par_chunks_mut(CHUNK).zip(self.scratch.par_chunks(CHUNK)).for_each(|(s, old)| {
+            spins.par_chunks_mut(CHUNK).zip(self.noise.par_chunks(CHUNK)).for_each(|(s, old)| {
                 s.copy_from_slice(old);
             });
             return Err(StepError::NonFinite { site, step: step_index });

@@ -66,6 +66,9 @@ pub const SIGMA_START: f64 = 0.5;
 /// Sites per block of a colour.
 pub const BLOCK: usize = 64 * CHUNK;
 
+/// Sites whose random numbers are drawn together, into buffers on the stack (2.3 KiB).
+const DRAWS: usize = 48;
+
 /// Counts of one sweep.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
 pub struct SweepStats {
@@ -193,39 +196,47 @@ impl Metropolis {
                 let decide = |out: &mut [Vec3], sites: &[u32]| {
                     let spins: &[Vec3] = spins;
                     let mut k = Counts::default();
-                    for (o, &site) in out.iter_mut().zip(sites) {
-                        let i = site as usize;
-                        let s = spins[i];
-                        let u = stream.uniform4(unif_step, i as u64);
-                        let cone = u[0] < P_CONE;
-                        let trial = if cone {
-                            let g = stream.gaussian3(gauss_step, i as u64);
-                            let v = [s[0] + sigma * g[0], s[1] + sigma * g[1], s[2] + sigma * g[2]];
-                            let n2 = dot(v, v);
-                            if n2 > 0.0 && n2.is_finite() {
-                                let inv = 1.0 / n2.sqrt();
-                                Some([v[0] * inv, v[1] * inv, v[2] * inv])
+                    // Random numbers in bulk for a few sites at a time (bitwise the per-site
+                    // values), on the stack.
+                    let mut uniforms = [[0.0; 4]; DRAWS];
+                    let mut normals = [[0.0; 3]; DRAWS];
+                    for (out, sites) in out.chunks_mut(DRAWS).zip(sites.chunks(DRAWS)) {
+                        let uniforms = &mut uniforms[..sites.len()];
+                        let normals = &mut normals[..sites.len()];
+                        stream.fill_uniform4_at(unif_step, sites, uniforms);
+                        stream.fill_gaussian3_at(gauss_step, sites, normals);
+                        for (((o, &site), u), g) in out.iter_mut().zip(sites).zip(&*uniforms).zip(&*normals) {
+                            let i = site as usize;
+                            let s = spins[i];
+                            let cone = u[0] < P_CONE;
+                            let trial = if cone {
+                                let v = [s[0] + sigma * g[0], s[1] + sigma * g[1], s[2] + sigma * g[2]];
+                                let n2 = dot(v, v);
+                                if n2 > 0.0 && n2.is_finite() {
+                                    let inv = 1.0 / n2.sqrt();
+                                    Some([v[0] * inv, v[1] * inv, v[2] * inv])
+                                } else {
+                                    None
+                                }
+                            } else if u[0] < P_CONE + P_UNIFORM {
+                                let z = 2.0 * u[1] - 1.0;
+                                let r = (1.0 - z * z).max(0.0).sqrt();
+                                let phi = std::f64::consts::TAU * u[2];
+                                Some([r * phi.cos(), r * phi.sin(), z])
                             } else {
-                                None
+                                Some([-s[0], -s[1], -s[2]])
+                            };
+                            let accepted = trial.filter(|t| {
+                                let de = h.energy_change(spins, i, *t);
+                                de <= 0.0 || u[3] < (-de * beta).exp()
+                            });
+                            *o = accepted.unwrap_or(s);
+                            k.attempted += 1;
+                            k.cone_attempted += cone as u64;
+                            if accepted.is_some() {
+                                k.accepted += 1;
+                                k.cone_accepted += cone as u64;
                             }
-                        } else if u[0] < P_CONE + P_UNIFORM {
-                            let z = 2.0 * u[1] - 1.0;
-                            let r = (1.0 - z * z).max(0.0).sqrt();
-                            let phi = std::f64::consts::TAU * u[2];
-                            Some([r * phi.cos(), r * phi.sin(), z])
-                        } else {
-                            Some([-s[0], -s[1], -s[2]])
-                        };
-                        let accepted = trial.filter(|t| {
-                            let de = h.energy_change(spins, i, *t);
-                            de <= 0.0 || u[3] < (-de * beta).exp()
-                        });
-                        *o = accepted.unwrap_or(s);
-                        k.attempted += 1;
-                        k.cone_attempted += cone as u64;
-                        if accepted.is_some() {
-                            k.accepted += 1;
-                            k.cone_accepted += cone as u64;
                         }
                     }
                     k

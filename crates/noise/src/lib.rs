@@ -61,6 +61,8 @@
 //!   numbers are also the same on every platform and for every `target-cpu`.
 //! * [`NoiseStream::uniform4`] and [`NoiseStream::fill_uniform4`] give four uniforms
 //!   `w_i / 2^32` on `[0, 1)`, resolution `2^-32`.
+//! * [`NoiseStream::fill_gaussian3_at`] and [`NoiseStream::fill_uniform4_at`] do the same
+//!   in bulk for a list of scattered sites, bit for bit equal to the per-site calls.
 //!
 //! # Cost
 //!
@@ -188,6 +190,54 @@ impl NoiseStream {
         for (k, u) in blocks.into_remainder().iter_mut().enumerate() {
             *u = self.uniform4(step, site.wrapping_add(k as u64));
         }
+    }
+
+    /// `out[k] = self.gaussian3(step, sites[k])` for every `k`, bit for bit: the bulk
+    /// evaluation for a list of scattered sites (a Monte Carlo colour class, say). Panics if
+    /// the lengths differ. Allocates nothing.
+    pub fn fill_gaussian3_at(&self, step: u64, sites: &[u32], out: &mut [[f64; 3]]) {
+        assert_eq!(sites.len(), out.len(), "one output per site");
+        let mut blocks = out.chunks_exact_mut(LANES);
+        let mut ids = sites.chunks_exact(LANES);
+        for (block, id) in (&mut blocks).zip(&mut ids) {
+            let w = self.words_lanes_at::<LANES>(step, id);
+            for j in 0..LANES {
+                block[j] = gaussian3_from_words([w[0][j], w[1][j], w[2][j], w[3][j]]);
+            }
+        }
+        for (g, &site) in blocks.into_remainder().iter_mut().zip(ids.remainder()) {
+            *g = self.gaussian3(step, u64::from(site));
+        }
+    }
+
+    /// `out[k] = self.uniform4(step, sites[k])` for every `k`, bit for bit. Panics if the
+    /// lengths differ. Allocates nothing.
+    pub fn fill_uniform4_at(&self, step: u64, sites: &[u32], out: &mut [[f64; 4]]) {
+        assert_eq!(sites.len(), out.len(), "one output per site");
+        let mut blocks = out.chunks_exact_mut(LANES);
+        let mut ids = sites.chunks_exact(LANES);
+        for (block, id) in (&mut blocks).zip(&mut ids) {
+            let w = self.words_lanes_at::<LANES>(step, id);
+            for j in 0..LANES {
+                block[j] = uniform4_from_words([w[0][j], w[1][j], w[2][j], w[3][j]]);
+            }
+        }
+        for (u, &site) in blocks.into_remainder().iter_mut().zip(ids.remainder()) {
+            *u = self.uniform4(step, u64::from(site));
+        }
+    }
+
+    /// Philox words of the `L` sites listed in `sites` (at least `L` of them), word-major.
+    #[inline(always)]
+    fn words_lanes_at<const L: usize>(&self, step: u64, sites: &[u32]) -> [[u32; L]; 4] {
+        let mut w = [[0u32; L]; 4];
+        for j in 0..L {
+            let v = self.words(step, u64::from(sites[j]));
+            for i in 0..4 {
+                w[i][j] = v[i];
+            }
+        }
+        w
     }
 
     /// Philox words of `L` consecutive sites, as four word arrays (word-major), so that

@@ -1,0 +1,68 @@
+//! Field evaluation on 128 x 128 x 8 simple cubic (periodic in-plane, open along z):
+//! the fused kernel of all terms (one shell, then one to three shells, to show the cost
+//! growing with the bonds), each reference term alone, and the energy by term.
+//! Single-threaded (`field_range` over the whole array) so the figures are per core;
+//! criterion reports elements (sites) per second. Seeded spins, set-up outside the timing.
+
+// criterion_group! defines an undocumented function.
+#![allow(missing_docs)]
+
+use criterion::{criterion_group, criterion_main, Criterion, Throughput};
+use spindrift_hamiltonian::{add_shell, DmiKind, Hamiltonian, ShellCoupling, ShellRef, Species};
+use spindrift_lattice::{preset, unit_hash, BondList, Supercell, Vec3};
+use std::hint::black_box;
+
+/// Exchange on the first `shells` shells, interfacial DMI (normal z) on the first.
+fn system(shells: usize) -> Hamiltonian {
+    let cell =
+        Supercell::new(preset("simple-cubic", 3.0, None).unwrap(), [128, 128, 8], [true, true, false], 0)
+            .unwrap();
+    let mut bonds = BondList::new(1);
+    for shell in 1..=shells {
+        let dmi = (shell == 1).then_some((1.0, DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] }));
+        let spec = ShellCoupling { shell: ShellRef::Index(shell), j: 5.0 / shell as f64, dmi, pair: None };
+        add_shell(&cell, &mut bonds, &spec).unwrap();
+    }
+    let species =
+        vec![Species { name: "M".into(), moment: 2.0, damping: 0.1, anisotropy: 0.2, axis: [0.0, 0.0, 1.0] }];
+    Hamiltonian::new(cell, species, bonds, [0.0, 0.0, 1.0]).unwrap()
+}
+
+fn random_spins(n: usize) -> Vec<Vec3> {
+    (0..n)
+        .map(|i| {
+            let z = 2.0 * unit_hash(1, 1, i as u64) - 1.0;
+            let phi = std::f64::consts::TAU * unit_hash(1, 2, i as u64);
+            let r = (1.0 - z * z).sqrt();
+            [r * phi.cos(), r * phi.sin(), z]
+        })
+        .collect()
+}
+
+fn bench(c: &mut Criterion) {
+    let mut group = c.benchmark_group("field 128x128x8 sc");
+    group.sample_size(20);
+    for shells in 1..=3 {
+        let h = system(shells);
+        let n = h.len();
+        let spins = random_spins(n);
+        let mut out = vec![[0.0; 3]; n];
+        let bonds = h.bonds().from_basis(0).len();
+        group.throughput(Throughput::Elements(n as u64));
+        group.bench_function(format!("fused field, {shells} shell(s), {bonds} bonds/site"), |b| {
+            b.iter(|| h.field_range(black_box(&spins), 0, &mut out))
+        });
+        if shells == 1 {
+            for term in h.terms() {
+                group.bench_function(format!("term {} gradient (reference)", term.name()), |b| {
+                    b.iter(|| term.add_gradient(h.cell(), black_box(&spins), &mut out))
+                });
+            }
+            group.bench_function("energy by term", |b| b.iter(|| black_box(h.energy(black_box(&spins)))));
+        }
+    }
+    group.finish();
+}
+
+criterion_group!(benches, bench);
+criterion_main!(benches);

@@ -264,13 +264,9 @@ impl<'a> Runner<'a> {
         Ok(Outcome::Finished(self.finished.clone()))
     }
 
-    /// Observes the spins: writes a series row and returns it.
-    pub(crate) fn observe(
-        &mut self,
-        step: u64,
-        time: f64,
-        temperature: f64,
-    ) -> Result<SeriesRow, EngineError> {
+    /// Measures magnetisation and charge into the observers' buffers and returns the
+    /// energy by term per spin.
+    fn observe_all(&mut self) -> Result<spindrift_hamiltonian::EnergyTerms, EngineError> {
         let stage = self.stage_index;
         self.magnetization
             .observe_into(&self.spins, &mut self.m_buf)
@@ -279,7 +275,18 @@ impl<'a> Runner<'a> {
             .observe_into(&self.spins, &mut self.q_buf)
             .map_err(|e| EngineError::Setup { stage, message: e.to_string() })?;
         let n = self.h.spin_count().max(1) as f64;
-        let energy = self.h.energy(&self.spins).scaled(1.0 / n);
+        Ok(self.h.energy(&self.spins).scaled(1.0 / n))
+    }
+
+    /// Observes the spins: writes a series row and returns it.
+    pub(crate) fn observe(
+        &mut self,
+        step: u64,
+        time: f64,
+        temperature: f64,
+    ) -> Result<SeriesRow, EngineError> {
+        let stage = self.stage_index;
+        let energy = self.observe_all()?;
         let row = SeriesRow {
             step,
             time,
@@ -367,15 +374,7 @@ impl<'a> Runner<'a> {
 
     /// The end-of-stage state for a summary.
     pub(crate) fn final_state(&mut self, time: f64) -> Result<FinalState, EngineError> {
-        let stage = self.stage_index;
-        self.magnetization
-            .observe_into(&self.spins, &mut self.m_buf)
-            .map_err(|e| EngineError::Setup { stage, message: e.to_string() })?;
-        self.charge
-            .observe_into(&self.spins, &mut self.q_buf)
-            .map_err(|e| EngineError::Setup { stage, message: e.to_string() })?;
-        let n = self.h.spin_count().max(1) as f64;
-        let terms = self.h.energy(&self.spins).scaled(1.0 / n);
+        let terms = self.observe_all()?;
         Ok(FinalState {
             time,
             magnetization: self.m_buf.total,

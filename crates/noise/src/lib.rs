@@ -177,6 +177,11 @@ impl NoiseStream {
 
     /// `out[k] = self.uniform4(step, first_site + k)` for every `k`, bit for bit, with site
     /// indices wrapping modulo `2^64`. Allocates nothing.
+    ///
+    /// The loop repeats that of [`NoiseStream::fill_gaussian3`] on purpose: a shared
+    /// generic version taking the transform as a closure measured 25% slower in a whole
+    /// 300 K run (1.40e7 -> 1.09e7 spin-steps/s, one thread), as the compiler no longer
+    /// vectorised the transform across lanes.
     pub fn fill_uniform4(&self, step: u64, first_site: u64, out: &mut [[f64; 4]]) {
         let mut site = first_site;
         let mut blocks = out.chunks_exact_mut(LANES);

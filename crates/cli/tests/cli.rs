@@ -493,3 +493,15 @@ fn initial_state_from_an_earlier_run() {
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("initial.path"), "{}", stderr(&o));
 }
+
+/// A run folder that cannot be written is an output failure, exit 4 (INTERFACE.md).
+#[test]
+fn unwritable_output_is_exit_4() {
+    let dir = temp_dir("unwritable");
+    let blocker = dir.join("file");
+    std::fs::write(&blocker, "not a folder").unwrap();
+    let out = blocker.join("run");
+    let o = spindrift(&["run", FILM, "--out", out.to_str().unwrap(), "-q"]);
+    assert_eq!(o.status.code(), Some(4), "{}", stderr(&o));
+    assert!(stderr(&o).contains("cannot create"), "{}", stderr(&o));
+}

@@ -136,15 +136,18 @@ pub fn run(args: &RunArgs) -> Outcome {
                 StopReason::Signal(2) => exit::SIGINT,
                 StopReason::Signal(_) => exit::SIGTERM,
             };
-            eprintln!(
-                "spindrift: stopped ({}); checkpoint written. Continue with: spindrift run {} --resume {}",
-                match reason {
-                    StopReason::WallLimit => "--max-wall reached".to_string(),
-                    StopReason::Signal(s) => format!("signal {s}"),
-                },
-                args.config.display(),
-                dir.display()
-            );
+            if !args.quiet {
+                eprintln!(
+                    "spindrift: stopped ({}); checkpoint written. Continue with: spindrift run {} --resume {}{}",
+                    match reason {
+                        StopReason::WallLimit => "--max-wall reached".to_string(),
+                        StopReason::Signal(s) => format!("signal {s}"),
+                    },
+                    args.config.display(),
+                    dir.display(),
+                    args.set.iter().map(|s| format!(" --set '{s}'")).collect::<String>()
+                );
+            }
             (finished, code)
         }
         Err(e) => return Err(engine_failure(e)),

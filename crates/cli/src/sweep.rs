@@ -234,7 +234,10 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
                 .map_err(output)?,
         )?;
         match state {
-            "stopped" => return Ok(code),
+            "stopped" => {
+                eprintln!("point {k} stopped with a checkpoint (exit {code}); run the same sweep command again to resume");
+                return Ok(code);
+            }
             "failed" => {
                 eprintln!("point {k} failed (exit {code}): {}", message.unwrap_or_default());
                 failed += 1;

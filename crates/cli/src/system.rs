@@ -4,7 +4,7 @@
 use crate::exit::{bad_input, Failure};
 use anyhow::anyhow;
 use spindrift_config::{load, validate, Loaded, Validated};
-use spindrift_engine::InitialState;
+use spindrift_engine::{Initial, InitialState};
 use std::path::Path;
 
 /// Memory the system can still give, bytes (`MemAvailable` of `/proc/meminfo`).
@@ -19,7 +19,7 @@ pub fn available_memory() -> Option<u64> {
 pub fn load_system(config: &Path, sets: &[String]) -> Result<(Loaded, Validated), Failure> {
     let loaded = load(config, sets).map_err(bad_input)?;
     let mut v = validate(&loaded, available_memory()).map_err(bad_input)?;
-    if let InitialState::FromRun(dir) = &v.protocol.initial {
+    if let Initial::FromRun(dir) = &v.protocol.initial {
         let spins = read_final_spins(dir)
             .map_err(|e| bad_input(loaded.error_at("initial.path", format!("{e:#}"))))?;
         if spins.len() != v.hamiltonian.len() {
@@ -33,7 +33,7 @@ pub fn load_system(config: &Path, sets: &[String]) -> Result<(Loaded, Validated)
                 ),
             )));
         }
-        v.protocol.initial = InitialState::Spins(spins);
+        v.protocol.initial = Initial::State(InitialState::Given(spins));
     }
     Ok((loaded, v))
 }

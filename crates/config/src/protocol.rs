@@ -6,7 +6,7 @@ use crate::raw::{
     InitialState as RawInitial, RawStage, ScanMethod as RawMethod, ScanOrder, StageKind as RawKind,
 };
 use crate::units::Dimension;
-use spindrift_engine::{InitialState, Protocol, ScanMethod, Stage, StageKind};
+use spindrift_engine::{Initial, InitialState, Protocol, ScanMethod, Stage, StageKind};
 use spindrift_lattice::Vec3;
 
 /// Defaults that depend on the system.
@@ -372,9 +372,9 @@ fn measure(loaded: &Loaded, key: &str, m: Option<u64>) -> Result<u64, ConfigErro
     Ok(m)
 }
 
-fn initial(loaded: &Loaded) -> Result<InitialState, ConfigError> {
+fn initial(loaded: &Loaded) -> Result<Initial, ConfigError> {
     let Some(i) = &loaded.raw.initial else {
-        return Ok(InitialState::Uniform { direction: [0.0, 0.0, 1.0] });
+        return Ok(Initial::State(InitialState::Uniform { direction: [0.0, 0.0, 1.0] }));
     };
     let state = i.state.unwrap_or(RawInitial::Uniform);
     let used: Vec<(&str, bool)> = vec![
@@ -405,7 +405,7 @@ fn initial(loaded: &Loaded) -> Result<InitialState, ConfigError> {
         .map(|d| direction(loaded, "initial.direction", d))
         .transpose()?
         .unwrap_or([0.0, 0.0, 1.0]);
-    Ok(match state {
+    Ok(Initial::State(match state {
         RawInitial::Uniform => InitialState::Uniform { direction: dir },
         RawInitial::Random => InitialState::Random,
         RawInitial::Skyrmion => {
@@ -416,7 +416,7 @@ fn initial(loaded: &Loaded) -> Result<InitialState, ConfigError> {
                 center: i.center.unwrap_or([0.5, 0.5]),
                 radius: positive(loaded, "initial.radius", r, Dimension::Length)?,
                 background: dir,
-                helicity: i
+                helicity_deg: i
                     .helicity
                     .as_ref()
                     .map(|q| loaded.quantity("initial.helicity", q, Dimension::Angle))
@@ -427,13 +427,13 @@ fn initial(loaded: &Loaded) -> Result<InitialState, ConfigError> {
             let Some(q) = i.wavevector else {
                 return Err(loaded.error_at("initial", "a helix needs its `wavevector` (1/Å)"));
             };
-            InitialState::Helix { wavevector: q }
+            InitialState::Helix { wavevector: q, axis: [0.0, 0.0, 1.0] }
         }
         RawInitial::File => {
             let Some(p) = &i.path else {
                 return Err(loaded.error_at("initial", "`state = \"file\"` needs `path`, a run folder"));
             };
-            InitialState::FromRun(loaded.resolve_path(p))
+            return Ok(Initial::FromRun(loaded.resolve_path(p)));
         }
-    })
+    }))
 }

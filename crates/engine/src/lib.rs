@@ -16,7 +16,7 @@ mod stages;
 
 pub use control::{Control, Monitor, Poll, Silent, StopReason};
 pub use error::EngineError;
-pub use protocol::{InitialState, Protocol, ScanMethod, Stage, StageKind};
+pub use protocol::{Initial, InitialState, Protocol, ScanMethod, Stage, StageKind};
 pub use record::{
     Checkpoint, CurieEstimate, FinalState, PointRow, RowCounts, RunHeader, SeriesRow, StageInfo, StageSummary,
 };

@@ -3,38 +3,17 @@
 //! Every value here is resolved: canonical units (ps, K, T, Å), defaults applied, and
 //! checked by the config crate. Field docs give units and defaults.
 
+pub use spindrift_dynamics::InitialState;
 use spindrift_lattice::Vec3;
 
-/// The initial spin state.
+/// Where the initial spins come from.
 #[derive(Debug, Clone, PartialEq)]
-pub enum InitialState {
-    /// Every spin along `direction` (unit vector). Default `[0, 0, 1]`.
-    Uniform {
-        /// Direction.
-        direction: Vec3,
-    },
-    /// Independent uniformly random directions (from the run seed).
-    Random,
-    /// One skyrmion in a uniform background.
-    Skyrmion {
-        /// Centre as fractions of the supercell along `a1`, `a2`. Default `[0.5, 0.5]`.
-        center: [f64; 2],
-        /// Radius, Å.
-        radius: f64,
-        /// Background direction (unit); the core points against it. Default `[0, 0, 1]`.
-        background: Vec3,
-        /// Helicity, degrees; `None` = the one the DMI favours.
-        helicity: Option<f64>,
-    },
-    /// A flat spiral.
-    Helix {
-        /// Wave vector, 1/Å.
-        wavevector: Vec3,
-    },
-    /// Spins given explicitly (e.g. the final state of an earlier run).
-    Spins(Vec<Vec3>),
+pub enum Initial {
+    /// A state the integrators' crate builds (uniform, random, skyrmion, helix, given).
+    State(InitialState),
     /// The final spins of the run in this folder; the caller reads them and replaces this
-    /// with [`InitialState::Spins`] before the run (the engine reads no files).
+    /// with `Initial::State(InitialState::Given(..))` before the run (the engine reads no
+    /// files).
     FromRun(std::path::PathBuf),
 }
 
@@ -143,7 +122,7 @@ pub struct Protocol {
     /// Base seed.
     pub seed: u64,
     /// Initial state.
-    pub initial: InitialState,
+    pub initial: Initial,
     /// Applied field outside stages that override it, T.
     pub field: Vec3,
     /// Stages in order.

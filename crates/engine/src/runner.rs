@@ -9,40 +9,31 @@
 
 use crate::control::{Control, Monitor, Poll, StopReason};
 use crate::error::EngineError;
-use crate::protocol::{InitialState, Protocol};
+use crate::protocol::{Initial, Protocol};
 use crate::record::{Checkpoint, FinalState, RowCounts, RunHeader, SeriesRow, StageInfo, StageSummary};
 use crate::seeds::stage_seed;
 use crate::sink::Sink;
 use crate::stages;
-use spindrift_dynamics::{InitialState as Init, StepError};
+use spindrift_dynamics::StepError;
 use spindrift_hamiltonian::Hamiltonian;
 use spindrift_lattice::Vec3;
 use spindrift_observe::{ChargeObserver, Magnetization, MagnetizationObserver, TopologicalCharge};
 use std::collections::BTreeMap;
 use std::time::Instant;
 
-/// The initial spins a protocol asks for. [`InitialState::FromRun`] must have been
-/// replaced by [`InitialState::Spins`] (the engine reads no files).
+/// The initial spins a protocol asks for. [`Initial::FromRun`] must have been replaced
+/// by a given state (the engine reads no files).
 pub fn initial_spins(h: &Hamiltonian, protocol: &Protocol) -> Result<Vec<Vec3>, EngineError> {
-    let mut spins = vec![[0.0; 3]; h.len()];
     let init = match &protocol.initial {
-        InitialState::Uniform { direction } => Init::Uniform { direction: *direction },
-        InitialState::Random => Init::Random,
-        InitialState::Skyrmion { center, radius, background, helicity } => Init::Skyrmion {
-            center: *center,
-            radius: *radius,
-            helicity_deg: *helicity,
-            background: *background,
-        },
-        InitialState::Helix { wavevector } => Init::Helix { wavevector: *wavevector, axis: [0.0, 0.0, 1.0] },
-        InitialState::Spins(s) => Init::Given(s.clone()),
-        InitialState::FromRun(p) => {
+        Initial::State(state) => state,
+        Initial::FromRun(p) => {
             return Err(EngineError::Setup {
                 stage: 0,
                 message: format!("initial state file {} was not read", p.display()),
             })
         }
     };
+    let mut spins = vec![[0.0; 3]; h.len()];
     init.apply(h, &mut spins, protocol.seed)
         .map_err(|e| EngineError::Setup { stage: 0, message: format!("initial state: {e}") })?;
     Ok(spins)

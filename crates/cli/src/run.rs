@@ -156,7 +156,14 @@ pub fn run(args: &RunArgs) -> Outcome {
     closed.map_err(output)?;
     write_summary(
         &dir,
-        &RunSummary { spins, threads, wall_seconds: wall, stages: finished.clone(), estimates },
+        &RunSummary {
+            spins,
+            threads,
+            instruction_set: spindrift_isa::level().name().to_string(),
+            wall_seconds: wall,
+            stages: finished.clone(),
+            estimates,
+        },
     )
     .map_err(output)?;
     if code == exit::OK {

@@ -155,118 +155,40 @@ impl Heun {
             thermal |= variance > 0.0;
         }
 
-        let consts = &self.consts[..];
-        let nb = consts.len();
-        let occupation = h.cell().occupation();
-        let stream = self.stream;
+        let ctx = StepContext {
+            h,
+            consts: &self.consts,
+            occupation: h.cell().occupation(),
+            stream: self.stream,
+            dt,
+            thermal,
+            step_index,
+        };
 
-        // Pass 1: field at S, noise, predictor. The field is written straight into the
-        // predictor's chunk, which is only read by this chunk in this pass.
+        // Pass 1: field at S, noise, predictor.
         {
             let spins: &[Vec3] = spins;
-            let predictor_chunk = |start: usize, pred: &mut [Vec3], noise: &mut [Vec3]| {
-                // Blocks of BLOCK sites keep the field and the noise in L1 between being
-                // made and being used.
-                for (block, (pred, noise)) in pred.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate()
-                {
-                    let first = start + block * BLOCK;
-                    h.field_range(spins, first, pred);
-                    if thermal {
-                        stream.fill_gaussian3(step_index, first as u64, noise);
-                    }
-                    let mut b = first % nb;
-                    for k in 0..pred.len() {
-                        let i = first + k;
-                        let c = consts[b];
-                        b += 1;
-                        if b == nb {
-                            b = 0;
-                        }
-                        if occupation.is_some_and(|o| !o[i]) {
-                            pred[k] = [0.0; 3];
-                            continue;
-                        }
-                        let mut field = pred[k];
-                        if thermal {
-                            let g = noise[k];
-                            let th = [c.sigma * g[0], c.sigma * g[1], c.sigma * g[2]];
-                            noise[k] = th;
-                            field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
-                        }
-                        let s = spins[i];
-                        let f = llg_rhs(s, field, c.gamma_ll, c.alpha);
-                        pred[k] = [s[0] + dt * f[0], s[1] + dt * f[1], s[2] + dt * f[2]];
-                    }
-                }
-            };
             if spins.len() <= CHUNK {
-                predictor_chunk(0, &mut self.predictor, &mut self.noise);
+                predictor_chunk(&ctx, spins, 0, &mut self.predictor, &mut self.noise);
             } else {
                 self.predictor
                     .par_chunks_mut(CHUNK)
                     .zip(self.noise.par_chunks_mut(CHUNK))
                     .enumerate()
-                    .for_each(|(k, (pred, noise))| predictor_chunk(k * CHUNK, pred, noise));
+                    .for_each(|(k, (pred, noise))| predictor_chunk(&ctx, spins, k * CHUNK, pred, noise));
             }
         }
 
-        // Pass 2: field at P, corrector, renormalisation. The field at P goes into a small
-        // block on the stack; each pre-step spin moves into the noise slot it has just
-        // consumed, so a failure anywhere can be undone without a third array.
+        // Pass 2: field at P, corrector, renormalisation.
         let predictor = &self.predictor[..];
-        let corrector_chunk = |start: usize, out: &mut [Vec3], noise: &mut [Vec3]| {
-            let mut field_block = [[0.0; 3]; BLOCK];
-            let mut bad = None;
-            let mut b = start % nb;
-            for (block, (out, noise)) in out.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate() {
-                let first = start + block * BLOCK;
-                let fields = &mut field_block[..out.len()];
-                h.field_range(predictor, first, fields);
-                for k in 0..out.len() {
-                    let i = first + k;
-                    let c = consts[b];
-                    b += 1;
-                    if b == nb {
-                        b = 0;
-                    }
-                    let s = out[k];
-                    if occupation.is_some_and(|o| !o[i]) {
-                        noise[k] = s;
-                        continue;
-                    }
-                    let mut field = fields[k];
-                    if thermal {
-                        let th = noise[k];
-                        field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
-                    }
-                    let p = predictor[i];
-                    let f = llg_rhs(p, field, c.gamma_ll, c.alpha);
-                    let v = [
-                        0.5 * (s[0] + p[0] + dt * f[0]),
-                        0.5 * (s[1] + p[1] + dt * f[1]),
-                        0.5 * (s[2] + p[2] + dt * f[2]),
-                    ];
-                    noise[k] = s;
-                    let n2 = dot(v, v);
-                    // One comparison catches NaN, infinity and a collapsed spin alike.
-                    if !(n2.is_finite() && n2 > 0.0) {
-                        bad = first_bad(bad, Some(i));
-                        continue;
-                    }
-                    let inv = 1.0 / n2.sqrt();
-                    out[k] = [v[0] * inv, v[1] * inv, v[2] * inv];
-                }
-            }
-            bad
-        };
         let bad = if spins.len() <= CHUNK {
-            corrector_chunk(0, spins, &mut self.noise)
+            corrector_chunk(&ctx, predictor, 0, spins, &mut self.noise)
         } else {
             spins
                 .par_chunks_mut(CHUNK)
                 .zip(self.noise.par_chunks_mut(CHUNK))
                 .enumerate()
-                .map(|(k, (out, noise))| corrector_chunk(k * CHUNK, out, noise))
+                .map(|(k, (out, noise))| corrector_chunk(&ctx, predictor, k * CHUNK, out, noise))
                 .reduce(|| None, first_bad)
         };
         if let Some(site) = bad {
@@ -276,5 +198,126 @@ impl Heun {
             return Err(StepError::NonFinite { site, step: step_index });
         }
         Ok(())
+    }
+}
+
+/// What both passes of one step share.
+#[derive(Clone, Copy)]
+struct StepContext<'a> {
+    h: &'a Hamiltonian,
+    consts: &'a [SiteConst],
+    occupation: Option<&'a [bool]>,
+    stream: NoiseStream,
+    dt: f64,
+    thermal: bool,
+    step_index: u64,
+}
+
+spindrift_isa::multiversion! {
+    /// Pass 1 on the chunk of sites `start ..`: field at S, noise, predictor. The field is
+    /// written straight into the predictor's chunk, which only this chunk reads in this
+    /// pass. Compiled per instruction-set level (same bits on each).
+    fn predictor_chunk(
+        ctx: &StepContext<'_>,
+        spins: &[Vec3],
+        start: usize,
+        pred: &mut [Vec3],
+        noise: &mut [Vec3]
+    ) {
+        let StepContext { h, consts, occupation, stream, dt, thermal, step_index } = *ctx;
+        let nb = consts.len();
+        // Blocks of BLOCK sites keep the field and the noise in L1 between being made and
+        // being used.
+        for (block, (pred, noise)) in pred.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate() {
+            let first = start + block * BLOCK;
+            h.field_range(spins, first, pred);
+            if thermal {
+                stream.fill_gaussian3(step_index, first as u64, noise);
+            }
+            let mut b = first % nb;
+            for k in 0..pred.len() {
+                let i = first + k;
+                let c = consts[b];
+                b += 1;
+                if b == nb {
+                    b = 0;
+                }
+                if occupation.is_some_and(|o| !o[i]) {
+                    pred[k] = [0.0; 3];
+                    continue;
+                }
+                let mut field = pred[k];
+                if thermal {
+                    let g = noise[k];
+                    let th = [c.sigma * g[0], c.sigma * g[1], c.sigma * g[2]];
+                    noise[k] = th;
+                    field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
+                }
+                let s = spins[i];
+                let f = llg_rhs(s, field, c.gamma_ll, c.alpha);
+                pred[k] = [s[0] + dt * f[0], s[1] + dt * f[1], s[2] + dt * f[2]];
+            }
+        }
+    }
+}
+
+spindrift_isa::multiversion! {
+    /// Pass 2 on the chunk of sites `start ..`: field at P, corrector, renormalisation.
+    /// The field at P goes into a small block on the stack; each pre-step spin moves into
+    /// the noise slot it has just consumed, so a failure anywhere can be undone without a
+    /// third array. Returns the first site whose new spin is not finite. Compiled per
+    /// instruction-set level (same bits on each).
+    fn corrector_chunk(
+        ctx: &StepContext<'_>,
+        predictor: &[Vec3],
+        start: usize,
+        out: &mut [Vec3],
+        noise: &mut [Vec3]
+    ) -> Option<usize> {
+        let StepContext { h, consts, occupation, dt, thermal, .. } = *ctx;
+        let nb = consts.len();
+        let mut field_block = [[0.0; 3]; BLOCK];
+        let mut bad = None;
+        let mut b = start % nb;
+        for (block, (out, noise)) in out.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate() {
+            let first = start + block * BLOCK;
+            let fields = &mut field_block[..out.len()];
+            h.field_range(predictor, first, fields);
+            for k in 0..out.len() {
+                let i = first + k;
+                let c = consts[b];
+                b += 1;
+                if b == nb {
+                    b = 0;
+                }
+                let s = out[k];
+                if occupation.is_some_and(|o| !o[i]) {
+                    noise[k] = s;
+                    continue;
+                }
+                let mut field = fields[k];
+                if thermal {
+                    let th = noise[k];
+                    field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
+                }
+                let p = predictor[i];
+                let f = llg_rhs(p, field, c.gamma_ll, c.alpha);
+                let v = [
+                    0.5 * (s[0] + p[0] + dt * f[0]),
+                    0.5 * (s[1] + p[1] + dt * f[1]),
+                    0.5 * (s[2] + p[2] + dt * f[2]),
+                ];
+                noise[k] = s;
+                let n2 = dot(v, v);
+                // One comparison catches NaN, infinity and a collapsed spin alike.
+                if !(n2.is_finite() && n2 > 0.0) {
+                    bad = first_bad(bad, Some(i));
+                    continue;
+                }
+                let inv = 1.0 / n2.sqrt();
+                out[k] = [v[0] * inv, v[1] * inv, v[2] * inv];
+            }
+        }
+        bad
     }
 }

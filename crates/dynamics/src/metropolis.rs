@@ -66,16 +66,26 @@ pub const SIGMA_START: f64 = 0.5;
 /// Sites per block of a colour.
 pub const BLOCK: usize = 64 * CHUNK;
 
+/// Accepted energy changes are summed as integers in units of `2^-32` meV: integer sums
+/// do not depend on how rayon groups the chunks, so the total is the same for any thread
+/// count, which a floating-point reduction would not guarantee. A change of up to 2^31 meV
+/// fits; rounding costs at most `2^-33` meV per accepted move.
+const ENERGY_SCALE: f64 = 4_294_967_296.0;
+
 /// Sites whose random numbers are drawn together, into buffers on the stack (2.3 KiB).
 const DRAWS: usize = 48;
 
 /// Counts of one sweep.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct SweepStats {
     /// Accepted trial moves.
     pub accepted: u64,
     /// Attempted trial moves (one per occupied site).
     pub attempted: u64,
+    /// Sum of the energy changes of the accepted moves, meV: the total energy after the
+    /// sweep minus before, up to rounding (each change is rounded to a multiple of
+    /// `2^-32` meV, see [`Metropolis::sweep`]).
+    pub energy_change: f64,
 }
 
 impl SweepStats {
@@ -95,6 +105,8 @@ struct Counts {
     attempted: u64,
     cone_accepted: u64,
     cone_attempted: u64,
+    /// Sum of accepted energy changes in units of `1 / ENERGY_SCALE` meV.
+    energy_change: i128,
 }
 
 impl Counts {
@@ -104,6 +116,7 @@ impl Counts {
             attempted: self.attempted + o.attempted,
             cone_accepted: self.cone_accepted + o.cone_accepted,
             cone_attempted: self.cone_attempted + o.cone_attempted,
+            energy_change: self.energy_change + o.energy_change,
         }
     }
 }
@@ -193,61 +206,14 @@ impl Metropolis {
                 let buffer = &mut self.buffer[..block.len()];
                 // Decide every trial of the block; the spins of this colour do not change
                 // until all are decided, and no trial reads another spin of its colour.
-                let decide = |out: &mut [Vec3], sites: &[u32]| {
-                    let spins: &[Vec3] = spins;
-                    let mut k = Counts::default();
-                    // Random numbers in bulk for a few sites at a time (bitwise the per-site
-                    // values), on the stack.
-                    let mut uniforms = [[0.0; 4]; DRAWS];
-                    let mut normals = [[0.0; 3]; DRAWS];
-                    for (out, sites) in out.chunks_mut(DRAWS).zip(sites.chunks(DRAWS)) {
-                        let uniforms = &mut uniforms[..sites.len()];
-                        let normals = &mut normals[..sites.len()];
-                        stream.fill_uniform4_at(unif_step, sites, uniforms);
-                        stream.fill_gaussian3_at(gauss_step, sites, normals);
-                        for (((o, &site), u), g) in out.iter_mut().zip(sites).zip(&*uniforms).zip(&*normals) {
-                            let i = site as usize;
-                            let s = spins[i];
-                            let cone = u[0] < P_CONE;
-                            let trial = if cone {
-                                let v = [s[0] + sigma * g[0], s[1] + sigma * g[1], s[2] + sigma * g[2]];
-                                let n2 = dot(v, v);
-                                if n2 > 0.0 && n2.is_finite() {
-                                    let inv = 1.0 / n2.sqrt();
-                                    Some([v[0] * inv, v[1] * inv, v[2] * inv])
-                                } else {
-                                    None
-                                }
-                            } else if u[0] < P_CONE + P_UNIFORM {
-                                let z = 2.0 * u[1] - 1.0;
-                                let r = (1.0 - z * z).max(0.0).sqrt();
-                                let phi = std::f64::consts::TAU * u[2];
-                                Some([r * phi.cos(), r * phi.sin(), z])
-                            } else {
-                                Some([-s[0], -s[1], -s[2]])
-                            };
-                            let accepted = trial.filter(|t| {
-                                let de = h.energy_change(spins, i, *t);
-                                de <= 0.0 || u[3] < (-de * beta).exp()
-                            });
-                            *o = accepted.unwrap_or(s);
-                            k.attempted += 1;
-                            k.cone_attempted += cone as u64;
-                            if accepted.is_some() {
-                                k.accepted += 1;
-                                k.cone_accepted += cone as u64;
-                            }
-                        }
-                    }
-                    k
-                };
+                let ctx = TrialContext { h, spins: &*spins, stream, sigma, beta, gauss_step, unif_step };
                 let counts = if block.len() <= CHUNK {
-                    decide(buffer, block)
+                    decide(&ctx, buffer, block)
                 } else {
                     buffer
                         .par_chunks_mut(CHUNK)
                         .zip(block.par_chunks(CHUNK))
-                        .map(|(o, s)| decide(o, s))
+                        .map(|(o, s)| decide(&ctx, o, s))
                         .reduce(Counts::default, Counts::add)
                 };
                 total = total.add(counts);
@@ -283,6 +249,80 @@ impl Metropolis {
             let r = total.cone_accepted as f64 / total.cone_attempted as f64;
             self.set_sigma(self.sigma * (0.5 + r) / (1.5 - r));
         }
-        Ok(SweepStats { accepted: total.accepted, attempted: total.attempted })
+        Ok(SweepStats {
+            accepted: total.accepted,
+            attempted: total.attempted,
+            energy_change: total.energy_change as f64 / ENERGY_SCALE,
+        })
+    }
+}
+
+/// What every trial of one colour block shares.
+#[derive(Clone, Copy)]
+struct TrialContext<'a> {
+    h: &'a Hamiltonian,
+    spins: &'a [Vec3],
+    stream: NoiseStream,
+    sigma: f64,
+    /// `1 / kB T`, 1/meV (infinite at 0 K).
+    beta: f64,
+    gauss_step: u64,
+    unif_step: u64,
+}
+
+spindrift_isa::multiversion! {
+    /// Decides the trials of `sites` (one colour, so no trial reads another's spin) into
+    /// `out`; the spins do not change until every trial of the block is decided. Compiled
+    /// per instruction-set level (same bits on each).
+    fn decide(ctx: &TrialContext<'_>, out: &mut [Vec3], sites: &[u32]) -> Counts {
+        let TrialContext { h, spins, stream, sigma, beta, gauss_step, unif_step } = *ctx;
+        let mut k = Counts::default();
+        // Random numbers in bulk for a few sites at a time (bitwise the per-site values),
+        // on the stack.
+        let mut uniforms = [[0.0; 4]; DRAWS];
+        let mut normals = [[0.0; 3]; DRAWS];
+        for (out, sites) in out.chunks_mut(DRAWS).zip(sites.chunks(DRAWS)) {
+            let uniforms = &mut uniforms[..sites.len()];
+            let normals = &mut normals[..sites.len()];
+            stream.fill_uniform4_at(unif_step, sites, uniforms);
+            stream.fill_gaussian3_at(gauss_step, sites, normals);
+            for (((o, &site), u), g) in out.iter_mut().zip(sites).zip(&*uniforms).zip(&*normals) {
+                let i = site as usize;
+                let s = spins[i];
+                let cone = u[0] < P_CONE;
+                let trial = if cone {
+                    let v = [s[0] + sigma * g[0], s[1] + sigma * g[1], s[2] + sigma * g[2]];
+                    let n2 = dot(v, v);
+                    if n2 > 0.0 && n2.is_finite() {
+                        let inv = 1.0 / n2.sqrt();
+                        Some([v[0] * inv, v[1] * inv, v[2] * inv])
+                    } else {
+                        None
+                    }
+                } else if u[0] < P_CONE + P_UNIFORM {
+                    let z = 2.0 * u[1] - 1.0;
+                    let r = (1.0 - z * z).max(0.0).sqrt();
+                    let phi = std::f64::consts::TAU * u[2];
+                    Some([r * phi.cos(), r * phi.sin(), z])
+                } else {
+                    Some([-s[0], -s[1], -s[2]])
+                };
+                let mut change = 0.0;
+                let accepted = trial.filter(|t| {
+                    let de = h.energy_change(spins, i, *t);
+                    change = de;
+                    de <= 0.0 || u[3] < (-de * beta).exp()
+                });
+                *o = accepted.unwrap_or(s);
+                k.attempted += 1;
+                k.cone_attempted += cone as u64;
+                if accepted.is_some() {
+                    k.accepted += 1;
+                    k.cone_accepted += cone as u64;
+                    k.energy_change += (change * ENERGY_SCALE).round() as i128;
+                }
+            }
+        }
+        k
     }
 }

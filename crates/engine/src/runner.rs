@@ -297,15 +297,17 @@ impl<'a> Runner<'a> {
         Ok(row)
     }
 
-    /// Magnetisation and energy per spin only (for Monte Carlo samples).
-    pub(crate) fn measure(&mut self) -> Result<(Vec3, f64), EngineError> {
+    /// Magnetisation and energy per spin only (for samples). `total_energy` (meV) is the
+    /// caller's running total when it keeps one (Monte Carlo sums its accepted changes);
+    /// `None` evaluates it.
+    pub(crate) fn measure(&mut self, total_energy: Option<f64>) -> Result<(Vec3, f64), EngineError> {
         let stage = self.stage_index;
         self.magnetization
             .observe_into(&self.spins, &mut self.m_buf)
             .map_err(|e| EngineError::Setup { stage, message: e.to_string() })?;
         // The total alone, by the faster row kernel: samples need no split by term.
-        let e = self.h.energy_total(&self.spins) / self.h.spin_count().max(1) as f64;
-        Ok((self.m_buf.total, e))
+        let total = total_energy.unwrap_or_else(|| self.h.energy_total(&self.spins));
+        Ok((self.m_buf.total, total / self.h.spin_count().max(1) as f64))
     }
 
     /// Writes a snapshot of the spins.

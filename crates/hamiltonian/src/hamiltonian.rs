@@ -300,7 +300,16 @@ impl Hamiltonian {
     /// is `j = base + (c1 + o1) * basis + to`, with a modulo only for the few sites whose
     /// neighbour wraps around the row's ends. Each site still adds its bonds in the order of
     /// the bond list, so the result is bitwise that of a plain per-site loop.
+    ///
+    /// Compiled for each instruction-set level and run on the widest the CPU has (see
+    /// `spindrift_isa`); the bits are the same on every level.
+    #[inline]
     pub fn field_range(&self, spins: &[Vec3], start: usize, out: &mut [Vec3]) {
+        field_range_kernel(self, spins, start, out);
+    }
+
+    #[inline(always)]
+    fn field_range_portable(&self, spins: &[Vec3], start: usize, out: &mut [Vec3]) {
         let nb = self.cell.basis_len();
         let [n1, n2, _] = self.cell.cells();
         let row_len = n1 * nb;
@@ -340,7 +349,7 @@ impl Hamiltonian {
 
     /// Adds the bond fields to `out`, the sites `lo .. lo + out.len()` of the row of cells
     /// `(*, c2, c3)` that starts at site `row_start`.
-    #[inline]
+    #[inline(always)]
     fn field_row(&self, spins: &[Vec3], c23: [usize; 2], row_start: usize, lo: usize, out: &mut [Vec3]) {
         let nb = self.cell.basis_len();
         let cells = self.cell.cells();
@@ -490,6 +499,11 @@ impl Hamiltonian {
     }
 
     fn energy_total_range(&self, spins: &[Vec3], start: usize, len: usize) -> f64 {
+        energy_total_kernel(self, spins, start, len)
+    }
+
+    #[inline(always)]
+    fn energy_total_range_portable(&self, spins: &[Vec3], start: usize, len: usize) -> f64 {
         const BLOCK: usize = 256;
         let nb = self.cell.basis_len();
         let row_len = self.cell.cells()[0] * nb;
@@ -571,6 +585,20 @@ impl Hamiltonian {
                 bonds + self.k_field[b].abs() + applied
             })
             .fold(0.0, f64::max)
+    }
+}
+
+spindrift_isa::multiversion! {
+    /// [`Hamiltonian::field_range`], compiled per instruction-set level.
+    fn field_range_kernel(h: &Hamiltonian, spins: &[Vec3], start: usize, out: &mut [Vec3]) {
+        h.field_range_portable(spins, start, out)
+    }
+}
+
+spindrift_isa::multiversion! {
+    /// The total energy of a chunk, compiled per instruction-set level.
+    fn energy_total_kernel(h: &Hamiltonian, spins: &[Vec3], start: usize, len: usize) -> f64 {
+        h.energy_total_range_portable(spins, start, len)
     }
 }
 

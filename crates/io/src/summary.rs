@@ -1,7 +1,7 @@
 //! `summary.json`: a small machine-readable account of a finished (or stopped) run.
 //!
 //! ```json
-//! {"spins": 9216, "threads": 2, "wall_seconds": 12.5,
+//! {"spins": 9216, "threads": 2, "instruction_set": "x86-64-v3", "wall_seconds": 12.5,
 //!  "stages": [{"index": 0, "kind": "evolve", "steps": 200000, "spin_steps_per_second": 1.5e8,
 //!              "wall_seconds": 12.2,
 //!              "final": {"time": 200.0, "magnetization": [0, 0, 0.93], "energy": -40.1,
@@ -35,6 +35,9 @@ pub struct RunSummary {
     pub spins: usize,
     /// Worker threads used.
     pub threads: usize,
+    /// Instruction-set level of the hot loops (`spindrift_isa::Level::name`, e.g.
+    /// `x86-64-v4`); the results do not depend on it, the speed does.
+    pub instruction_set: String,
     /// Wall-clock time of the whole run, s.
     pub wall_seconds: f64,
     /// Summaries of the finished stages, in order.
@@ -118,6 +121,7 @@ pub fn summary_json(summary: &RunSummary) -> Value {
     json!({
         "spins": summary.spins,
         "threads": summary.threads,
+        "instruction_set": summary.instruction_set,
         "wall_seconds": num(summary.wall_seconds),
         "stages": summary.stages.iter().map(stage_json).collect::<Vec<_>>(),
         "estimates": summary.estimates.iter().map(|(k, v)| (k.clone(), num(*v))).collect::<Map<_, _>>(),

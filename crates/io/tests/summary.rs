@@ -29,6 +29,7 @@ fn summary_json_has_the_interface_keys() {
     let run = RunSummary {
         spins: 9216,
         threads: 2,
+        instruction_set: "x86-64-v3".into(),
         wall_seconds: 12.5,
         stages: vec![summary(0, "evolve"), scan, summary(2, "field-loop"), relax],
         estimates: vec![("curie_mean_field".into(), 600.5), ("curie_rpa".into(), f64::NAN)],
@@ -38,11 +39,15 @@ fn summary_json_has_the_interface_keys() {
     let v: Value = serde_json::from_str(&text).expect("valid JSON");
     assert_eq!(read_summary(tmp.path()).unwrap(), v);
 
-    assert_eq!(keys(&v), set(&["spins", "threads", "wall_seconds", "stages", "estimates"]));
+    assert_eq!(
+        keys(&v),
+        set(&["spins", "threads", "instruction_set", "wall_seconds", "stages", "estimates"])
+    );
     assert_eq!(v["estimates"]["curie_mean_field"], 600.5);
     assert!(v["estimates"]["curie_rpa"].is_null());
     assert_eq!(v["spins"], 9216);
     assert_eq!(v["threads"], 2);
+    assert_eq!(v["instruction_set"], "x86-64-v3");
     assert_eq!(v["wall_seconds"], 12.5);
     let stages = v["stages"].as_array().unwrap();
     assert_eq!(stages.len(), 4);

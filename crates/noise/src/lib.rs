@@ -153,6 +153,11 @@ impl NoiseStream {
     /// `out[k] = self.gaussian3(step, first_site + k)` for every `k`, bit for bit, with site
     /// indices wrapping modulo `2^64`. Evaluated in blocks for speed; allocates nothing.
     pub fn fill_gaussian3(&self, step: u64, first_site: u64, out: &mut [[f64; 3]]) {
+        fill_gaussian3_kernel(*self, step, first_site, out);
+    }
+
+    #[inline(always)]
+    fn fill_gaussian3_portable(&self, step: u64, first_site: u64, out: &mut [[f64; 3]]) {
         let mut site = first_site;
         let mut blocks = out.chunks_exact_mut(LANES);
         for block in &mut blocks {
@@ -183,6 +188,11 @@ impl NoiseStream {
     /// 300 K run (1.40e7 -> 1.09e7 spin-steps/s, one thread), as the compiler no longer
     /// vectorised the transform across lanes.
     pub fn fill_uniform4(&self, step: u64, first_site: u64, out: &mut [[f64; 4]]) {
+        fill_uniform4_kernel(*self, step, first_site, out);
+    }
+
+    #[inline(always)]
+    fn fill_uniform4_portable(&self, step: u64, first_site: u64, out: &mut [[f64; 4]]) {
         let mut site = first_site;
         let mut blocks = out.chunks_exact_mut(LANES);
         for block in &mut blocks {
@@ -201,6 +211,11 @@ impl NoiseStream {
     /// evaluation for a list of scattered sites (a Monte Carlo colour class, say). Panics if
     /// the lengths differ. Allocates nothing.
     pub fn fill_gaussian3_at(&self, step: u64, sites: &[u32], out: &mut [[f64; 3]]) {
+        fill_gaussian3_at_kernel(*self, step, sites, out);
+    }
+
+    #[inline(always)]
+    fn fill_gaussian3_at_portable(&self, step: u64, sites: &[u32], out: &mut [[f64; 3]]) {
         assert_eq!(sites.len(), out.len(), "one output per site");
         let mut blocks = out.chunks_exact_mut(LANES);
         let mut ids = sites.chunks_exact(LANES);
@@ -218,6 +233,11 @@ impl NoiseStream {
     /// `out[k] = self.uniform4(step, sites[k])` for every `k`, bit for bit. Panics if the
     /// lengths differ. Allocates nothing.
     pub fn fill_uniform4_at(&self, step: u64, sites: &[u32], out: &mut [[f64; 4]]) {
+        fill_uniform4_at_kernel(*self, step, sites, out);
+    }
+
+    #[inline(always)]
+    fn fill_uniform4_at_portable(&self, step: u64, sites: &[u32], out: &mut [[f64; 4]]) {
         assert_eq!(sites.len(), out.len(), "one output per site");
         let mut blocks = out.chunks_exact_mut(LANES);
         let mut ids = sites.chunks_exact(LANES);
@@ -267,6 +287,34 @@ impl NoiseStream {
 #[inline(always)]
 fn counter(step: u64, site: u64) -> [u32; 4] {
     [site as u32, (site >> 32) as u32, step as u32, (step >> 32) as u32]
+}
+
+spindrift_isa::multiversion! {
+    /// [`NoiseStream::fill_gaussian3`], compiled per instruction-set level.
+    fn fill_gaussian3_kernel(stream: NoiseStream, step: u64, first_site: u64, out: &mut [[f64; 3]]) {
+        stream.fill_gaussian3_portable(step, first_site, out)
+    }
+}
+
+spindrift_isa::multiversion! {
+    /// [`NoiseStream::fill_uniform4`], compiled per instruction-set level.
+    fn fill_uniform4_kernel(stream: NoiseStream, step: u64, first_site: u64, out: &mut [[f64; 4]]) {
+        stream.fill_uniform4_portable(step, first_site, out)
+    }
+}
+
+spindrift_isa::multiversion! {
+    /// [`NoiseStream::fill_gaussian3_at`], compiled per instruction-set level.
+    fn fill_gaussian3_at_kernel(stream: NoiseStream, step: u64, sites: &[u32], out: &mut [[f64; 3]]) {
+        stream.fill_gaussian3_at_portable(step, sites, out)
+    }
+}
+
+spindrift_isa::multiversion! {
+    /// [`NoiseStream::fill_uniform4_at`], compiled per instruction-set level.
+    fn fill_uniform4_at_kernel(stream: NoiseStream, step: u64, sites: &[u32], out: &mut [[f64; 4]]) {
+        stream.fill_uniform4_at_portable(step, sites, out)
+    }
 }
 
 #[cfg(test)]

@@ -173,7 +173,7 @@ fn results_are_identical_on_every_instruction_set_level() {
     assert_same_run(&a, &b);
 }
 
-fn spawn_film(out: &Path) -> Child {
+fn spawn_film(out: &Path, duration: &str) -> Child {
     bin()
         .args([
             "run",
@@ -185,7 +185,7 @@ fn spawn_film(out: &Path) -> Child {
             "--set",
             BIG,
             "--set",
-            "stage.0.duration=\"30 ps\"",
+            &format!("stage.0.duration=\"{duration}\""),
             "-q",
         ])
         .stdout(Stdio::null())
@@ -226,9 +226,14 @@ fn sigterm_then_resume_equals_an_uninterrupted_run() {
     let (straight, stopped) = (dir.join("straight"), dir.join("stopped"));
     let o = run_film(&straight, "2", &["--set", "stage.0.duration=\"30 ps\""]);
     assert!(o.status.success(), "{}", stderr(&o));
-    let mut child = spawn_film(&stopped);
-    // Rows are flushed in blocks; wait for the first block, then stop.
-    wait_for_rows(&stopped, 1);
+    let mut child = spawn_film(&stopped, "30 ps");
+    // The run takes seconds; stop it one second after its file appears (not waiting for
+    // a flushed row: rows are flushed every 5 s, about as long as the whole run).
+    let start = Instant::now();
+    while !stopped.join("run.h5").exists() && start.elapsed() < Duration::from_secs(120) {
+        std::thread::sleep(Duration::from_millis(20));
+    }
+    std::thread::sleep(Duration::from_secs(1));
     signal(&child, "-TERM");
     let status = child.wait().unwrap();
     assert_eq!(status.code(), Some(143));
@@ -293,7 +298,8 @@ fn max_wall_stops_with_a_checkpoint() {
 #[test]
 fn sigkill_leaves_a_readable_run_file() {
     let dir = temp_dir("kill").join("run");
-    let mut child = spawn_film(&dir);
+    // Long enough that rows are flushed (every 5 s) well before it would end.
+    let mut child = spawn_film(&dir, "300 ps");
     wait_for_rows(&dir, 1);
     signal(&child, "-KILL");
     let _ = child.wait();
@@ -447,7 +453,9 @@ fn stopped_sweep_point_is_resumed() {
     while !stopped.join("point_0001/run.h5").exists() && start.elapsed() < Duration::from_secs(120) {
         std::thread::sleep(Duration::from_millis(20));
     }
-    wait_for_rows(&stopped.join("point_0001"), 1);
+    // Not waiting for a flushed row: rows are flushed every 5 s, longer than the point
+    // takes. The point runs for seconds; a stop 0.3 s after its file appears lands inside.
+    std::thread::sleep(Duration::from_millis(300));
     signal(&child, "-TERM");
     assert_eq!(child.wait().unwrap().code(), Some(143));
     let o = bin().args(args(&stopped)).output().unwrap();

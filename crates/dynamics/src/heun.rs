@@ -104,7 +104,7 @@ impl Heun {
         let damping = h.basis_damping();
         Self {
             stream: NoiseStream::new(seed, STREAM_LLG_THERMAL),
-            consts: vec![SiteConst::default(); damping.len()],
+            consts: vec![SiteConst::default(); BLOCK + damping.len()],
             damping,
             predictor: vec![[0.0; 3]; n],
             noise: vec![[0.0; 3]; n],
@@ -148,16 +148,23 @@ impl Heun {
         }
         let mu = h.basis_mu_mev();
         let mut thermal = false;
-        for (b, c) in self.consts.iter_mut().enumerate() {
-            let alpha = self.damping[b];
+        let nb = self.damping.len();
+        for (b, &alpha) in self.damping.iter().enumerate() {
             let variance = 2.0 * alpha * K_B * temperature / (GAMMA_PER_PS * mu[b] * dt);
-            *c = SiteConst { gamma_ll: GAMMA_PER_PS / (1.0 + alpha * alpha), alpha, sigma: variance.sqrt() };
+            self.consts[b] =
+                SiteConst { gamma_ll: GAMMA_PER_PS / (1.0 + alpha * alpha), alpha, sigma: variance.sqrt() };
             thermal |= variance > 0.0;
+        }
+        // Repeat the basis pattern so that a block starting at site `first` reads its
+        // constants from `consts[first % nb..]` in order, with no index arithmetic per site.
+        for j in nb..self.consts.len() {
+            self.consts[j] = self.consts[j % nb];
         }
 
         let ctx = StepContext {
             h,
             consts: &self.consts,
+            nb,
             occupation: h.cell().occupation(),
             stream: self.stream,
             dt,
@@ -205,7 +212,9 @@ impl Heun {
 #[derive(Clone, Copy)]
 struct StepContext<'a> {
     h: &'a Hamiltonian,
+    /// Per-site constants of `BLOCK + nb` consecutive sites from a cell's first site.
     consts: &'a [SiteConst],
+    nb: usize,
     occupation: Option<&'a [bool]>,
     stream: NoiseStream,
     dt: f64,
@@ -224,38 +233,37 @@ spindrift_isa::multiversion! {
         pred: &mut [Vec3],
         noise: &mut [Vec3]
     ) {
-        let StepContext { h, consts, occupation, stream, dt, thermal, step_index } = *ctx;
-        let nb = consts.len();
+        let StepContext { h, consts, nb, occupation, stream, dt, thermal, step_index } = *ctx;
         // Blocks of BLOCK sites keep the field and the noise in L1 between being made and
-        // being used.
+        // being used. The site loops have no branches, so that they vectorise.
         for (block, (pred, noise)) in pred.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate() {
             let first = start + block * BLOCK;
+            let len = pred.len();
+            let consts = &consts[first % nb..][..len];
             h.field_range(spins, first, pred);
+            let here = &spins[first..first + len];
             if thermal {
                 stream.fill_gaussian3(step_index, first as u64, noise);
-            }
-            let mut b = first % nb;
-            for k in 0..pred.len() {
-                let i = first + k;
-                let c = consts[b];
-                b += 1;
-                if b == nb {
-                    b = 0;
-                }
-                if occupation.is_some_and(|o| !o[i]) {
-                    pred[k] = [0.0; 3];
-                    continue;
-                }
-                let mut field = pred[k];
-                if thermal {
-                    let g = noise[k];
+                for k in 0..len {
+                    let (c, g) = (consts[k], noise[k]);
                     let th = [c.sigma * g[0], c.sigma * g[1], c.sigma * g[2]];
                     noise[k] = th;
-                    field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
+                    let b = pred[k];
+                    pred[k] = [b[0] + th[0], b[1] + th[1], b[2] + th[2]];
                 }
-                let s = spins[i];
-                let f = llg_rhs(s, field, c.gamma_ll, c.alpha);
+            }
+            for k in 0..len {
+                let c = consts[k];
+                let s = here[k];
+                let f = llg_rhs(s, pred[k], c.gamma_ll, c.alpha);
                 pred[k] = [s[0] + dt * f[0], s[1] + dt * f[1], s[2] + dt * f[2]];
+            }
+            if let Some(occupied) = occupation {
+                for (p, &o) in pred.iter_mut().zip(&occupied[first..first + len]) {
+                    if !o {
+                        *p = [0.0; 3];
+                    }
+                }
             }
         }
     }
@@ -274,34 +282,31 @@ spindrift_isa::multiversion! {
         out: &mut [Vec3],
         noise: &mut [Vec3]
     ) -> Option<usize> {
-        let StepContext { h, consts, occupation, dt, thermal, .. } = *ctx;
-        let nb = consts.len();
+        let StepContext { h, consts, nb, occupation, dt, thermal, .. } = *ctx;
         let mut field_block = [[0.0; 3]; BLOCK];
+        let mut ok_block = [true; BLOCK];
         let mut bad = None;
-        let mut b = start % nb;
         for (block, (out, noise)) in out.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate() {
             let first = start + block * BLOCK;
-            let fields = &mut field_block[..out.len()];
+            let len = out.len();
+            let consts = &consts[first % nb..][..len];
+            let fields = &mut field_block[..len];
+            let ok = &mut ok_block[..len];
             h.field_range(predictor, first, fields);
-            for k in 0..out.len() {
-                let i = first + k;
-                let c = consts[b];
-                b += 1;
-                if b == nb {
-                    b = 0;
+            if thermal {
+                for (b, th) in fields.iter_mut().zip(&*noise) {
+                    *b = [b[0] + th[0], b[1] + th[1], b[2] + th[2]];
                 }
+            }
+            let predictor = &predictor[first..first + len];
+            // Branch-free, so that it vectorises: a failed site keeps its old spin and is
+            // found afterwards from `ok`.
+            let mut all_ok = true;
+            for k in 0..len {
+                let c = consts[k];
                 let s = out[k];
-                if occupation.is_some_and(|o| !o[i]) {
-                    noise[k] = s;
-                    continue;
-                }
-                let mut field = fields[k];
-                if thermal {
-                    let th = noise[k];
-                    field = [field[0] + th[0], field[1] + th[1], field[2] + th[2]];
-                }
-                let p = predictor[i];
-                let f = llg_rhs(p, field, c.gamma_ll, c.alpha);
+                let p = predictor[k];
+                let f = llg_rhs(p, fields[k], c.gamma_ll, c.alpha);
                 let v = [
                     0.5 * (s[0] + p[0] + dt * f[0]),
                     0.5 * (s[1] + p[1] + dt * f[1]),
@@ -310,12 +315,22 @@ spindrift_isa::multiversion! {
                 noise[k] = s;
                 let n2 = dot(v, v);
                 // One comparison catches NaN, infinity and a collapsed spin alike.
-                if !(n2.is_finite() && n2 > 0.0) {
-                    bad = first_bad(bad, Some(i));
-                    continue;
-                }
+                let good = n2.is_finite() && n2 > 0.0;
                 let inv = 1.0 / n2.sqrt();
-                out[k] = [v[0] * inv, v[1] * inv, v[2] * inv];
+                out[k] = if good { [v[0] * inv, v[1] * inv, v[2] * inv] } else { s };
+                ok[k] = good;
+                all_ok &= good;
+            }
+            if !all_ok {
+                // Vacant sites (zero spin, zero field) are the expected failures: they
+                // keep their zero spin. Any other is the first bad site of this block.
+                for k in 0..len {
+                    let vacant = occupation.is_some_and(|o| !o[first + k]);
+                    if !ok[k] && !vacant {
+                        bad = first_bad(bad, Some(first + k));
+                        break;
+                    }
+                }
             }
         }
         bad

@@ -30,6 +30,13 @@
 //! chain samples the Boltzmann distribution exactly. `sigma` is state to checkpoint
 //! ([`Metropolis::sigma`], [`Metropolis::set_sigma`]).
 //!
+//! # Energy bookkeeping
+//!
+//! [`SweepStats::energy_change`] is the sum of the accepted energy changes of a sweep, so
+//! a sampler can follow the total energy without evaluating it after every sweep. The
+//! changes are summed as integers in units of `2^-32` meV, which makes the sum independent
+//! of how the parallel chunks are grouped.
+//!
 //! # Parallel and reproducible
 //!
 //! Sites are coloured so that no bond joins two sites of one colour ([`Colouring`]); a

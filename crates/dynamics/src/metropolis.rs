@@ -34,8 +34,9 @@
 //!
 //! [`SweepStats::energy_change`] is the sum of the accepted energy changes of a sweep, so
 //! a sampler can follow the total energy without evaluating it after every sweep. The
-//! changes are summed as integers in units of `2^-32` meV, which makes the sum independent
-//! of how the parallel chunks are grouped.
+//! changes are summed as integers in units of `2^-32` meV: an integer sum does not depend
+//! on how rayon groups the chunks, so it is the same for any thread count, which a
+//! floating-point reduction would not guarantee.
 //!
 //! # Parallel and reproducible
 //!
@@ -73,10 +74,8 @@ pub const SIGMA_START: f64 = 0.5;
 /// Sites per block of a colour.
 pub const BLOCK: usize = 64 * CHUNK;
 
-/// Accepted energy changes are summed as integers in units of `2^-32` meV: integer sums
-/// do not depend on how rayon groups the chunks, so the total is the same for any thread
-/// count, which a floating-point reduction would not guarantee. A change of up to 2^31 meV
-/// fits; rounding costs at most `2^-33` meV per accepted move.
+/// Units per meV of the integer energy sum (see "Energy bookkeeping" in the module
+/// documentation): `2^32`, so a rounding costs at most `2^-33` meV per accepted move.
 const ENERGY_SCALE: f64 = 4_294_967_296.0;
 
 /// Sites whose random numbers are drawn together, into buffers on the stack (2.3 KiB).
@@ -91,7 +90,7 @@ pub struct SweepStats {
     pub attempted: u64,
     /// Sum of the energy changes of the accepted moves, meV: the total energy after the
     /// sweep minus before, up to rounding (each change is rounded to a multiple of
-    /// `2^-32` meV, see [`Metropolis::sweep`]).
+    /// `2^-32` meV; see the module documentation).
     pub energy_change: f64,
 }
 
@@ -314,20 +313,21 @@ spindrift_isa::multiversion! {
                 } else {
                     Some([-s[0], -s[1], -s[2]])
                 };
-                let mut change = 0.0;
-                let accepted = trial.filter(|t| {
-                    let de = h.energy_change(spins, i, *t);
-                    change = de;
-                    de <= 0.0 || u[3] < (-de * beta).exp()
-                });
-                *o = accepted.unwrap_or(s);
+                // The accepted spin and its energy change, meV.
+                let accepted = trial
+                    .map(|t| (t, h.energy_change(spins, i, t)))
+                    .filter(|&(_, de)| de <= 0.0 || u[3] < (-de * beta).exp());
                 k.attempted += 1;
                 k.cone_attempted += cone as u64;
-                if accepted.is_some() {
-                    k.accepted += 1;
-                    k.cone_accepted += cone as u64;
-                    k.energy_change += (change * ENERGY_SCALE).round() as i128;
-                }
+                *o = match accepted {
+                    Some((t, de)) => {
+                        k.accepted += 1;
+                        k.cone_accepted += cone as u64;
+                        k.energy_change += (de * ENERGY_SCALE).round() as i128;
+                        t
+                    }
+                    None => s,
+                };
             }
         }
         k

@@ -12,8 +12,9 @@
 //! lanes an instruction handles; every operation is still one correctly rounded IEEE-754
 //! addition, multiplication, division or square root, because Rust never contracts
 //! `a * b + c` into a fused multiply-add on its own (the `fma` feature is enabled only because
-//! x86-64-v3 includes it; no code here calls `mul_add`). The dynamics tests compare the
-//! levels bit for bit on this machine.
+//! x86-64-v3 includes it; no code here calls `mul_add`). The end-to-end test
+//! `results_are_identical_on_every_instruction_set_level` (crates/cli) compares the
+//! baseline and the best level of the machine it runs on, bit for bit.
 //!
 //! # Choosing by hand
 //!

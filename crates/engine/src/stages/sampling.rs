@@ -16,8 +16,8 @@ use spindrift_dynamics::{Heun, HeunParams, Metropolis};
 use spindrift_observe::{susceptibility_peak, Samples, ScanPoint};
 
 /// Sweeps between fresh evaluations of the Monte Carlo running energy. Each costs about
-/// a third of a sweep; the running sum drifts by rounding only (about `1e-16` relative per
-/// sweep), far below the statistical error of any average.
+/// one field evaluation, a small part of a sweep; between them the running sum drifts by
+/// rounding only, far below the statistical error of any average.
 const ENERGY_REFRESH: u64 = 100;
 
 struct Plan {

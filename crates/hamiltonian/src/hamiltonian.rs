@@ -700,32 +700,15 @@ impl RowPass<'_> {
         }
         let inner_lo = inner_lo.min(last);
         let inner_hi = inner_hi.max(inner_lo);
-        let coefficients = pack.map(|r| (r.m, r.iso.unwrap_or(0.0)));
-        let add = |h: &mut Vec3, p: usize, s: &Vec3| {
-            let (m, j) = &coefficients[p];
-            if ISO {
-                add_iso(h, s, *j);
-            } else {
-                add_matrix(h, s, m);
-            }
-        };
-        let edge = |out: &mut [Vec3], c1: i64| {
-            let k = (c1 * self.nb + self.shift) as usize;
-            let mut h = if FRESH { [0.0; 3] } else { out[k] };
-            for (p, r) in pack.iter().enumerate() {
-                if let Some(t1) = wrap(c1 + r.o1, n1, self.periodic) {
-                    add(&mut h, p, &self.spins[(r.base + t1 * self.nb) as usize]);
-                }
-            }
-            out[k] = h;
-        };
         for c1 in first..inner_lo {
-            edge(out, c1);
+            self.edge::<K, ISO, FRESH>(out, pack, c1);
         }
         if inner_lo < inner_hi {
             let len = (inner_hi - inner_lo) as usize;
             let k0 = (inner_lo * self.nb + self.shift) as usize;
             let j0 = pack.map(|r| (r.base + (inner_lo + r.o1) * self.nb) as usize);
+            let m = pack.map(|r| r.m);
+            let j = pack.map(|r| r.iso.unwrap_or(0.0));
             if self.nb == 1 {
                 // Plain slices, which the compiler vectorises.
                 let out = &mut out[k0..k0 + len];
@@ -733,7 +716,7 @@ impl RowPass<'_> {
                 for (k, o) in out.iter_mut().enumerate() {
                     let mut h = if FRESH { [0.0; 3] } else { *o };
                     for p in 0..K {
-                        add(&mut h, p, &s[p][k]);
+                        add_bond::<ISO>(&mut h, &s[p][k], &m[p], j[p]);
                     }
                     *o = h;
                 }
@@ -743,15 +726,39 @@ impl RowPass<'_> {
                     let o = &mut out[k0 + k * nb];
                     let mut h = if FRESH { [0.0; 3] } else { *o };
                     for p in 0..K {
-                        add(&mut h, p, &self.spins[j0[p] + k * nb]);
+                        add_bond::<ISO>(&mut h, &self.spins[j0[p] + k * nb], &m[p], j[p]);
                     }
                     *o = h;
                 }
             }
         }
         for c1 in inner_hi..last {
-            edge(out, c1);
+            self.edge::<K, ISO, FRESH>(out, pack, c1);
         }
+    }
+
+    /// `pack` for the one cell `c1`, whose neighbours may wrap around the row's ends. A
+    /// method rather than a closure, so that it is inlined into each instruction-set copy.
+    #[inline(always)]
+    fn edge<const K: usize, const ISO: bool, const FRESH: bool>(
+        &self,
+        out: &mut [Vec3],
+        pack: &[RowBond; K],
+        c1: i64,
+    ) {
+        let k = (c1 * self.nb + self.shift) as usize;
+        let mut h = if FRESH { [0.0; 3] } else { out[k] };
+        for r in pack {
+            if let Some(t1) = wrap(c1 + r.o1, self.n1, self.periodic) {
+                add_bond::<ISO>(
+                    &mut h,
+                    &self.spins[(r.base + t1 * self.nb) as usize],
+                    &r.m,
+                    r.iso.unwrap_or(0.0),
+                );
+            }
+        }
+        out[k] = h;
     }
 
     /// Adds the on-site terms to the sums in `out`.
@@ -771,6 +778,16 @@ impl RowPass<'_> {
                 onsite.add(&mut out[i], &self.spins[self.lo + i]);
             }
         }
+    }
+}
+
+/// `o += M s`, or `o += j s` for an isotropic bond (`ISO`).
+#[inline(always)]
+fn add_bond<const ISO: bool>(o: &mut Vec3, s: &Vec3, m: &[Vec3; 3], j: f64) {
+    if ISO {
+        add_iso(o, s, j);
+    } else {
+        add_matrix(o, s, m);
     }
 }
 

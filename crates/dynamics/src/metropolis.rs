@@ -299,10 +299,12 @@ spindrift_isa::multiversion! {
         let mut trials = [[0.0; 3]; DRAWS];
         let mut de = [0.0; DRAWS];
         let mut units = [0.0; DRAWS];
+        let mut pass = [false; DRAWS];
         for (out, sites) in out.chunks_mut(DRAWS).zip(sites.chunks(DRAWS)) {
             let n = sites.len();
             let (uniforms, normals, old) = (&mut uniforms[..n], &mut normals[..n], &mut old[..n]);
             let (trials, de, units) = (&mut trials[..n], &mut de[..n], &mut units[..n]);
+            let pass = &mut pass[..n];
             stream.fill_uniform4_at(unif_step, sites, uniforms);
             stream.fill_gaussian3_at(gauss_step, sites, normals);
             for (o, &i) in old.iter_mut().zip(sites) {
@@ -312,17 +314,25 @@ spindrift_isa::multiversion! {
                 *t = trial_spin(*s, u[0], *g, sigma);
             }
             h.energy_changes(spins, sites, trials, de);
+            // `|` rather than `||`: the factor is computed for every site, so the loop has
+            // no branch. A NaN change (a Gaussian move of zero length) fails both tests.
+            for ((p, &d), u) in pass.iter_mut().zip(&*de).zip(&*uniforms) {
+                *p = (d <= 0.0) | (u[3] < boltzmann_factor(-d * beta));
+            }
+            for (((o, &p), t), s) in out.iter_mut().zip(&*pass).zip(&*trials).zip(&*old) {
+                // A select by bit masks, which the compiler keeps free of branches.
+                let keep = u64::from(p).wrapping_neg();
+                *o = std::array::from_fn(|a| f64::from_bits((t[a].to_bits() & keep) | (s[a].to_bits() & !keep)));
+            }
+            for ((x, &p), &d) in units.iter_mut().zip(&*pass).zip(&*de) {
+                *x = if p { (d * ENERGY_SCALE).round() } else { 0.0 };
+            }
             let (mut accepted, mut cone_attempted, mut cone_accepted) = (0u64, 0u64, 0u64);
-            for k in 0..n {
-                let (u, d) = (uniforms[k], de[k]);
+            for (&p, u) in pass.iter().zip(&*uniforms) {
                 let cone = u[0] < P_CONE;
-                // A NaN change (a Gaussian move that hit zero length) fails both tests.
-                let pass = d <= 0.0 || u[3] < boltzmann_factor(-d * beta);
-                out[k] = if pass { trials[k] } else { old[k] };
-                accepted += u64::from(pass);
+                accepted += u64::from(p);
                 cone_attempted += u64::from(cone);
-                cone_accepted += u64::from(cone & pass);
-                units[k] = if pass { (d * ENERGY_SCALE).round() } else { 0.0 };
+                cone_accepted += u64::from(cone & p);
             }
             counts.attempted += n as u64;
             counts.accepted += accepted;

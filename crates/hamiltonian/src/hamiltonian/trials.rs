@@ -102,6 +102,7 @@ struct AxisStep {
 }
 
 impl AxisStep {
+    #[inline(always)]
     fn new(o: i32, n: usize, periodic: bool) -> Self {
         let n = n as i64;
         let o = i64::from(o);
@@ -147,20 +148,29 @@ impl Hamiltonian {
         let (n1, n2) = (cells[0] as u32, cells[1] as u32);
         let (inv_nb, inv1, inv2) = (1.0 / f64::from(nb), 1.0 / f64::from(n1), 1.0 / f64::from(n2));
 
-        // Phase 1: cell coordinates and basis site.
-        let mut c: Coords = [[0; LANES]; 3];
+        // Phase 1: the basis site of each site (all the same for a one-site basis).
         let mut basis = [0u32; LANES];
-        for (k, &i) in sites.iter().enumerate() {
-            let cell = if nb == 1 { i } else { quotient(i, nb, inv_nb) };
-            basis[k] = i - cell * nb;
-            let row = quotient(cell, n1, inv1);
-            c[0][k] = cell - row * n1;
-            c[2][k] = quotient(row, n2, inv2);
-            c[1][k] = row - c[2][k] * n2;
+        if nb > 1 {
+            for (b, &i) in basis.iter_mut().zip(sites) {
+                *b = i - quotient(i, nb, inv_nb) * nb;
+            }
         }
         let b0 = basis[0];
         let mixed = basis[..len].iter().fold(0, |acc, &b| acc | (b ^ b0)) != 0;
         let passes = if mixed { 0..nb } else { b0..b0 + 1 };
+        // Cell coordinates of every site, needed only where a site is in no run.
+        let coordinates = || {
+            let mut c: Coords = [[0; LANES]; 3];
+            for (k, &i) in sites.iter().enumerate() {
+                let cell = if nb == 1 { i } else { quotient(i, nb, inv_nb) };
+                let row = quotient(cell, n1, inv1);
+                c[0][k] = cell - row * n1;
+                c[2][k] = quotient(row, n2, inv2);
+                c[1][k] = row - c[2][k] * n2;
+            }
+            c
+        };
+        let mut c: Option<Coords> = None;
 
         let mut old = [[0.0; 3]; LANES];
         for (o, &i) in old.iter_mut().zip(sites) {
@@ -172,11 +182,12 @@ impl Hamiltonian {
             let mut h: Fields = [[0.0; LANES]; 3];
             let mut generic = [mixed; LANES];
             if !mixed {
-                self.add_bonds_by_runs(spins, sites, &c, bu, &mut h, &mut generic);
+                self.add_bonds_by_runs(spins, sites, bu, &mut h, &mut generic);
             }
-            if generic[..len].iter().any(|&g| g) {
+            if generic[..len].iter().fold(false, |any, &g| any | g) {
+                let c = c.get_or_insert_with(coordinates);
                 for bond in &self.fused[bu] {
-                    self.add_bond(spins, bond, &c, &generic, &mut h, len);
+                    self.add_bond(spins, bond, c, &generic, &mut h, len);
                 }
             }
             // Phase 3: the energy change, as in `energy_change`.
@@ -208,26 +219,32 @@ impl Hamiltonian {
         &self,
         spins: &[Vec3],
         sites: &[u32],
-        c: &Coords,
         b: usize,
         h: &mut Fields,
         generic: &mut [bool; LANES],
     ) {
         let len = sites.len();
+        let cells = self.cell.cells();
         let nb = self.cell.basis_len() as u32;
+        let (n1, n2) = (cells[0] as u32, cells[1] as u32);
+        let row_len = n1 * nb;
         let mut k0 = 0;
         while k0 < len {
-            let same_row = |k: usize| c[1][k] == c[1][k0] && c[2][k] == c[2][k0];
-            let d = if k0 + 1 < len && same_row(k0 + 1) { sites[k0 + 1].wrapping_sub(sites[k0]) } else { 0 };
+            // One integer division per run, not per site.
+            let i0 = sites[k0];
+            let row = i0 / row_len;
+            let row_end = (row + 1) * row_len;
+            let d = if k0 + 1 < len { sites[k0 + 1].wrapping_sub(i0) } else { 0 };
             let mut k1 = k0 + 1;
             if d == 1 || d == 2 {
-                while k1 < len && sites[k1].wrapping_sub(sites[k1 - 1]) == d && same_row(k1) {
+                while k1 < len && sites[k1].wrapping_sub(sites[k1 - 1]) == d && sites[k1] < row_end {
                     k1 += 1;
                 }
             }
             // Sites of one basis site step by a multiple of the basis.
             if k1 - k0 >= MIN_RUN && d % nb == 0 {
-                let run = Run { k0, len: k1 - k0, c: [c[0][k0], c[1][k0], c[2][k0]], dc: d / nb };
+                let c = [(i0 - row * row_len) / nb, row % n2, row / n2];
+                let run = Run { k0, len: k1 - k0, c, dc: d / nb };
                 for bond in &self.fused[b] {
                     if d == 1 {
                         self.add_bond_run::<1>(spins, bond, &run, h);

@@ -2,26 +2,32 @@
 //! [`Hamiltonian::energy_changes`], for Monte Carlo.
 //!
 //! A block of at most [`LANES`] sites is handled in phases, each a loop over the sites
-//! without branches, so that the compiler vectorises across sites:
+//! without branches where it matters, so that the compiler vectorises across sites:
 //!
-//! 1. Cell and basis site of each site, without integer division (which does not
-//!    vectorise): for integers `0 <= x < 2^32` and `1 <= n < 2^32`, with `x = q n + r`,
-//!    the product `x * (1/n)` of rounded numbers is `x/n` within a relative `2^-52 (1 +
-//!    2^-52)`, an absolute error below `2^-20 / n`, while `x/n` lies in `[q, q + 1 - 1/n]`;
-//!    so its truncation is `q` or `q - 1`, and the remainder `x - (q - 1) n >= n` tells
-//!    which.
-//! 2. For each bond of the basis site, the neighbour of every site of the block: per axis
-//!    `t = c + o` wrapped once (periodic) or checked against the faces (open), with the
-//!    per-bond constants of [`AxisStep`], then the linear index; the neighbour's spin is
-//!    loaded and `M s` added where the bond exists. Bonds that are pure exchange add
-//!    `J s` (no zero products).
+//! 1. The basis site of each site (for a basis of several sites), and the runs of the
+//!    block: groups of at least [`MIN_RUN`] consecutive sites in one row of cells whose
+//!    indices step by 1 or 2 (a checkerboard class of a simple cubic lattice steps by 2,
+//!    one sublattice of a two-site basis too). Along a run every bond's neighbours step
+//!    alike, so for each bond the neighbour row is found once and the neighbours' spins
+//!    are read with strided contiguous loads (wide loads and shuffles, no gathers), in at
+//!    most two stretches, before and after a periodic wrap.
+//! 2. Sites in no run take the per-site path: cell coordinates without integer division
+//!    (which does not vectorise): for integers `0 <= x < 2^32` and `1 <= n < 2^32`, with
+//!    `x = q n + r`, the product `x * (1/n)` of rounded numbers is `x/n` within a relative
+//!    `2^-52 (1 + 2^-52)`, an absolute error below `2^-20 / n`, while `x/n` lies in
+//!    `[q, q + 1 - 1/n]`; so its truncation is `q` or `q - 1`, and the remainder
+//!    `x - (q - 1) n >= n` tells which. Then per bond and axis `t = c + o` wrapped once
+//!    (periodic) or checked against the faces (open), with the per-bond constants of
+//!    [`AxisStep`], the linear index, and a masked load of the neighbour's spin.
 //! 3. The energy change from the pair field and the on-site terms.
 //!
-//! Each site adds its bonds in bond-list order with the same operations as the one-site
-//! [`Hamiltonian::pair_field_mev`], so the result is that of
-//! [`Hamiltonian::energy_change`] bit for bit (tested below). When the sites of a block
-//! have different basis sites, phases 2 and 3 run once per basis site and each site keeps
-//! the result of its own; a Monte Carlo colour class split by basis site needs one pass.
+//! Bonds that are pure exchange add `J s` (no zero products). Each site adds its bonds in
+//! bond-list order with the same operations as the one-site
+//! [`Hamiltonian::pair_field_mev`], skipping bonds an open face cuts, so the result is that
+//! of [`Hamiltonian::energy_change`] bit for bit whichever path a site takes (tested
+//! below). When the sites of a block have different basis sites, all take the per-site
+//! path, and phases 2 and 3 run once per basis site, each site keeping the result of its
+//! own; a Monte Carlo colour class split by basis site needs one pass.
 
 use super::{FusedBond, Hamiltonian};
 use spindrift_lattice::{dot, Vec3};

@@ -10,9 +10,16 @@
 //! recolouring (J. C. Culberson, "Iterated greedy graph coloring and the difficulty
 //! landscape", Tech. Rep. TR 92-07, University of Alberta, 1992; quoted from memory): the
 //! sites are coloured again class by class, the last class first, which can only keep or
-//! lower the number of colours. It works for any lattice, basis, range of couplings and
-//! boundary conditions, since it only follows the bond list. Nearest-neighbour
-//! simple-cubic and honeycomb lattices of even size come out two-coloured.
+//! lower the number of colours; it stops early at two colours, the fewest any graph with a
+//! bond needs. It works for any lattice, basis, range of couplings and boundary
+//! conditions, since it only follows the bond list. Nearest-neighbour simple-cubic and
+//! honeycomb lattices of even size come out two-coloured.
+//!
+//! Finally each colour is split by basis site, so that all sites of a class have the same
+//! bonds (the Monte Carlo kernel treats a block of them at once; see
+//! `Hamiltonian::energy_changes`). A subset of an independent set is independent, so the
+//! classes still form a proper colouring; where a colour holds one basis site only (any
+//! one-site basis, the nearest-neighbour honeycomb) nothing changes.
 
 use crate::error::StepError;
 use spindrift_hamiltonian::{Hamiltonian, CHUNK};
@@ -93,6 +100,11 @@ impl Colouring {
         let mut order: Vec<u32> = vec![0; n];
         let mut size: Vec<usize> = Vec::new();
         for pass in 0..ITERATED_PASSES {
+            // Two colours are the fewest possible once any bond joins two sites (greedy
+            // gives one colour only when none does).
+            if count <= 2 {
+                break;
+            }
             size.clear();
             size.resize(count, 0);
             for &c in colour.iter().filter(|&&c| c != NONE) {
@@ -118,6 +130,33 @@ impl Colouring {
             colour.iter_mut().for_each(|c| *c = NONE);
             count = greedy(h, order[..acc].iter().map(|&i| i as usize), &mut colour, &mut used)?;
         }
+        // Split each colour by basis site: a class of the refined colouring is still an
+        // independent set, and its sites all have the same bonds, which the Monte Carlo
+        // kernel needs to treat a block of them at once. Empty classes are dropped.
+        let nb = cell.basis_len();
+        let mut used_class = vec![false; count * nb];
+        for (i, c) in colour.iter().enumerate() {
+            if *c != NONE {
+                used_class[*c as usize * nb + i % nb] = true;
+            }
+        }
+        let mut renumber = vec![NONE as usize; count * nb];
+        let mut classes = 0;
+        for (r, used) in renumber.iter_mut().zip(&used_class) {
+            if *used {
+                *r = classes;
+                classes += 1;
+            }
+        }
+        if classes > NONE as usize {
+            return Err(StepError::TooLarge { what: "colours", value: classes, limit: NONE as usize });
+        }
+        for (i, c) in colour.iter_mut().enumerate() {
+            if *c != NONE {
+                *c = renumber[*c as usize * nb + i % nb] as u16;
+            }
+        }
+        let count = classes;
         let mut starts = vec![0usize; count + 1];
         for &c in &colour {
             if c != NONE {

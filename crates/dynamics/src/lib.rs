@@ -27,6 +27,7 @@
 //! formats, stages or observers; it steps spins under a `Hamiltonian`.
 #![deny(missing_docs)]
 
+mod acceptance;
 mod colouring;
 mod error;
 pub mod heun;

@@ -8,15 +8,19 @@
 //! * with probability [`P_CONE`], a Gaussian move `S' = (S + sigma g) / |S + sigma g|`, `g`
 //!   three standard normal deviates: its density depends only on the angle between `S` and
 //!   `S'`, so it is symmetric; `sigma` sets its reach and is tuned (see below);
-//! * with probability [`P_UNIFORM`], a new direction uniform on the sphere, which
-//!   decorrelates fast at high temperature;
+//! * with probability [`P_UNIFORM`], a new direction uniform on the sphere, `S' = g / |g|`
+//!   with the same three normal deviates `g`: an isotropic Gaussian vector points in a
+//!   uniformly distributed direction (M. E. Muller, Commun. ACM 2, 19 (1959); quoted from
+//!   memory). It decorrelates fast at high temperature;
 //! * otherwise the reflection `S' = -S`, which crosses anisotropy barriers that small moves
 //!   cannot.
 //!
-//! A move that changes the energy by `dE` (meV, from [`Hamiltonian::energy_change`]) is
+//! A move that changes the energy by `dE` (meV, [`Hamiltonian::energy_change`]) is
 //! accepted with probability `min(1, exp(-dE / kB T))` (N. Metropolis, A. W. Rosenbluth,
-//! M. N. Rosenbluth, A. H. Teller and E. Teller, J. Chem. Phys. 21, 1087 (1953)); at
-//! `T = 0` only moves with `dE <= 0` are accepted.
+//! M. N. Rosenbluth, A. H. Teller and E. Teller, J. Chem. Phys. 21, 1087 (1953)): when
+//! `dE <= 0` or `u < exp(-dE / kB T)` for a uniform `u` on `[0, 1)` in steps of `2^-32`,
+//! with the exponential of `crate::acceptance` (no library call, the same bits on every
+//! instruction-set level). At `T = 0` only moves with `dE <= 0` are accepted.
 //!
 //! # Adapting the Gaussian move
 //!
@@ -40,19 +44,23 @@
 //!
 //! # Parallel and reproducible
 //!
-//! Sites are coloured so that no bond joins two sites of one colour ([`Colouring`]); a
-//! sweep visits the colours in order and updates all sites of a colour at once. Within a
-//! colour the trial of site `i` in sweep `n` uses only the fixed spins of other colours
-//! and the random numbers addressed by `(n, i)` in stream 1:
-//! `gaussian3(2n, i)` for the Gaussian move and `uniform4(2n + 1, i)` for the choice of
-//! move (word 0), the uniform direction (words 1 and 2) and the acceptance (word 3). So
-//! a sweep gives bitwise the same spins for any thread count.
+//! Sites are coloured so that no bond joins two sites of one colour ([`Colouring`]; each
+//! class holds one basis site); a sweep visits the classes in order and updates all sites
+//! of a class at once. Within a class the trial of site `i` in sweep `n` uses only the
+//! fixed spins of other classes and the random numbers addressed by `(n, i)` in stream 1,
+//! drawn for every site whatever its move: `gaussian3(2n, i)` for the Gaussian and the
+//! uniform move, and `uniform4(2n + 1, i)`, whose word 0 chooses the move and word 3 is
+//! the acceptance test's `u` (words 1 and 2 are not used). So a sweep gives bitwise the
+//! same spins for any thread count.
 //!
-//! Each colour is processed in blocks of at most [`BLOCK`] sites: the trials of a block
+//! Each class is processed in blocks of at most [`BLOCK`] sites: the trials of a block
 //! are decided in parallel into a buffer, then written back in parallel over chunks of the
-//! spin array. Memory: 4 bytes per site for the colour lists, plus a buffer of
-//! `24 * min(largest colour, BLOCK)` bytes.
+//! spin array. Deciding runs 64 sites at a time in phases without branches, so that they
+//! vectorise: random numbers in bulk, trial spins (every move computed, one selected),
+//! energy changes ([`Hamiltonian::energy_changes`]), acceptance. Memory: 4 bytes per
+//! site for the class lists, plus a buffer of `24 * min(largest class, BLOCK)` bytes.
 
+use crate::acceptance::boltzmann_factor;
 use crate::colouring::Colouring;
 use crate::error::{check_len, StepError};
 use rayon::prelude::*;
@@ -78,8 +86,8 @@ pub const BLOCK: usize = 64 * CHUNK;
 /// documentation): `2^32`, so a rounding costs at most `2^-33` meV per accepted move.
 const ENERGY_SCALE: f64 = 4_294_967_296.0;
 
-/// Sites whose random numbers are drawn together, into buffers on the stack (2.3 KiB).
-const DRAWS: usize = 48;
+/// Sites whose trials are decided together, in buffers on the stack (about 8 KiB).
+const DRAWS: usize = 64;
 
 /// Counts of one sweep.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -277,59 +285,91 @@ struct TrialContext<'a> {
 }
 
 spindrift_isa::multiversion! {
-    /// Decides the trials of `sites` (one colour, so no trial reads another's spin) into
-    /// `out`; the spins do not change until every trial of the block is decided. Compiled
-    /// per instruction-set level (same bits on each).
+    /// Decides the trials of `sites` (one colour class, so no trial reads another's spin)
+    /// into `out`; the spins do not change until every trial of the block is decided.
+    /// Compiled per instruction-set level (same bits on each).
     fn decide(ctx: &TrialContext<'_>, out: &mut [Vec3], sites: &[u32]) -> Counts {
         let TrialContext { h, spins, stream, sigma, beta, gauss_step, unif_step } = *ctx;
-        let mut k = Counts::default();
-        // Random numbers in bulk for a few sites at a time (bitwise the per-site values),
-        // on the stack.
+        let mut counts = Counts::default();
+        // A few sites at a time, in phases without branches: random numbers in bulk (bitwise
+        // the per-site values), trial spins, energy changes, acceptance. On the stack.
         let mut uniforms = [[0.0; 4]; DRAWS];
         let mut normals = [[0.0; 3]; DRAWS];
+        let mut old = [[0.0; 3]; DRAWS];
+        let mut trials = [[0.0; 3]; DRAWS];
+        let mut de = [0.0; DRAWS];
+        let mut units = [0.0; DRAWS];
+        let mut pass = [false; DRAWS];
         for (out, sites) in out.chunks_mut(DRAWS).zip(sites.chunks(DRAWS)) {
-            let uniforms = &mut uniforms[..sites.len()];
-            let normals = &mut normals[..sites.len()];
+            let n = sites.len();
+            let (uniforms, normals, old) = (&mut uniforms[..n], &mut normals[..n], &mut old[..n]);
+            let (trials, de, units) = (&mut trials[..n], &mut de[..n], &mut units[..n]);
+            let pass = &mut pass[..n];
             stream.fill_uniform4_at(unif_step, sites, uniforms);
             stream.fill_gaussian3_at(gauss_step, sites, normals);
-            for (((o, &site), u), g) in out.iter_mut().zip(sites).zip(&*uniforms).zip(&*normals) {
-                let i = site as usize;
-                let s = spins[i];
-                let cone = u[0] < P_CONE;
-                let trial = if cone {
-                    let v = [s[0] + sigma * g[0], s[1] + sigma * g[1], s[2] + sigma * g[2]];
-                    let n2 = dot(v, v);
-                    if n2 > 0.0 && n2.is_finite() {
-                        let inv = 1.0 / n2.sqrt();
-                        Some([v[0] * inv, v[1] * inv, v[2] * inv])
-                    } else {
-                        None
-                    }
-                } else if u[0] < P_CONE + P_UNIFORM {
-                    let z = 2.0 * u[1] - 1.0;
-                    let r = (1.0 - z * z).max(0.0).sqrt();
-                    let phi = std::f64::consts::TAU * u[2];
-                    Some([r * phi.cos(), r * phi.sin(), z])
-                } else {
-                    Some([-s[0], -s[1], -s[2]])
-                };
-                // The accepted spin and its energy change, meV.
-                let accepted = trial
-                    .map(|t| (t, h.energy_change(spins, i, t)))
-                    .filter(|&(_, de)| de <= 0.0 || u[3] < (-de * beta).exp());
-                k.attempted += 1;
-                k.cone_attempted += cone as u64;
-                *o = match accepted {
-                    Some((t, de)) => {
-                        k.accepted += 1;
-                        k.cone_accepted += cone as u64;
-                        k.energy_change += (de * ENERGY_SCALE).round() as i128;
-                        t
-                    }
-                    None => s,
-                };
+            for (o, &i) in old.iter_mut().zip(sites) {
+                *o = spins[i as usize];
             }
+            for (((t, s), u), g) in trials.iter_mut().zip(&*old).zip(&*uniforms).zip(&*normals) {
+                *t = trial_spin(*s, u[0], *g, sigma);
+            }
+            h.energy_changes(spins, sites, trials, de);
+            // `|` rather than `||`: the factor is computed for every site, so the loop has
+            // no branch. A NaN change (a Gaussian move of zero length) fails both tests.
+            for ((p, &d), u) in pass.iter_mut().zip(&*de).zip(&*uniforms) {
+                *p = (d <= 0.0) | (u[3] < boltzmann_factor(-d * beta));
+            }
+            for (((o, &p), t), s) in out.iter_mut().zip(&*pass).zip(&*trials).zip(&*old) {
+                // A select by bit masks, which the compiler keeps free of branches.
+                let keep = u64::from(p).wrapping_neg();
+                *o = std::array::from_fn(|a| f64::from_bits((t[a].to_bits() & keep) | (s[a].to_bits() & !keep)));
+            }
+            for ((x, &p), &d) in units.iter_mut().zip(&*pass).zip(&*de) {
+                *x = if p { (d * ENERGY_SCALE).round() } else { 0.0 };
+            }
+            let (mut accepted, mut cone_attempted, mut cone_accepted) = (0u64, 0u64, 0u64);
+            for (&p, u) in pass.iter().zip(&*uniforms) {
+                let cone = u[0] < P_CONE;
+                accepted += u64::from(p);
+                cone_attempted += u64::from(cone);
+                cone_accepted += u64::from(cone & p);
+            }
+            counts.attempted += n as u64;
+            counts.accepted += accepted;
+            counts.cone_attempted += cone_attempted;
+            counts.cone_accepted += cone_accepted;
+            counts.energy_change += integer_sum(units);
         }
-        k
+        counts
+    }
+}
+
+/// The trial spin for spin `s` (see "Moves" in the module documentation): `choice` uniform
+/// on `[0, 1)` picks the move, `g` holds three standard normal deviates. Without branches;
+/// a Gaussian move of zero length gives NaN, which the acceptance test rejects.
+#[inline(always)]
+fn trial_spin(s: Vec3, choice: f64, g: Vec3, sigma: f64) -> Vec3 {
+    let cone = choice < P_CONE;
+    let reflect = choice >= P_CONE + P_UNIFORM;
+    let v = if cone { [s[0] + sigma * g[0], s[1] + sigma * g[1], s[2] + sigma * g[2]] } else { g };
+    let inv = 1.0 / dot(v, v).sqrt();
+    let t = [v[0] * inv, v[1] * inv, v[2] * inv];
+    if reflect {
+        [-s[0], -s[1], -s[2]]
+    } else {
+        t
+    }
+}
+
+/// The sum of integers held as `f64`, exactly, as an `i128`; in `i64` (which vectorises)
+/// when every term is below `2^56` in magnitude, so that up to 128 terms cannot overflow.
+#[inline(always)]
+fn integer_sum(units: &[f64]) -> i128 {
+    const LIMIT: f64 = 72_057_594_037_927_936.0; // 2^56
+    let small = units.iter().fold(true, |ok, u| ok & (u.abs() < LIMIT));
+    if small && units.len() <= 128 {
+        i128::from(units.iter().map(|&u| u as i64).sum::<i64>())
+    } else {
+        units.iter().map(|&u| u as i128).sum()
     }
 }

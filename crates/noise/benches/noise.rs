@@ -1,6 +1,7 @@
 //! Throughput of the bulk generators over 10^5 sites (three Gaussians or four uniforms per
-//! site), and of the per-site call for comparison. Criterion reports elements per second;
-//! the time per site is the reciprocal.
+//! site), in one call and in the 256-site blocks of the Heun step, and of the per-site call
+//! for comparison. Criterion reports elements per second; the time per site is the
+//! reciprocal.
 // criterion's macros define public functions without doc comments.
 #![allow(missing_docs)]
 
@@ -21,6 +22,16 @@ fn bench(c: &mut Criterion) {
         b.iter(|| {
             step += 1;
             thermal.fill_gaussian3(black_box(step), 0, &mut g);
+            black_box(&g);
+        })
+    });
+    // As the Heun step calls it: one 256-site block at a time, output in L1.
+    group.bench_function("fill_gaussian3 in 256-site blocks, 1e5 sites", |b| {
+        b.iter(|| {
+            step += 1;
+            for (k, block) in g.chunks_mut(256).enumerate() {
+                thermal.fill_gaussian3(black_box(step), (k * 256) as u64, block);
+            }
             black_box(&g);
         })
     });

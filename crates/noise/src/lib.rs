@@ -44,21 +44,31 @@
 //!   `(step, site)` from one Philox call (words `w0..w3`), by the Box-Muller transform
 //!   (G. E. P. Box, M. E. Muller, Ann. Math. Statist. 29, 610, 1958) on uniforms
 //!   `u_i = (w_i + 1/2) / 2^32` in the open interval `(0, 1)`:
-//!   `r1 (cos 2 pi u1, sin 2 pi u1)` and `r2 sin(pi (u3 - 1/2))`, with
-//!   `r_i = sqrt(-2 ln u_i)`. The third uses only the sine half of its pair, on a half turn:
-//!   the sine of an angle uniform on `(-pi/2, pi/2)` has the same (arcsine) law as the
-//!   cosine of an angle uniform on the circle, and costs one polynomial instead of two.
+//!   `r1 (cos theta, sin theta)` and `r2 sin(pi (u3 - 1/2))`, with `r_i = sqrt(-2 ln u_i)`.
+//!   The angle `theta` is uniform on the circle: `w1`'s top two bits choose the quarter of
+//!   the circle around one of the four axes and the other 30 bits the offset in it, which
+//!   reaches each of the `2^32` angles `2 pi (j + 1/2) / 2^32` once (the same angles as
+//!   `2 pi u1`, in another order, so that the sine and cosine need polynomials on
+//!   `|x| <= pi/4` only). The third deviate uses only the sine half of its pair, on a half
+//!   turn: the sine of an angle uniform on `(-pi/2, pi/2)` has the same (arcsine) law as
+//!   the cosine of an angle uniform on the circle, and costs one polynomial instead of two.
+//!
+//!   **Accuracy:** each deviate is within `1.5e-10` of the exact transform of its words;
+//!   that moves its distribution function by at most `6e-11`, half of what the `2^-32`
+//!   discreteness of the words already does (see `transform.rs` for the kernels, their
+//!   errors and the tests against the standard library).
 //!
 //!   **Tail cut-off:** the smallest uniform is `2^-33`, so the Box-Muller radius is at most
-//!   `sqrt(66 ln 2) = 6.7637`, and no deviate exceeds 6.7637 in magnitude. An exact standard
-//!   normal exceeds that with probability `1.3e-11` per deviate; below it the radial law is
-//!   exact up to the `2^-32` quantisation of `u`.
+//!   `sqrt(66 ln 2) = 6.7637`, and no deviate exceeds 6.7637 in magnitude (the sines and
+//!   cosines never exceed 1). An exact standard normal exceeds that with probability
+//!   `1.3e-11` per deviate; below it the radial law is exact up to the `2^-32` quantisation
+//!   of `u`.
 //! * [`NoiseStream::fill_gaussian3`] evaluates many consecutive sites at once, bit for bit
 //!   equal to the per-site calls: Philox on blocks of 16 sites, then branch-free
-//!   logarithm and sine/cosine kernels (Taylor series, within `4.4e-16` relative of the C
-//!   library's, see the tests) that the compiler vectorises. The kernels use only correctly
-//!   rounded IEEE operations and Rust never contracts them into fused multiply-adds, so the
-//!   numbers are also the same on every platform and for every `target-cpu`.
+//!   logarithm and sine/cosine kernels (fitted polynomials) that the compiler vectorises.
+//!   The kernels use only correctly rounded IEEE operations and Rust never contracts them
+//!   into fused multiply-adds, so the numbers are also the same on every platform and for
+//!   every `target-cpu`.
 //! * [`NoiseStream::uniform4`] and [`NoiseStream::fill_uniform4`] give four uniforms
 //!   `w_i / 2^32` on `[0, 1)`, resolution `2^-32`.
 //! * [`NoiseStream::fill_gaussian3_at`] and [`NoiseStream::fill_uniform4_at`] do the same
@@ -66,13 +76,14 @@
 //!
 //! # Cost
 //!
-//! On the baseline x86-64 target (SSE2) `fill_gaussian3` takes about 17 ns per site
-//! (three deviates), of which Philox is about 4 ns; compiled for x86-64-v3 (AVX2) about
-//! 9.5 ns, with the same bits. The bulk functions are compiled for every level of
-//! `spindrift_isa` and run on the widest the CPU has, so the default portable build gets
-//! the faster figure too. `fill_uniform4` takes about 5 ns per site.
-//! * [`NoiseStream::uniform4`] and [`NoiseStream::fill_uniform4`] give four uniforms on
-//!   `[0, 1)` with resolution `2^-32`.
+//! Measured on an AMD EPYC (Zen 4) with one thread, filling 256-site blocks as the Heun
+//! step does: `fill_gaussian3` takes about 4.4 ns per site (three deviates) on x86-64-v4
+//! (AVX-512), of which Philox is about 1.5 ns; about 7 ns on x86-64-v3 (AVX2) and 13 ns
+//! on the baseline x86-64 (SSE2), all with the same bits. `fill_uniform4` takes about
+//! 2.4, 3 and 5.5 ns. The bulk functions are compiled for every level of `spindrift_isa`
+//! and run on the widest the CPU has, so the default portable build gets the faster
+//! figures. The loops are bound by the number of vector instructions, so every polynomial
+//! term counts: about 0.1 ns per site.
 //!
 //! All deviates are dimensionless; callers scale them (for example by the thermal field's
 //! standard deviation in tesla).
@@ -102,8 +113,8 @@ pub const STREAM_METROPOLIS: u32 = 1;
 /// Stream id of random initial states (random spins, random dilution).
 pub const STREAM_INITIAL_STATE: u32 = 2;
 
-/// Sites per block in the bulk functions. The block's words (256 bytes) stay in L1; 8 to 32
-/// measured the same within noise, 16 is in the middle.
+/// Sites per block in the bulk functions. The block's words (256 bytes) stay in L1; 16 to
+/// 128 measured the same within noise with the present kernels, 8 slower.
 const LANES: usize = 16;
 
 /// SplitMix64's increment, `2^64` divided by the golden ratio.
@@ -146,7 +157,7 @@ impl NoiseStream {
 
     /// Three independent standard normal deviates (mean 0, variance 1, dimensionless) for
     /// `(step, site)`, from one Philox call. Magnitudes never exceed 6.7637 (see the crate
-    /// documentation for this cut-off).
+    /// documentation for this cut-off and for the accuracy).
     #[inline]
     pub fn gaussian3(&self, step: u64, site: u64) -> [f64; 3] {
         gaussian3_from_words(self.words(step, site))

@@ -1,0 +1,101 @@
+#!/usr/bin/env python3
+"""Regenerates the polynomial coefficients of crates/noise/src/transform.rs.
+
+Each kernel is a polynomial in z = x^2 (or z = s^2 for the logarithm) fitted by the Remez
+exchange algorithm to minimise the maximum absolute error of the stated function on the
+stated interval, in 60-digit arithmetic (mpmath), then rounded to double. The Rust tests
+check the resulting kernels against the standard library, so this script only documents
+where the numbers come from; it is not run by the build.
+
+Usage: python3 fit_polynomials.py   (needs mpmath)
+"""
+import mpmath as mp
+
+mp.mp.dps = 60
+
+
+def remez(f, a, b, degree, iterations=40):
+    """Minimax polynomial (coefficients lowest first) of f on [a, b] and its maximum error."""
+    a, b = mp.mpf(a), mp.mpf(b)
+    n = degree + 2
+    xs = [(a + b) / 2 - (b - a) / 2 * mp.cos(mp.pi * i / (n - 1)) for i in range(n)]
+    grid = [a + (b - a) * k / 4000 for k in range(4001)]
+    for _ in range(iterations):
+        matrix = mp.matrix(n, n)
+        rhs = mp.matrix(n, 1)
+        for i, x in enumerate(xs):
+            for j in range(degree + 1):
+                matrix[i, j] = x**j
+            matrix[i, degree + 1] = (-1) ** i
+            rhs[i] = f(x)
+        solution = mp.lu_solve(matrix, rhs)
+        coefs = [solution[j] for j in range(degree + 1)]
+        errors = [f(x) - mp.polyval(coefs[::-1], x) for x in grid]
+        # Local extrema of the error, merged into a sequence of alternating signs.
+        extrema = []
+        for k, e in enumerate(errors):
+            left = errors[k - 1] if k > 0 else None
+            right = errors[k + 1] if k < len(errors) - 1 else None
+            if (left is None or abs(e) >= abs(left)) and (right is None or abs(e) >= abs(right)):
+                if extrema and mp.sign(extrema[-1][1]) == mp.sign(e):
+                    if abs(e) > abs(extrema[-1][1]):
+                        extrema[-1] = (grid[k], e)
+                else:
+                    extrema.append((grid[k], e))
+        while len(extrema) > n:
+            extrema.pop(0 if abs(extrema[0][1]) < abs(extrema[-1][1]) else -1)
+        worst = max(abs(e) for _, e in extrema)
+        xs = [x for x, _ in extrema]
+        if abs(worst - abs(solution[degree + 1])) < 1e-6 * worst:
+            break
+    return coefs, worst
+
+
+def at_zero_or(limit, g):
+    return lambda z: limit if z == 0 else g(z)
+
+
+def atanh_series(z):
+    s = mp.sqrt(z)
+    return (mp.atanh(s) / s - 1) / z
+
+
+def sine_series(z):
+    x = mp.sqrt(z)
+    return (mp.sin(x) - x) / (z * x)
+
+
+def cosine_series(z):
+    return (mp.cos(mp.sqrt(z)) - 1) / z
+
+
+def show(name, coefs):
+    print(f"const {name}: [f64; {len(coefs)}] = [")
+    for c in coefs:
+        print(f"    {float(c)!r},")
+    print("];")
+
+
+# ln m = 2 s (1 + z P(z)), s = (m - 1)/(m + 1), z = s^2, m in [sqrt(1/2), sqrt(2)).
+z_ln = (3 - 2 * mp.sqrt(2)) ** 2
+ln_p, e = remez(at_zero_or(mp.mpf(1) / 3, atanh_series), 0, z_ln, 3)
+print(f"// (atanh(s)/s - 1)/z on [0, {float(z_ln):.6f}]: max error {float(e):.3g}")
+show("LN_P", ln_p)
+
+# sin x = x + x z S(z) and cos x = 1 + z C(z) for |x| <= pi/4.
+z_q = (mp.pi / 4) ** 2
+sin_s, e = remez(at_zero_or(-mp.mpf(1) / 6, sine_series), 0, z_q, 3)
+print(f"// (sin x - x)/x^3 on |x| <= pi/4: max error {float(e):.3g}")
+show("SIN_C", sin_s)
+cos_c, e = remez(at_zero_or(-mp.mpf(1) / 2, cosine_series), 0, z_q, 4)
+print(f"// (cos x - 1)/x^2 on |x| <= pi/4: max error {float(e):.3g}")
+show("COS_C", cos_c)
+
+# sin x = x + x z S(z) for |x| < pi/2, with the constant lowered by 1.5 times the maximum
+# error so that S never exceeds the exact series: then |sin x| <= 1 holds with a margin of
+# about 1.6e-13 at pi/2, far above the rounding of the evaluation.
+z_h = (mp.pi / 2) ** 2
+half_s, e = remez(at_zero_or(-mp.mpf(1) / 6, sine_series), 0, z_h, 5)
+half_s[0] -= mp.mpf(1.5) * e
+print(f"// (sin x - x)/x^3 on |x| <= pi/2: max error {float(e):.3g}, shifted down by 1.5 times that")
+show("SIN_HALF_C", half_s)

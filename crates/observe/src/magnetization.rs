@@ -171,30 +171,68 @@ impl MagnetizationObserver {
 
 impl Weights {
     /// Sums `mu_i S_i` over one chunk into its slot of partial sums.
+    ///
+    /// The chunk is cut at plane boundaries; within a plane the spins of each basis site
+    /// are summed first and weighted once, so that the accumulators of total, species and
+    /// layer are touched once per basis site and plane rather than once per spin, and the
+    /// sum over a single-site basis vectorises (the order of additions is fixed by the
+    /// chunk, so the result is the same for any thread count).
     fn accumulate(&self, start: usize, chunk: &[Vec3], acc: &mut [Vec3]) {
         acc.fill([0.0; 3]);
+        let nb = self.basis_len;
         let species_count = self.inv_species.len();
         let (head, layers) = acc.split_at_mut(1 + species_count);
-        let mut b = start % self.basis_len;
-        let mut in_plane = start % self.plane;
+        let mut pos = 0;
         let mut layer_base = 0;
-        for s in chunk {
-            let mu = self.moment[b];
-            let v = [mu * s[0], mu * s[1], mu * s[2]];
-            add(&mut head[0], v);
-            add(&mut head[1 + self.species[b]], v);
-            add(&mut layers[layer_base + self.layer[b]], v);
-            b += 1;
-            if b == self.basis_len {
-                b = 0;
+        while pos < chunk.len() {
+            let site = start + pos;
+            let end = (pos + self.plane - site % self.plane).min(chunk.len());
+            let segment = &chunk[pos..end];
+            for offset in 0..nb.min(segment.len()) {
+                let b = (site + offset) % nb;
+                let sum = if nb == 1 { sum_contiguous(segment) } else { sum_strided(&segment[offset..], nb) };
+                let mu = self.moment[b];
+                let v = [mu * sum[0], mu * sum[1], mu * sum[2]];
+                add(&mut head[0], v);
+                add(&mut head[1 + self.species[b]], v);
+                add(&mut layers[layer_base + self.layer[b]], v);
             }
-            in_plane += 1;
-            if in_plane == self.plane {
-                in_plane = 0;
-                layer_base += self.layers_per_cell;
-            }
+            pos = end;
+            layer_base += self.layers_per_cell;
         }
     }
+}
+
+/// Sum of 3-vectors in eight interleaved partial sums (so that it vectorises), added in a
+/// fixed order at the end.
+#[inline]
+fn sum_contiguous(spins: &[Vec3]) -> Vec3 {
+    const LANES: usize = 8;
+    let mut lanes = [[0.0; 3]; LANES];
+    let mut blocks = spins.chunks_exact(LANES);
+    for block in &mut blocks {
+        for (l, s) in lanes.iter_mut().zip(block) {
+            add(l, *s);
+        }
+    }
+    let mut total = [0.0; 3];
+    for l in lanes {
+        add(&mut total, l);
+    }
+    for s in blocks.remainder() {
+        add(&mut total, *s);
+    }
+    total
+}
+
+/// Sum of `spins[0], spins[stride], spins[2 stride], ...`.
+#[inline]
+fn sum_strided(spins: &[Vec3], stride: usize) -> Vec3 {
+    let mut total = [0.0; 3];
+    for s in spins.iter().step_by(stride) {
+        add(&mut total, *s);
+    }
+    total
 }
 
 #[inline(always)]

@@ -5,7 +5,7 @@ use crate::args::RunArgs;
 use crate::exit::{self, bad_input, numerical, output, Failure, Outcome};
 use crate::progress::Progress;
 use crate::signals;
-use crate::system::{load_system, set_threads};
+use crate::system::{load_system, on_pool, set_threads};
 use anyhow::anyhow;
 use spindrift_config::{parse_wall_duration, Loaded, Validated};
 use spindrift_engine::{
@@ -87,7 +87,7 @@ pub fn run(args: &RunArgs) -> Outcome {
         }
         let mut file = RunFile::reopen(dir, &checkpoint.rows).map_err(output)?;
         file.set_snapshot_compression(v.snapshot_compression);
-        let end = {
+        let end = on_pool(|| {
             let mut runner = Runner::resume(
                 v.hamiltonian.clone(),
                 &v.protocol,
@@ -95,10 +95,10 @@ pub fn run(args: &RunArgs) -> Outcome {
                 &mut progress,
                 control,
                 checkpoint,
-            )
-            .map_err(engine_failure)?;
-            runner.run(None)
-        };
+            )?;
+            Ok(runner.run(None))
+        })
+        .map_err(engine_failure)?;
         (dir.clone(), file, end)
     } else {
         let dir = args.out.clone().unwrap_or_else(|| default_out(&args.config, ""));
@@ -117,12 +117,12 @@ pub fn run(args: &RunArgs) -> Outcome {
         let head = header(&loaded, &v);
         spindrift_engine::Sink::header(&mut file, &head).map_err(output)?;
         drop(head);
-        let end = {
+        let end = on_pool(|| {
             let mut runner =
-                Runner::new(v.hamiltonian.clone(), &v.protocol, &mut file, &mut progress, control)
-                    .map_err(engine_failure)?;
-            runner.run(None)
-        };
+                Runner::new(v.hamiltonian.clone(), &v.protocol, &mut file, &mut progress, control)?;
+            Ok(runner.run(None))
+        })
+        .map_err(engine_failure)?;
         (dir, file, end)
     };
     let wall = started.elapsed().as_secs_f64();

@@ -49,6 +49,14 @@ fn read_final_spins(dir: &Path) -> anyhow::Result<Vec<[f64; 3]>> {
     }
 }
 
+/// Runs `f` on a worker thread of the global pool. The parallel loops of a run then start
+/// from a worker, instead of handing each loop from the main thread to the pool and
+/// waiting for it to come back (a futex wake-up and wait per loop, several per Monte Carlo
+/// sweep).
+pub fn on_pool<R: Send>(f: impl FnOnce() -> R + Send) -> R {
+    rayon::scope(|_| f())
+}
+
 /// Sets the number of worker threads for the whole process.
 pub fn set_threads(threads: Option<usize>) -> Result<usize, Failure> {
     if let Some(n) = threads {

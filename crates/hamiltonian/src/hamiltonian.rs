@@ -851,7 +851,7 @@ fn wrap(x: i64, n: i64, periodic: bool) -> Option<i64> {
 mod tests {
     use super::*;
     use crate::builder::{add_shell, DmiKind, ShellCoupling, ShellRef};
-    use spindrift_lattice::{preset, unit_hash};
+    use spindrift_lattice::{preset, unit_hash, Coupling};
 
     impl Hamiltonian {
         /// The field as a plain per-site loop over the bond list (the kernel before rows
@@ -880,25 +880,50 @@ mod tests {
         }
     }
 
-    fn build(name: &str, cells: [usize; 3], periodic: [bool; 3], shells: usize, occ: f64) -> Hamiltonian {
+    /// Couplings of a test system beyond lattice and shells (see [`test_system`]).
+    pub(super) struct TestCouplings {
+        /// Seed of the random occupation.
+        pub(super) seed: u64,
+        /// DMI strength, meV: interfacial (normal z) on shell 1, bulk on the others.
+        pub(super) d: f64,
+        /// Shells `1 .. dmi_shells + 1` carry DMI; farther ones are pure exchange.
+        pub(super) dmi_shells: usize,
+        /// Adds one bond with a full 3x3 tensor between the first and last basis sites.
+        pub(super) tensor: bool,
+    }
+
+    /// A one-species test system: `J = 3/shell` meV on `shells` shells, DMI and tensor as
+    /// `c` says, anisotropy and a field in general directions, occupancy `occ`.
+    pub(super) fn test_system(
+        name: &str,
+        cells: [usize; 3],
+        periodic: [bool; 3],
+        shells: usize,
+        occ: f64,
+        c: TestCouplings,
+    ) -> Hamiltonian {
         let mut crystal = preset(name, 2.5, None).unwrap();
         for s in crystal.basis.iter_mut() {
             s.occupancy = occ;
         }
         let nb = crystal.basis.len();
-        let cell = Supercell::new(crystal, cells, periodic, 5).unwrap();
+        let cell = Supercell::new(crystal, cells, periodic, c.seed).unwrap();
         let mut bonds = BondList::new(nb);
         for shell in 1..=shells {
+            let kind =
+                if shell == 1 { DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] } } else { DmiKind::Bulk };
             let spec = ShellCoupling {
                 shell: ShellRef::Index(shell),
                 j: 3.0 / shell as f64,
-                dmi: Some((
-                    0.7,
-                    if shell == 1 { DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] } } else { DmiKind::Bulk },
-                )),
+                dmi: (shell <= c.dmi_shells).then_some((c.d, kind)),
                 pair: None,
             };
             add_shell(&cell, &mut bonds, &spec).unwrap();
+        }
+        if c.tensor {
+            let t = [[0.3, 0.1, -0.2], [0.05, -0.1, 0.4], [0.2, 0.3, 0.1]];
+            let coupling = Coupling { j: 0.7, d: [0.1, -0.2, 0.3], tensor: Some(t) };
+            bonds.add_pair(0, nb - 1, [1, 0, 0], [2.5, 0.0, 0.0], coupling).unwrap();
         }
         let species = vec![Species {
             name: "A".into(),
@@ -908,6 +933,14 @@ mod tests {
             axis: [0.1, 0.2, 1.0],
         }];
         Hamiltonian::new(cell, species, bonds, [0.1, -0.3, 0.7]).unwrap()
+    }
+
+    /// A unit vector of site `i`, uniform on the sphere over sites, from `seed`.
+    pub(super) fn unit(seed: u64, i: usize) -> Vec3 {
+        let z = 2.0 * unit_hash(seed, 1, i as u64) - 1.0;
+        let phi = std::f64::consts::TAU * unit_hash(seed, 2, i as u64);
+        let r = (1.0 - z * z).sqrt();
+        [r * phi.cos(), r * phi.sin(), z]
     }
 
     // The row kernel must reproduce the per-site sum bit for bit (common practice for a
@@ -933,19 +966,11 @@ mod tests {
             ("fcc", [17, 2, 2], [true, false, true], 3, 1.0),
         ];
         for (name, cells, periodic, shells, occ) in cases {
-            let h = build(name, cells, periodic, shells, occ);
+            let couplings = TestCouplings { seed: 5, d: 0.7, dmi_shells: shells, tensor: false };
+            let h = test_system(name, cells, periodic, shells, occ, couplings);
             let n = h.len();
-            let spins: Vec<Vec3> = (0..n)
-                .map(|i| {
-                    if !h.cell().is_occupied(i) {
-                        return [0.0; 3];
-                    }
-                    let z = 2.0 * unit_hash(9, 1, i as u64) - 1.0;
-                    let phi = std::f64::consts::TAU * unit_hash(9, 2, i as u64);
-                    let r = (1.0 - z * z).sqrt();
-                    [r * phi.cos(), r * phi.sin(), z]
-                })
-                .collect();
+            let spins: Vec<Vec3> =
+                (0..n).map(|i| if h.cell().is_occupied(i) { unit(9, i) } else { [0.0; 3] }).collect();
             let expected: Vec<Vec3> = (0..n).map(|i| h.field_per_site(&spins, i)).collect();
             let total = h.energy(&spins).total();
             assert!((h.energy_total(&spins) - total).abs() <= 1e-12 * (1.0 + total.abs()), "{name}");

@@ -377,10 +377,9 @@ impl Hamiltonian {
 
 #[cfg(test)]
 mod tests {
+    use super::super::tests::{test_system, unit, TestCouplings};
     use super::*;
-    use crate::builder::{add_shell, DmiKind, ShellCoupling, ShellRef};
-    use crate::species::Species;
-    use spindrift_lattice::{preset, unit_hash, BondList, Coupling, Supercell};
+    use spindrift_lattice::unit_hash;
 
     // Against integer division (common practice): exact for the extremes of both operands
     // and a spread of values between.
@@ -407,55 +406,6 @@ mod tests {
         }
     }
 
-    fn system(
-        name: &str,
-        cells: [usize; 3],
-        periodic: [bool; 3],
-        shells: usize,
-        tensor: bool,
-        occ: f64,
-    ) -> Hamiltonian {
-        let mut crystal = preset(name, 2.5, None).unwrap();
-        let nb = crystal.basis.len();
-        for s in crystal.basis.iter_mut() {
-            s.occupancy = occ;
-        }
-        let cell = Supercell::new(crystal, cells, periodic, 7).unwrap();
-        let mut bonds = BondList::new(nb);
-        for shell in 1..=shells {
-            let dmi =
-                if shell == 1 { DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] } } else { DmiKind::Bulk };
-            // The third shell is pure exchange, so both kinds of bond are covered.
-            let spec = ShellCoupling {
-                shell: ShellRef::Index(shell),
-                j: 3.0 / shell as f64,
-                dmi: (shell < 3).then_some((0.6, dmi)),
-                pair: None,
-            };
-            add_shell(&cell, &mut bonds, &spec).unwrap();
-        }
-        if tensor {
-            let t = [[0.3, 0.1, -0.2], [0.05, -0.1, 0.4], [0.2, 0.3, 0.1]];
-            let c = Coupling { j: 0.7, d: [0.1, -0.2, 0.3], tensor: Some(t) };
-            bonds.add_pair(0, nb - 1, [1, 0, 0], [2.5, 0.0, 0.0], c).unwrap();
-        }
-        let species = vec![Species {
-            name: "A".into(),
-            moment: 2.0,
-            damping: 0.1,
-            anisotropy: 0.3,
-            axis: [0.1, 0.2, 1.0],
-        }];
-        Hamiltonian::new(cell, species, bonds, [0.1, -0.3, 0.7]).unwrap()
-    }
-
-    fn unit(seed: u64, i: usize) -> Vec3 {
-        let z = 2.0 * unit_hash(seed, 1, i as u64) - 1.0;
-        let phi = std::f64::consts::TAU * unit_hash(seed, 2, i as u64);
-        let r = (1.0 - z * z).sqrt();
-        [r * phi.cos(), r * phi.sin(), z]
-    }
-
     // The block kernel must give the one-site energy change bit for bit (that one is checked
     // against total energy differences in tests/hamiltonian.rs), whichever path a site takes:
     // strided runs of step 1 and 2 (all sites, every other site, one sublattice), runs cut by
@@ -477,7 +427,8 @@ mod tests {
             ("hexagonal", [5, 3, 2], [false, false, false], 2, false, 0.9),
         ];
         for (name, cells, periodic, shells, tensor, occ) in cases {
-            let h = system(name, cells, periodic, shells, tensor, occ);
+            let couplings = TestCouplings { seed: 7, d: 0.6, dmi_shells: 2, tensor };
+            let h = test_system(name, cells, periodic, shells, occ, couplings);
             let n = h.len();
             let nb = h.cell().basis_len();
             let spins: Vec<Vec3> =

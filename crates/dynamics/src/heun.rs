@@ -26,8 +26,9 @@
 //! The second form of the corrector needs no copy of `f(S)`: the predictor carries it.
 //! The step is two passes over fixed chunks of [`CHUNK`] sites, run in parallel with rayon;
 //! every site's result depends only on its inputs, never on how chunks are scheduled, and
-//! the noise of step `n` at site `i` is `NoiseStream::new(seed, 0).gaussian3(n, i)` scaled by
-//! the site's standard deviation, so the result is bitwise the same for any thread count,
+//! the noise of step `n` at site `i` is `NoiseStream::new(seed, 0).gaussian3_dense(n, i)`
+//! scaled by the site's standard deviation (in the generator, on the Box-Muller radii, when
+//! every site has the same one), so the result is bitwise the same for any thread count,
 //! and a resumed run that passes the same step index draws the same noise.
 //!
 //! # Memory
@@ -168,7 +169,10 @@ impl Heun {
             occupation: h.cell().occupation(),
             stream: self.stream,
             dt,
-            thermal,
+            thermal: thermal.then(|| {
+                let sigma = self.consts[0].sigma;
+                self.consts[..nb].iter().all(|c| c.sigma == sigma).then_some(sigma)
+            }),
             step_index,
         };
 
@@ -218,7 +222,9 @@ struct StepContext<'a> {
     occupation: Option<&'a [bool]>,
     stream: NoiseStream,
     dt: f64,
-    thermal: bool,
+    /// `None` at zero temperature; `Some(Some(sigma))` when every site has the thermal
+    /// width `sigma` (T), `Some(None)` when the widths differ by basis site.
+    thermal: Option<Option<f64>>,
     step_index: u64,
 }
 
@@ -242,14 +248,16 @@ spindrift_isa::multiversion! {
             let consts = &consts[first % nb..][..len];
             h.field_range(spins, first, pred);
             let here = &spins[first..first + len];
-            if thermal {
-                stream.fill_gaussian3(step_index, first as u64, noise);
-                for k in 0..len {
-                    let (c, g) = (consts[k], noise[k]);
-                    let th = [c.sigma * g[0], c.sigma * g[1], c.sigma * g[2]];
-                    noise[k] = th;
-                    let b = pred[k];
-                    pred[k] = [b[0] + th[0], b[1] + th[1], b[2] + th[2]];
+            if let Some(sigma) = thermal {
+                // One width for every site: the generator scales the radii itself.
+                stream.fill_gaussian3_dense(step_index, first as u64, sigma.unwrap_or(1.0), noise);
+                if sigma.is_none() {
+                    for (th, c) in noise.iter_mut().zip(consts) {
+                        *th = [c.sigma * th[0], c.sigma * th[1], c.sigma * th[2]];
+                    }
+                }
+                for (b, th) in pred.iter_mut().zip(&*noise) {
+                    *b = [b[0] + th[0], b[1] + th[1], b[2] + th[2]];
                 }
             }
             for k in 0..len {
@@ -293,7 +301,7 @@ spindrift_isa::multiversion! {
             let fields = &mut field_block[..len];
             let ok = &mut ok_block[..len];
             h.field_range(predictor, first, fields);
-            if thermal {
+            if thermal.is_some() {
                 for (b, th) in fields.iter_mut().zip(&*noise) {
                     *b = [b[0] + th[0], b[1] + th[1], b[2] + th[2]];
                 }

@@ -35,6 +35,16 @@ fn bench(c: &mut Criterion) {
             black_box(&g);
         })
     });
+    // The dense layout, as the Heun step calls it (scaled by a thermal width).
+    group.bench_function("fill_gaussian3_dense in 256-site blocks, 1e5 sites", |b| {
+        b.iter(|| {
+            step += 1;
+            for (k, block) in g.chunks_mut(256).enumerate() {
+                thermal.fill_gaussian3_dense(black_box(step), (k * 256) as u64, 0.3, block);
+            }
+            black_box(&g);
+        })
+    });
     group.bench_function("gaussian3 per site, 1e5 sites", |b| {
         b.iter(|| {
             step += 1;

@@ -7,10 +7,28 @@ use super::*;
 
 const N: usize = 1_000_000;
 
-fn normals(seed: u64, stream: u32, step: u64, n: usize) -> Vec<[f64; 3]> {
+/// The two ways of drawing three deviates per site: one Philox block per site
+/// (`gaussian3`), or four sites per three blocks (`gaussian3_dense`).
+#[derive(Debug, Clone, Copy)]
+enum Layout {
+    Site,
+    Dense,
+}
+
+const LAYOUTS: [Layout; 2] = [Layout::Site, Layout::Dense];
+
+fn normals_in(layout: Layout, seed: u64, stream: u32, step: u64, n: usize) -> Vec<[f64; 3]> {
     let mut g = vec![[0.0; 3]; n];
-    NoiseStream::new(seed, stream).fill_gaussian3(step, 0, &mut g);
+    let s = NoiseStream::new(seed, stream);
+    match layout {
+        Layout::Site => s.fill_gaussian3(step, 0, &mut g),
+        Layout::Dense => s.fill_gaussian3_dense(step, 0, 1.0, &mut g),
+    }
     g
+}
+
+fn normals(seed: u64, stream: u32, step: u64, n: usize) -> Vec<[f64; 3]> {
+    normals_in(Layout::Site, seed, stream, step, n)
 }
 
 fn mean(x: &[f64]) -> f64 {
@@ -155,17 +173,18 @@ fn different_seeds_streams_and_steps_are_uncorrelated() {
 // Each of the three components is tested on its own 10^6 deviates.
 #[test]
 fn normal_moments_and_tails() {
-    for (seed, stream) in [(7u64, STREAM_LLG_THERMAL), (123_456_789, STREAM_INITIAL_STATE)] {
-        let g = normals(seed, stream, 5, N);
+    let cases = [(Layout::Site, 7u64, STREAM_LLG_THERMAL), (Layout::Site, 123_456_789, STREAM_INITIAL_STATE)];
+    for (layout, seed, stream) in cases.into_iter().chain([(Layout::Dense, 7, STREAM_LLG_THERMAL)]) {
+        let g = normals_in(layout, seed, stream, 5, N);
         let n = N as f64;
         for i in 0..3 {
             let x = component(&g, i);
             let m1 = mean(&x);
             let m2 = x.iter().map(|v| v * v).sum::<f64>() / n;
             let m4 = x.iter().map(|v| v.powi(4)).sum::<f64>() / n;
-            assert!(m1.abs() < 5.0 / n.sqrt(), "mean {m1}");
-            assert!((m2 - 1.0).abs() < 5.0 * (2.0 / n).sqrt(), "variance {m2}");
-            assert!((m4 - 3.0).abs() < 5.0 * (96.0 / n).sqrt(), "fourth moment {m4}");
+            assert!(m1.abs() < 5.0 / n.sqrt(), "{layout:?}: mean {m1}");
+            assert!((m2 - 1.0).abs() < 5.0 * (2.0 / n).sqrt(), "{layout:?}: variance {m2}");
+            assert!((m4 - 3.0).abs() < 5.0 * (96.0 / n).sqrt(), "{layout:?}: fourth moment {m4}");
             for (k, p) in [(1.0, 0.317_310_507_9), (2.0, 0.045_500_263_9), (3.0, 0.002_699_796_1)] {
                 let frac = x.iter().filter(|v| v.abs() > k).count() as f64 / n;
                 let se = (p * (1.0 - p) / n).sqrt();
@@ -204,15 +223,17 @@ fn normal_histogram_chi_square() {
         1.281_551_566,
         1.644_853_627,
     ];
-    let g = normals(31, STREAM_LLG_THERMAL, 0, N);
-    for i in 0..3 {
-        let mut counts = [0usize; 20];
-        for v in &g {
-            counts[EDGES.partition_point(|&e| e < v[i])] += 1;
+    for layout in LAYOUTS {
+        let g = normals_in(layout, 31, STREAM_LLG_THERMAL, 0, N);
+        for i in 0..3 {
+            let mut counts = [0usize; 20];
+            for v in &g {
+                counts[EDGES.partition_point(|&e| e < v[i])] += 1;
+            }
+            let expected = N as f64 / 20.0;
+            let chi2: f64 = counts.iter().map(|&c| (c as f64 - expected).powi(2) / expected).sum();
+            assert!(chi2 < 19.0 + 5.0 * 38f64.sqrt(), "{layout:?}: chi2 = {chi2}, counts {counts:?}");
         }
-        let expected = N as f64 / 20.0;
-        let chi2: f64 = counts.iter().map(|&c| (c as f64 - expected).powi(2) / expected).sum();
-        assert!(chi2 < 19.0 + 5.0 * 38f64.sqrt(), "chi2 = {chi2}, counts {counts:?}");
     }
 }
 
@@ -268,52 +289,132 @@ fn ks_statistic(mut x: Vec<f64>, cdf: impl Fn(f64) -> f64) -> f64 {
 // that misplaced a quarter of the circle or mis-scaled the radius by 1% fails it.
 #[test]
 fn kolmogorov_smirnov_against_normal_and_chi_square() {
-    let g = normals(2026, STREAM_LLG_THERMAL, 9, N);
-    let bound = 2.5 / (N as f64).sqrt();
-    let (ca, sa) = (0.3f64.cos(), 0.3f64.sin());
-    let samples = [
-        ("component 0", component(&g, 0)),
-        ("component 1", component(&g, 1)),
-        ("component 2", component(&g, 2)),
-        ("rotated pair", g.iter().map(|v| ca * v[0] + sa * v[1]).collect()),
-    ];
-    for (name, x) in samples {
-        let d = ks_statistic(x, normal_cdf);
-        assert!(d < bound, "{name}: D = {d}, bound {bound}");
+    for layout in LAYOUTS {
+        let g = normals_in(layout, 2026, STREAM_LLG_THERMAL, 9, N);
+        let bound = 2.5 / (N as f64).sqrt();
+        let (ca, sa) = (0.3f64.cos(), 0.3f64.sin());
+        let samples = [
+            ("component 0", component(&g, 0)),
+            ("component 1", component(&g, 1)),
+            ("component 2", component(&g, 2)),
+            ("rotated pair", g.iter().map(|v| ca * v[0] + sa * v[1]).collect()),
+        ];
+        for (name, x) in samples {
+            let d = ks_statistic(x, normal_cdf);
+            assert!(d < bound, "{layout:?}, {name}: D = {d}, bound {bound}");
+        }
+        let r2: Vec<f64> = g.iter().map(|v| v[0] * v[0] + v[1] * v[1]).collect();
+        let d = ks_statistic(r2, |x| 1.0 - (-0.5 * x).exp());
+        assert!(d < bound, "{layout:?}, squared radius: D = {d}, bound {bound}");
     }
-    let r2: Vec<f64> = g.iter().map(|v| v[0] * v[0] + v[1] * v[1]).collect();
-    let d = ks_statistic(r2, |x| 1.0 - (-0.5 * x).exp());
-    assert!(d < bound, "squared radius: D = {d}, bound {bound}");
 }
 
 // No correlation between the three components of one site, nor between the same component
 // of consecutive sites, nor of consecutive steps at one site: |r| < 5/sqrt(n) (common
-// practice, standard error 1/sqrt(n)).
+// practice, standard error 1/sqrt(n)). Nor between consecutive deviates of the flattened
+// sequence (component 2 of one site, component 0 of the next), or their squares: in the
+// dense layout those are the pairs that cross a site boundary and may share a radius.
 #[test]
 fn components_sites_and_steps_are_uncorrelated() {
-    let g = normals(11, STREAM_LLG_THERMAL, 0, N);
-    let c: Vec<Vec<f64>> = (0..3).map(|i| component(&g, i)).collect();
-    let bound = 5.0 / (N as f64).sqrt();
-    for (i, j) in [(0, 1), (0, 2), (1, 2)] {
-        let r = correlation(&c[i], &c[j]);
-        assert!(r.abs() < bound, "components {i},{j}: r = {r}");
+    for layout in LAYOUTS {
+        let g = normals_in(layout, 11, STREAM_LLG_THERMAL, 0, N);
+        let c: Vec<Vec<f64>> = (0..3).map(|i| component(&g, i)).collect();
+        let bound = 5.0 / (N as f64).sqrt();
+        for (i, j) in [(0, 1), (0, 2), (1, 2)] {
+            let r = correlation(&c[i], &c[j]);
+            assert!(r.abs() < bound, "{layout:?}: components {i},{j}: r = {r}");
+        }
+        for i in 0..3 {
+            let r = correlation(&c[i][..N - 1], &c[i][1..]);
+            assert!(
+                r.abs() < 5.0 / ((N - 1) as f64).sqrt(),
+                "{layout:?}: consecutive sites, component {i}: r = {r}"
+            );
+        }
+        // The squares too: Box-Muller pairs share a radius, which would show up here if two
+        // pairs were built from overlapping words.
+        let sq: Vec<Vec<f64>> = c.iter().map(|x| x.iter().map(|v| v * v).collect()).collect();
+        for (i, j) in [(0, 1), (0, 2), (1, 2)] {
+            let r = correlation(&sq[i], &sq[j]);
+            assert!(r.abs() < bound, "{layout:?}: squares of components {i},{j}: r = {r}");
+        }
+        let flat = g.as_flattened();
+        let m = flat.len() - 1;
+        let flat_sq: Vec<f64> = flat.iter().map(|v| v * v).collect();
+        for (name, x) in [("deviates", flat), ("squares", &flat_sq[..])] {
+            let r = correlation(&x[..m], &x[1..]);
+            assert!(
+                r.abs() < 5.0 / (m as f64).sqrt(),
+                "{layout:?}: consecutive {name} of the sequence: r = {r}"
+            );
+        }
+        // One site over consecutive steps; site 18 starts in the middle of a dense block.
+        let s = NoiseStream::new(11, STREAM_LLG_THERMAL);
+        let series: Vec<f64> = (0..N as u64)
+            .map(|step| match layout {
+                Layout::Site => s.gaussian3(step, 17)[0],
+                Layout::Dense => s.gaussian3_dense(step, 18)[0],
+            })
+            .collect();
+        let r = correlation(&series[..N - 1], &series[1..]);
+        assert!(r.abs() < 5.0 / ((N - 1) as f64).sqrt(), "{layout:?}: consecutive steps: r = {r}");
     }
-    for i in 0..3 {
-        let r = correlation(&c[i][..N - 1], &c[i][1..]);
-        assert!(r.abs() < 5.0 / ((N - 1) as f64).sqrt(), "consecutive sites, component {i}: r = {r}");
+}
+
+// The dense layout's bulk fill against its per-site call, bit for bit, for every offset of
+// the first site within a group of four, lengths around the group sizes, and first sites
+// that carry into the high counter word or make the call wrap around 2^64; with scale 1
+// (the public per-site values) and another scale, which multiplies each radius.
+#[test]
+fn dense_bulk_fill_equals_per_site_calls_bit_for_bit() {
+    let s = NoiseStream::new(7, STREAM_LLG_THERMAL);
+    for &first in &[0u64, 1, 2, 3, 5, (1 << 32) - 3, u64::MAX - 40, u64::MAX - 4] {
+        for len in [0usize, 1, 3, 4, 5, 31, 32, 33, 35, 64, 100, 1001] {
+            for scale in [1.0, 0.37] {
+                let mut g = vec![[f64::NAN; 3]; len];
+                s.fill_gaussian3_dense(42, first, scale, &mut g);
+                for (k, got) in g.iter().enumerate() {
+                    let site = first.wrapping_add(k as u64);
+                    let one = s.dense_site(42, site, scale);
+                    for i in 0..3 {
+                        assert_eq!(
+                            got[i].to_bits(),
+                            one[i].to_bits(),
+                            "site {site} component {i} scale {scale}"
+                        );
+                    }
+                    if scale == 1.0 {
+                        assert_eq!(one, s.gaussian3_dense(42, site));
+                    }
+                }
+            }
+        }
     }
-    // The squares too: Box-Muller pairs share a radius, which would show up here if the
-    // two pairs were built from overlapping words.
-    let sq: Vec<Vec<f64>> = c.iter().map(|x| x.iter().map(|v| v * v).collect()).collect();
-    for (i, j) in [(0, 2), (1, 2)] {
-        let r = correlation(&sq[i], &sq[j]);
-        assert!(r.abs() < bound, "squares of components {i},{j}: r = {r}");
+    // The scale multiplies the deviates (up to the rounding of one product).
+    let (mut a, mut b) = (vec![[0.0; 3]; 100], vec![[0.0; 3]; 100]);
+    s.fill_gaussian3_dense(3, 8, 1.0, &mut a);
+    s.fill_gaussian3_dense(3, 8, 0.37, &mut b);
+    for (x, y) in a.as_flattened().iter().zip(b.as_flattened()) {
+        assert!((0.37 * x - y).abs() <= 4.0 * f64::EPSILON * y.abs(), "{x} scaled {y}");
     }
-    // One site over consecutive steps.
-    let s = NoiseStream::new(11, STREAM_LLG_THERMAL);
-    let series: Vec<f64> = (0..N as u64).map(|step| s.gaussian3(step, 17)[0]).collect();
-    let r = correlation(&series[..N - 1], &series[1..]);
-    assert!(r.abs() < 5.0 / ((N - 1) as f64).sqrt(), "consecutive steps: r = {r}");
+}
+
+// Any split of the sites gives the same bits in the dense layout too, including splits that
+// cut a group of four.
+#[test]
+fn dense_layout_same_bits_for_any_chunking() {
+    let s = NoiseStream::new(2024, STREAM_LLG_THERMAL);
+    let n = 10_007;
+    let mut serial = vec![[0.0; 3]; n];
+    s.fill_gaussian3_dense(3, 0, 1.0, &mut serial);
+    for chunk in [1usize, 3, 5, 256, 1001, 3337] {
+        let mut parts = vec![[0.0; 3]; n];
+        for (t, part) in parts.chunks_mut(chunk).enumerate() {
+            s.fill_gaussian3_dense(3, (t * chunk) as u64, 1.0, part);
+        }
+        let same = serial.iter().zip(&parts).all(|(a, b)| (0..3).all(|i| a[i].to_bits() == b[i].to_bits()));
+        assert!(same, "chunks of {chunk}");
+    }
 }
 
 // Uniform on [0, 1): mean 1/2 (standard error sqrt(1/12n)), variance 1/12 (standard error

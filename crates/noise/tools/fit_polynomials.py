@@ -1,5 +1,6 @@
 #!/usr/bin/env python3
-"""Regenerates the polynomial coefficients of crates/noise/src/transform.rs.
+"""Regenerates the polynomial coefficients of crates/noise/src/transform.rs (and of the
+arctangent in crates/observe/src/atan2.rs, the last fit below).
 
 Each kernel is a polynomial in z = x^2 (or z = s^2 for the logarithm) fitted by the Remez
 exchange algorithm to minimise the maximum absolute error of the stated function on the
@@ -69,6 +70,11 @@ def cosine_series(z):
     return (mp.cos(mp.sqrt(z)) - 1) / z
 
 
+def atan_series(z):
+    u = mp.sqrt(z)
+    return (mp.atan(u) / u - 1) / z
+
+
 def show(name, coefs):
     print(f"const {name}: [f64; {len(coefs)}] = [")
     for c in coefs:
@@ -99,3 +105,9 @@ half_s, e = remez(at_zero_or(-mp.mpf(1) / 6, sine_series), 0, z_h, 5)
 half_s[0] -= mp.mpf(1.5) * e
 print(f"// (sin x - x)/x^3 on |x| <= pi/2: max error {float(e):.3g}, shifted down by 1.5 times that")
 show("SIN_HALF_C", half_s)
+
+# atan u = u + u z P(z) for |u| <= tan(pi/8) (crates/observe/src/atan2.rs).
+z_t = mp.tan(mp.pi / 8) ** 2
+atan_p, e = remez(at_zero_or(-mp.mpf(1) / 3, atan_series), 0, z_t, 9)
+print(f"// (atan(u)/u - 1)/z on |u| <= tan(pi/8): max error {float(e):.3g}")
+show("ATAN_P", atan_p)

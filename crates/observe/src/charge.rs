@@ -38,6 +38,7 @@
 //! points to `-z` in a `+z` background thus has `Q = -1`; reversing every spin (core `+z`,
 //! background `-z`) reverses `Q`, since it is odd in `m`, giving `Q = +1`.
 
+use crate::atan2::atan2;
 use crate::chunks::ChunkPlanes;
 use crate::error::ObserveError;
 use rayon::prelude::*;
@@ -48,13 +49,14 @@ use std::f64::consts::PI;
 /// Signed solid angle (sr) of the spherical triangle of three unit vectors, in
 /// `(-2 pi, 2 pi]`: `tan(Omega / 2) = S1.(S2 x S3) / (1 + S1.S2 + S2.S3 + S3.S1)`
 /// (A. van Oosterom and J. Strackee, IEEE Trans. Biomed. Eng. 30, 125 (1983)), evaluated
-/// with `atan2` so that the quadrant is right. Positive when the corners run
+/// with `atan2` (our own, `crate::atan2`: the same bits on every machine) so that the
+/// quadrant is right. Positive when the corners run
 /// counter-clockwise seen from outside the sphere.
 #[inline(always)]
 pub fn solid_angle(s1: Vec3, s2: Vec3, s3: Vec3) -> f64 {
     let numerator = dot(s1, cross(s2, s3));
     let denominator = 1.0 + dot(s1, s2) + dot(s2, s3) + dot(s3, s1);
-    2.0 * numerator.atan2(denominator)
+    2.0 * atan2(numerator, denominator)
 }
 
 /// Topological charges of one spin configuration (dimensionless).

@@ -23,6 +23,7 @@
 //! stages or files; it measures spins and analyses series of numbers.
 #![deny(missing_docs)]
 
+mod atan2;
 mod charge;
 mod chunks;
 pub mod curie;

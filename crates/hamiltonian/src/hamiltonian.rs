@@ -108,6 +108,8 @@ pub struct Hamiltonian {
     k: Vec<f64>,
     axis: Vec<Vec3>,
     field: Vec3,
+    /// The on-site terms as flat rows per basis site, where they are diagonal.
+    flat_onsite: Vec<Option<FlatOnSite>>,
     spin_count: usize,
 }
 
@@ -159,7 +161,7 @@ impl Hamiltonian {
                 }
             })
             .collect();
-        let k_field = (0..nb).map(|b| 2.0 * k[b] / mu_mev[b]).collect();
+        let k_field: Vec<f64> = (0..nb).map(|b| 2.0 * k[b] / mu_mev[b]).collect();
         let [n1, n2, _] = cell.cells();
         let fused = (0..nb)
             .map(|b| {
@@ -202,6 +204,7 @@ impl Hamiltonian {
             .collect();
         let moments = basis_species.iter().map(|s| s.moment).collect();
         let spin_count = cell.spin_count();
+        let flat_onsite = flat_onsite(&k_field, &axis, field);
         Ok(Self {
             exchange: Exchange::new(&bonds),
             dmi: Dmi::new(&bonds),
@@ -216,6 +219,7 @@ impl Hamiltonian {
             k,
             axis,
             field,
+            flat_onsite,
             spin_count,
         })
     }
@@ -259,6 +263,7 @@ impl Hamiltonian {
     pub fn set_field(&mut self, b: Vec3) {
         self.field = b;
         self.zeeman.field = b;
+        self.flat_onsite = flat_onsite(&self.k_field, &self.axis, b);
     }
 
     /// Moment of site `i`, μB (0 on a vacant site).
@@ -426,7 +431,7 @@ impl Hamiltonian {
             }
             if ONSITE {
                 let onsite = OnSite { k_field: self.k_field[b], axis: self.axis[b], field: self.field };
-                row.onsite(out, &onsite);
+                row.onsite(out, &onsite, self.flat_onsite[b].as_ref());
             }
         }
     }
@@ -659,6 +664,50 @@ impl OnSite {
             h[a] = h[a] + p * self.axis[a] + self.field[a];
         }
     }
+
+    /// `k_field e_a e_a` per component `a` when the anisotropy field is diagonal in the
+    /// Cartesian components (the axis along x, y or z, or no anisotropy): then
+    /// `(h + p e) + B` is `(h_a + d_a s_a) + B_a` with the same bits (`s.e` is the one
+    /// component times 1, the other products are zeros that do not change a sum), and the
+    /// pass needs no regrouping of 3-vectors into vector registers.
+    #[inline(always)]
+    fn diagonal(&self) -> Option<Vec3> {
+        let e = self.axis;
+        let unit = |a: usize| (0..3).all(|b| e[b] == if a == b { 1.0 } else { 0.0 });
+        if self.k_field == 0.0 || (0..3).any(unit) {
+            Some([self.k_field * e[0], self.k_field * e[1], self.k_field * e[2]])
+        } else {
+            None
+        }
+    }
+}
+
+/// Numbers per step of the flat on-site pass: 64 sites' 3-vectors.
+const FLAT_LEN: usize = 3 * 64;
+
+/// The on-site constants of one basis site as flat rows, for the pass over a row of
+/// cells when the lattice has one basis site (consecutive sites, so consecutive numbers)
+/// and [`OnSite::diagonal`] holds: `d[3 k + a] = k_field e_a e_a` and `b[3 k + a] = B_a`.
+#[derive(Debug, Clone)]
+struct FlatOnSite {
+    d: [f64; FLAT_LEN],
+    b: [f64; FLAT_LEN],
+}
+
+impl FlatOnSite {
+    fn new(onsite: &OnSite) -> Option<Self> {
+        let d = onsite.diagonal()?;
+        Some(Self { d: std::array::from_fn(|l| d[l % 3]), b: std::array::from_fn(|l| onsite.field[l % 3]) })
+    }
+}
+
+/// [`FlatOnSite`] of every basis site (`None` where the axis is not Cartesian).
+fn flat_onsite(k_field: &[f64], axis: &[Vec3], field: Vec3) -> Vec<Option<FlatOnSite>> {
+    k_field
+        .iter()
+        .zip(axis)
+        .map(|(&k_field, &axis)| FlatOnSite::new(&OnSite { k_field, axis, field }))
+        .collect()
 }
 
 /// The cells `first .. last` of one basis site in a row, and how to reach their
@@ -790,13 +839,25 @@ impl RowPass<'_> {
 
     /// Adds the on-site terms to the sums in `out`.
     #[inline(always)]
-    fn onsite(&self, out: &mut [Vec3], onsite: &OnSite) {
+    fn onsite(&self, out: &mut [Vec3], onsite: &OnSite, flat: Option<&FlatOnSite>) {
         let k0 = (self.first * self.nb + self.shift) as usize;
         let len = (self.last - self.first) as usize;
         if self.nb == 1 {
             let spins = &self.spins[self.lo + k0..self.lo + k0 + len];
-            for (o, s) in out[k0..k0 + len].iter_mut().zip(spins) {
-                onsite.add(o, s);
+            let out = &mut out[k0..k0 + len];
+            if let Some(flat) = flat {
+                // The row as flat numbers against the constants repeated to the same period:
+                // plain loops over slices, which vectorise without regrouping 3-vectors.
+                let (out, spins) = (out.as_flattened_mut(), spins.as_flattened());
+                for (o, s) in out.chunks_mut(FLAT_LEN).zip(spins.chunks(FLAT_LEN)) {
+                    for (((o, s), d), b) in o.iter_mut().zip(s).zip(&flat.d).zip(&flat.b) {
+                        *o = *o + d * s + b;
+                    }
+                }
+            } else {
+                for (o, s) in out.iter_mut().zip(spins) {
+                    onsite.add(o, s);
+                }
             }
         } else {
             let nb = self.nb as usize;
@@ -890,10 +951,15 @@ mod tests {
         pub(super) dmi_shells: usize,
         /// Adds one bond with a full 3x3 tensor between the first and last basis sites.
         pub(super) tensor: bool,
+        /// Anisotropy constant (meV) and axis (need not be normalised).
+        pub(super) anisotropy: (f64, Vec3),
     }
 
+    /// A general anisotropy axis, off every Cartesian direction.
+    pub(super) const TILTED: (f64, Vec3) = (0.3, [0.1, 0.2, 1.0]);
+
     /// A one-species test system: `J = 3/shell` meV on `shells` shells, DMI and tensor as
-    /// `c` says, anisotropy and a field in general directions, occupancy `occ`.
+    /// `c` says, a field in a general direction, occupancy `occ`.
     pub(super) fn test_system(
         name: &str,
         cells: [usize; 3],
@@ -929,8 +995,8 @@ mod tests {
             name: "A".into(),
             moment: 2.0,
             damping: 0.1,
-            anisotropy: 0.3,
-            axis: [0.1, 0.2, 1.0],
+            anisotropy: c.anisotropy.0,
+            axis: c.anisotropy.1,
         }];
         Hamiltonian::new(cell, species, bonds, [0.1, -0.3, 0.7]).unwrap()
     }
@@ -964,9 +1030,16 @@ mod tests {
             ("bcc", [19, 2, 2], [false, true, true], 2, 0.8),
             ("honeycomb", [18, 3, 1], [true, true, false], 3, 1.0),
             ("fcc", [17, 2, 2], [true, false, true], 3, 1.0),
+            // A row longer than one step of the flat on-site pass (64 sites).
+            ("simple-cubic", [150, 2, 2], [true, false, true], 1, 1.0),
         ];
-        for (name, cells, periodic, shells, occ) in cases {
-            let couplings = TestCouplings { seed: 5, d: 0.7, dmi_shells: shells, tensor: false };
+        // A tilted axis, and the axes and absent anisotropy for which the on-site pass of a
+        // one-site basis runs over flat numbers.
+        let axes = [TILTED, (0.3, [0.0, 0.0, 2.0]), (-0.2, [1.0, 0.0, 0.0]), (0.0, [0.3, 0.1, 0.5])];
+        for ((name, cells, periodic, shells, occ), anisotropy) in
+            cases.into_iter().flat_map(|case| axes.map(|axis| (case, axis)))
+        {
+            let couplings = TestCouplings { seed: 5, d: 0.7, dmi_shells: shells, tensor: false, anisotropy };
             let h = test_system(name, cells, periodic, shells, occ, couplings);
             let n = h.len();
             let spins: Vec<Vec3> =
@@ -981,7 +1054,7 @@ mod tests {
                     let e = expected[start + k];
                     assert!(
                         (0..3).all(|a| o[a].to_bits() == e[a].to_bits()),
-                        "{name} {cells:?} site {}: {o:?} != {e:?}",
+                        "{name} {cells:?} axis {anisotropy:?} site {}: {o:?} != {e:?}",
                         start + k
                     );
                 }

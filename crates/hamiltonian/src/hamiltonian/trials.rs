@@ -377,7 +377,7 @@ impl Hamiltonian {
 
 #[cfg(test)]
 mod tests {
-    use super::super::tests::{test_system, unit, TestCouplings};
+    use super::super::tests::{test_system, unit, TestCouplings, TILTED};
     use super::*;
     use spindrift_lattice::unit_hash;
 
@@ -427,7 +427,7 @@ mod tests {
             ("hexagonal", [5, 3, 2], [false, false, false], 2, false, 0.9),
         ];
         for (name, cells, periodic, shells, tensor, occ) in cases {
-            let couplings = TestCouplings { seed: 7, d: 0.6, dmi_shells: 2, tensor };
+            let couplings = TestCouplings { seed: 7, d: 0.6, dmi_shells: 2, tensor, anisotropy: TILTED };
             let h = test_system(name, cells, periodic, shells, occ, couplings);
             let n = h.len();
             let nb = h.cell().basis_len();

@@ -732,25 +732,29 @@ impl RowPass<'_> {
     /// or with `fresh` starts the sums with them.
     #[inline(always)]
     fn apply(&self, out: &mut [Vec3], pack: &[RowBond], fresh: bool) {
-        let iso = pack[0].iso.is_some();
-        match (pack.len(), iso, fresh) {
-            (1, false, false) => self.pack::<1, false, false>(out, pack),
-            (2, false, false) => self.pack::<2, false, false>(out, pack),
-            (3, false, false) => self.pack::<3, false, false>(out, pack),
-            (_, false, false) => self.pack::<4, false, false>(out, pack),
-            (1, true, false) => self.pack::<1, true, false>(out, pack),
-            (2, true, false) => self.pack::<2, true, false>(out, pack),
-            (3, true, false) => self.pack::<3, true, false>(out, pack),
-            (_, true, false) => self.pack::<4, true, false>(out, pack),
-            (1, false, true) => self.pack::<1, false, true>(out, pack),
-            (2, false, true) => self.pack::<2, false, true>(out, pack),
-            (3, false, true) => self.pack::<3, false, true>(out, pack),
-            (_, false, true) => self.pack::<4, false, true>(out, pack),
-            (1, true, true) => self.pack::<1, true, true>(out, pack),
-            (2, true, true) => self.pack::<2, true, true>(out, pack),
-            (3, true, true) => self.pack::<3, true, true>(out, pack),
-            (_, true, true) => self.pack::<4, true, true>(out, pack),
+        let kind = if pack[0].iso.is_some() {
+            ISO
+        } else if pack.iter().all(|r| r.m[0][1] == 0.0 && r.m[1][0] == 0.0) {
+            IN_PLANE
+        } else {
+            MATRIX
+        };
+        macro_rules! dispatch {
+            ($($k:literal),*) => {
+                match (pack.len(), kind, fresh) {
+                    $(
+                        ($k, MATRIX, false) => self.pack::<$k, MATRIX, false>(out, pack),
+                        ($k, IN_PLANE, false) => self.pack::<$k, IN_PLANE, false>(out, pack),
+                        ($k, ISO, false) => self.pack::<$k, ISO, false>(out, pack),
+                        ($k, MATRIX, true) => self.pack::<$k, MATRIX, true>(out, pack),
+                        ($k, IN_PLANE, true) => self.pack::<$k, IN_PLANE, true>(out, pack),
+                        ($k, ISO, true) => self.pack::<$k, ISO, true>(out, pack),
+                    )*
+                    _ => unreachable!("a pack holds 1 to {PACK} bonds of one kind"),
+                }
+            };
         }
+        dispatch!(1, 2, 3, 4)
     }
 
     /// Sets the sums of the cells to zero.
@@ -761,10 +765,10 @@ impl RowPass<'_> {
         }
     }
 
-    /// `apply` for a pack of exactly `K` bonds, matrix or isotropic (`ISO`), starting the
+    /// `apply` for a pack of exactly `K` bonds of the kind `KIND`, starting the
     /// sums at zero when `FRESH`.
     #[inline(always)]
-    fn pack<const K: usize, const ISO: bool, const FRESH: bool>(&self, out: &mut [Vec3], pack: &[RowBond]) {
+    fn pack<const K: usize, const KIND: u8, const FRESH: bool>(&self, out: &mut [Vec3], pack: &[RowBond]) {
         let pack: &[RowBond; K] = pack.try_into().expect("pack of K bonds");
         let (first, last, n1) = (self.first, self.last, self.n1);
         // Cells whose neighbours across every bond of the pack stay inside their rows.
@@ -777,7 +781,7 @@ impl RowPass<'_> {
         let inner_lo = inner_lo.min(last);
         let inner_hi = inner_hi.max(inner_lo);
         for c1 in first..inner_lo {
-            self.edge::<K, ISO, FRESH>(out, pack, c1);
+            self.edge::<K, KIND, FRESH>(out, pack, c1);
         }
         if inner_lo < inner_hi {
             let len = (inner_hi - inner_lo) as usize;
@@ -792,7 +796,7 @@ impl RowPass<'_> {
                 for (k, o) in out.iter_mut().enumerate() {
                     let mut h = if FRESH { [0.0; 3] } else { *o };
                     for p in 0..K {
-                        add_bond::<ISO>(&mut h, &s[p][k], &m[p], j[p]);
+                        add_bond::<KIND>(&mut h, &s[p][k], &m[p], j[p]);
                     }
                     *o = h;
                 }
@@ -802,21 +806,21 @@ impl RowPass<'_> {
                     let o = &mut out[k0 + k * nb];
                     let mut h = if FRESH { [0.0; 3] } else { *o };
                     for p in 0..K {
-                        add_bond::<ISO>(&mut h, &self.spins[j0[p] + k * nb], &m[p], j[p]);
+                        add_bond::<KIND>(&mut h, &self.spins[j0[p] + k * nb], &m[p], j[p]);
                     }
                     *o = h;
                 }
             }
         }
         for c1 in inner_hi..last {
-            self.edge::<K, ISO, FRESH>(out, pack, c1);
+            self.edge::<K, KIND, FRESH>(out, pack, c1);
         }
     }
 
     /// `pack` for the one cell `c1`, whose neighbours may wrap around the row's ends. A
     /// method rather than a closure, so that it is inlined into each instruction-set copy.
     #[inline(always)]
-    fn edge<const K: usize, const ISO: bool, const FRESH: bool>(
+    fn edge<const K: usize, const KIND: u8, const FRESH: bool>(
         &self,
         out: &mut [Vec3],
         pack: &[RowBond; K],
@@ -826,7 +830,7 @@ impl RowPass<'_> {
         let mut h = if FRESH { [0.0; 3] } else { out[k] };
         for r in pack {
             if let Some(t1) = wrap(c1 + r.o1, self.n1, self.periodic) {
-                add_bond::<ISO>(
+                add_bond::<KIND>(
                     &mut h,
                     &self.spins[(r.base + t1 * self.nb) as usize],
                     &r.m,
@@ -869,13 +873,26 @@ impl RowPass<'_> {
     }
 }
 
-/// `o += M s`, or `o += j s` for an isotropic bond (`ISO`).
+/// Kinds of pack: general 3x3 matrices, ...
+const MATRIX: u8 = 0;
+/// ... matrices with `M_xy = M_yx = 0`, as exchange plus DMI whose vectors have no `z`
+/// component (interfacial DMI with the normal along `z`, the usual film geometry): the
+/// kernel skips those two products, which changes no bit (see [`FusedBond::iso`]), ...
+const IN_PLANE: u8 = 1;
+/// ... and multiples of the identity.
+const ISO: u8 = 2;
+
+/// `o += M s` for the pack kind `KIND`, or `o += j s` for an isotropic bond.
 #[inline(always)]
-fn add_bond<const ISO: bool>(o: &mut Vec3, s: &Vec3, m: &[Vec3; 3], j: f64) {
-    if ISO {
-        add_iso(o, s, j);
-    } else {
-        add_matrix(o, s, m);
+fn add_bond<const KIND: u8>(o: &mut Vec3, s: &Vec3, m: &[Vec3; 3], j: f64) {
+    match KIND {
+        ISO => add_iso(o, s, j),
+        IN_PLANE => {
+            o[0] += m[0][0] * s[0] + m[0][2] * s[2];
+            o[1] += m[1][1] * s[1] + m[1][2] * s[2];
+            o[2] += m[2][0] * s[0] + m[2][1] * s[1] + m[2][2] * s[2];
+        }
+        _ => add_matrix(o, s, m),
     }
 }
 

@@ -287,6 +287,14 @@ impl Hamiltonian {
             let d = if k0 + 1 < len { sites[k0 + 1].wrapping_sub(i0) } else { 0 };
             let mut k1 = k0 + 1;
             if d == 1 || d == 2 {
+                // Most often the rest of the block is one run (a row of a checkerboard class):
+                // tested first without branches, which vectorises; as the sites then
+                // ascend, the last one is the only one that can pass the row's end.
+                let rest = &sites[k0..len];
+                let one_run = rest.windows(2).fold(true, |ok, w| ok & (w[1].wrapping_sub(w[0]) == d));
+                if one_run && sites[len - 1] < row_end {
+                    k1 = len;
+                }
                 while k1 < len && sites[k1].wrapping_sub(sites[k1 - 1]) == d && sites[k1] < row_end {
                     k1 += 1;
                 }

@@ -5,8 +5,8 @@
 //! Each attempt picks one of three trial moves for spin `S` (fixed probabilities, so the
 //! mixture is as symmetric as its parts). All use the random numbers of one
 //! [`NoiseStream::trial`] draw: a `pick` uniform on `{0, 1/8, ..., 7/8}`, an isotropic
-//! vector `g` (a uniform direction on the sphere times a radius with `<|g|^2> = 3`, as for
-//! three standard normal deviates) and the acceptance test's `u`:
+//! vector `g` (a uniform direction on the sphere times a radius uniform on `(0, 3)`, so that
+//! `<|g|^2> = 3` as for three standard normal deviates) and the acceptance test's `u`:
 //!
 //! * with probability [`P_CONE`], a random-walk move `S' = (S + sigma g) / |S + sigma g|`:
 //!   since the law of `g` is isotropic, the density of `S'` depends only on the angle

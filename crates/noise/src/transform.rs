@@ -98,7 +98,7 @@ const RADIUS_Q: [f64; 5] = [
 /// `-2 ln(v 2^SCALE)` for a positive, finite, normal `v`, within `2e-11` relative. The
 /// scale is folded into the exponent, so it costs nothing.
 #[inline(always)]
-pub(crate) fn minus_two_ln_scaled<const SCALE: i32>(v: f64) -> f64 {
+fn minus_two_ln_scaled<const SCALE: i32>(v: f64) -> f64 {
     // Adding the offset moves mantissas at or above sqrt(1/2) into the next binade, so the
     // exponent field read afterwards is already rounded the way the reduction needs.
     let ix = v.to_bits().wrapping_add(0x3ff0_0000_0000_0000 - SQRT_HALF_BITS);

@@ -7,7 +7,7 @@
 //! | words | bits | deviate |
 //! | --- | --- | --- |
 //! | `w0` | 31..29 | `pick = k / 8`, `k` in `0..8`: uniform on `{0, 1/8, ..., 7/8}` |
-//! | `w0` | 28..0 | the radius `r = sqrt(-3 ln v)`, `v = (j + 1/2) 2^-29` |
+//! | `w0` | 28..0 | the radius `r = 3 (j + 1/2) 2^-29`, uniform on `(0, 3)` |
 //! | `w1` | all | the polar coordinate `z = 2 (w1 + 1/2) 2^-32 - 1` of the direction |
 //! | `w2` | all | the azimuth `phi` of the direction, as for the Box-Muller angle (see the crate documentation) |
 //! | `w3` | all | `accept = w3 2^-32`, uniform on `[0, 1)`, resolution `2^-32` |
@@ -17,17 +17,17 @@
 //! unit sphere (Archimedes' hat-box theorem; e.g. G. Marsaglia, Ann. Math. Statist. 43, 645
 //! (1972), quoted from memory), so `kick` is isotropic whatever the law of `r`. That is
 //! what a symmetric trial move needs: a move `S' = (S + sigma kick) / |S + sigma kick|`
-//! has a density that depends only on the angle between `S` and `S'`. `r` has the law of
-//! the length of a two-dimensional Gaussian vector scaled by `sqrt(3/2)` (`r^2 / 3` is a
-//! standard exponential), so that `<|kick|^2> = 3` as for three standard normal deviates,
-//! at the cost of one logarithm instead of the two (and a sine) of
-//! [`NoiseStream::gaussian3`].
+//! has a density that depends only on the angle between `S` and `S'`. `r` is uniform on
+//! `(0, 3)`, so that `<|kick|^2> = 3` as for three standard normal deviates (a spread of
+//! step lengths, like theirs), but without a logarithm or a square root: a radius with
+//! the Gaussian vector's law (or that of a two-dimensional one, one logarithm) measured
+//! 4-8% slower per sweep.
 //!
 //! # Precision
 //!
 //! * `pick` has three bits: it serves probabilities that are multiples of `1/8` exactly.
-//! * `r` uses 29 bits, so `r <= sqrt(90 ln 2) = 7.90`, and its logarithm has the
-//!   `2e-11` relative accuracy of the Box-Muller radius; `z` and `phi` are on grids of
+//! * `r` uses 29 bits, cell centres of a grid of `3 2^-29` (exact: an integer times a
+//!   power of two times 3 rounds once); `z` and `phi` are on grids of
 //!   `2^-31` and `2 pi 2^-32`, with the sine and cosine of the Box-Muller kernels (`2e-11`
 //!   absolute). The direction is therefore isotropic up to these grids, a relative
 //!   `5e-10`, far below any statistical error of a Monte Carlo average.
@@ -37,13 +37,13 @@
 //! The bulk function [`NoiseStream::fill_trial_at`] gives the same bits as the per-site
 //! calls and is compiled per instruction-set level, like the other bulk functions.
 
-use crate::transform::{cos_sin_turn, half_open_unit, minus_two_ln_scaled, two_pow_52_plus, TWO_POW_52};
+use crate::transform::{cos_sin_turn, half_open_unit, two_pow_52_plus, TWO_POW_52};
 use crate::{NoiseStream, LANES};
 
 /// The random numbers of one trial move (see the module documentation).
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct TrialDraw {
-    /// Isotropic perturbation `r n` (dimensionless), `<|kick|^2> = 3`, `|kick| <= 7.90`.
+    /// Isotropic perturbation `r n` (dimensionless), `<|kick|^2> = 3`, `|kick| < 3`.
     pub kick: [f64; 3],
     /// Uniform on `{0, 1/8, ..., 7/8}`, to choose the move.
     pub pick: f64,
@@ -58,10 +58,9 @@ const TWO_POW_M32: f64 = 1.0 / 4_294_967_296.0;
 #[inline(always)]
 fn trial_from_words(w: [u32; 4]) -> ([f64; 3], f64, f64) {
     let pick = f64::from(w[0] >> 29) * 0.125;
-    // v = j + 1/2 exactly, then -2 ln(v 2^-29); times 3/2 for -3 ln.
+    // j + 1/2 exactly, then one rounding.
     let j = u64::from(w[0] & 0x1fff_ffff);
-    let v = two_pow_52_plus(j) - (TWO_POW_52 - 0.5);
-    let r = (1.5 * minus_two_ln_scaled::<-29>(v)).sqrt();
+    let r = (two_pow_52_plus(j) - (TWO_POW_52 - 0.5)) * (3.0 / 536_870_912.0);
     // z = (2 w1 + 1 - 2^32) 2^-32: the odd integer is exact, so are 1 - z and 1 + z.
     let odd = two_pow_52_plus((u64::from(w[1]) << 1) | 1) - (TWO_POW_52 + 4_294_967_296.0);
     let z = odd * TWO_POW_M32;
@@ -198,9 +197,10 @@ mod tests {
             let z = 2.0 * (f64::from(w[1]) + 0.5) / 4_294_967_296.0 - 1.0;
             let norm = (d.kick[0] * d.kick[0] + d.kick[1] * d.kick[1] + d.kick[2] * d.kick[2]).sqrt();
             assert!((d.kick[2] / norm - z).abs() < 1e-10, "site {site}");
-            // r^2 / 3 = -ln v with v = (j + 1/2) / 2^29 from the low 29 bits of w0.
-            let v = (f64::from(w[0] & 0x1fff_ffff) + 0.5) / 536_870_912.0;
-            assert!((norm * norm / 3.0 + v.ln()).abs() < 1e-9 * (1.0 - v.ln()), "site {site}");
+            // r = 3 (j + 1/2) / 2^29 from the low 29 bits of w0; |n| is 1 within the
+            // sine and cosine kernels' 2e-11.
+            let r = 3.0 * (f64::from(w[0] & 0x1fff_ffff) + 0.5) / 536_870_912.0;
+            assert!((norm - r).abs() < 1e-10 * r, "site {site}");
         }
     }
 
@@ -208,7 +208,7 @@ mod tests {
     // `pick` takes each eighth with probability 1/8 (chi-square, 7 degrees of freedom);
     // `accept` has the moments of a uniform on [0, 1) (mean 1/2, variance 1/12); the kick
     // has mean zero, covariance the identity (<|kick|^2> = 3, as for three standard normal
-    // deviates) and |kick|^2 / 3 the exponential law (mean 1, second moment 2); its
+    // deviates) and |kick| / 3 uniform on (0, 1) (mean 1/2, variance 1/12); its
     // direction is uniform on the sphere: every Cartesian component of kick / |kick| is
     // uniform on (-1, 1) (Archimedes' hat-box theorem, common practice), checked by a
     // 20-bin chi-square; and the parts of a draw are uncorrelated.
@@ -241,20 +241,24 @@ mod tests {
             assert!(m.abs() < 5.0 / n.sqrt(), "kick mean {i}: {m}");
             for j in 0..3 {
                 let c = mean(kick.iter().map(|g| g[i] * g[j]));
-                // For this law <g_i^4> = <r^4> <n_i^4> = 18 / 5 (3 for a normal deviate)
-                // and <g_i^2 g_j^2> = <r^4> <n_i^2 n_j^2> = 18 / 15.
-                let (target, sd) =
-                    if i == j { (1.0, (18.0 / 5.0 - 1.0f64).sqrt()) } else { (0.0, (18.0 / 15.0f64).sqrt()) };
+                // For this law <r^4> = 81 / 5, so <g_i^4> = <r^4> <n_i^4> = 81 / 25 (3 for
+                // a normal deviate) and <g_i^2 g_j^2> = <r^4> <n_i^2 n_j^2> = 81 / 75.
+                let (target, sd) = if i == j {
+                    (1.0, (81.0 / 25.0 - 1.0f64).sqrt())
+                } else {
+                    (0.0, (81.0 / 75.0f64).sqrt())
+                };
                 assert!((c - target).abs() < 5.0 * sd / n.sqrt(), "kick covariance {i}{j}: {c}");
             }
         }
-        let r2: Vec<f64> = kick.iter().map(|g| (g[0] * g[0] + g[1] * g[1] + g[2] * g[2]) / 3.0).collect();
-        assert!(r2.iter().all(|&x| x <= 90.0 * std::f64::consts::LN_2 / 3.0 + 1e-9));
+        let r2: Vec<f64> =
+            kick.iter().map(|g| (g[0] * g[0] + g[1] * g[1] + g[2] * g[2]).sqrt() / 3.0).collect();
+        assert!(r2.iter().all(|&x| x > 0.0 && x < 1.0));
         let m1 = mean(r2.iter().copied());
-        let m2 = mean(r2.iter().map(|x| x * x));
-        // Exponential law: variance 1 for the mean, 20 for the second moment (<x^4> = 24).
-        assert!((m1 - 1.0).abs() < 5.0 / n.sqrt(), "<|kick|^2> / 3 = {m1}");
-        assert!((m2 - 2.0).abs() < 5.0 * 20f64.sqrt() / n.sqrt(), "<|kick|^4> / 9 = {m2}");
+        let m2 = mean(r2.iter().map(|x| (x - 0.5) * (x - 0.5)));
+        // Uniform law on (0, 1): the mean has variance 1/12, (x - 1/2)^2 has 1/80 - 1/144.
+        assert!((m1 - 0.5).abs() < 5.0 * (1.0 / 12.0 / n).sqrt(), "<|kick|> / 3 = {m1}");
+        assert!((m2 - 1.0 / 12.0).abs() < 5.0 * ((1.0 / 80.0 - 1.0 / 144.0) / n).sqrt(), "variance {m2}");
 
         for i in 0..3 {
             let mut bins = [0usize; 20];

@@ -30,22 +30,74 @@ const NONE: u16 = u16::MAX;
 /// Most recolouring passes of the iterated greedy colouring.
 const ITERATED_PASSES: usize = 6;
 
+/// A bond as the colouring walks it: the far end's basis site and, per axis, the cell
+/// offset reduced into `0..n` on a periodic axis (so that the neighbour's coordinate is
+/// `c + o` less `n` at most once, without a division) or kept as is on an open one.
+struct Step {
+    to: usize,
+    offset: [i64; 3],
+}
+
+/// The bonds of each basis site as [`Step`]s.
+fn steps(h: &Hamiltonian) -> Vec<Vec<Step>> {
+    let cell = h.cell();
+    let (cells, periodic) = (cell.cells(), cell.periodic());
+    (0..cell.basis_len())
+        .map(|b| {
+            h.bonds()
+                .from_basis(b)
+                .iter()
+                .map(|bond| Step {
+                    to: bond.to,
+                    offset: std::array::from_fn(|k| {
+                        let o = i64::from(bond.offset[k]);
+                        if periodic[k] {
+                            o.rem_euclid(cells[k] as i64)
+                        } else {
+                            o
+                        }
+                    }),
+                })
+                .collect()
+        })
+        .collect()
+}
+
+/// `Supercell::neighbour` of cell `c` along `step`, by comparisons instead of divisions.
+#[inline]
+fn neighbour(cells: [usize; 3], periodic: [bool; 3], nb: usize, c: [usize; 3], step: &Step) -> Option<usize> {
+    let mut t = [0usize; 3];
+    for k in 0..3 {
+        let n = cells[k] as i64;
+        let x = c[k] as i64 + step.offset[k];
+        t[k] = if periodic[k] {
+            (if x >= n { x - n } else { x }) as usize
+        } else if x < 0 || x >= n {
+            return None;
+        } else {
+            x as usize
+        };
+    }
+    Some(((t[2] * cells[1] + t[1]) * cells[0] + t[0]) * nb + step.to)
+}
+
 /// Greedy colouring of the sites in `order` (all `NONE` in `colour` beforehand): each takes
 /// the smallest colour that no already coloured neighbour has. Returns the number of colours.
 fn greedy(
     h: &Hamiltonian,
+    steps: &[Vec<Step>],
     order: impl Iterator<Item = usize>,
     colour: &mut [u16],
     used: &mut Vec<bool>,
 ) -> Result<usize, StepError> {
     let cell = h.cell();
-    let bonds = h.bonds();
+    let (cells, periodic, nb) = (cell.cells(), cell.periodic(), cell.basis_len());
     let mut count = 0usize;
     for i in order {
         let (c, b) = cell.decompose(i);
         used.iter_mut().for_each(|u| *u = false);
-        for bond in bonds.from_basis(b) {
-            if let Some(j) = cell.neighbour(c, bond.offset, bond.to) {
+        for step in &steps[b] {
+            if let Some(j) = neighbour(cells, periodic, nb, c, step) {
                 // A bond that wraps onto the site itself (a short periodic box) is no
                 // constraint between two sites.
                 if j != i && colour[j] != NONE {
@@ -93,7 +145,8 @@ impl Colouring {
         }
         let mut colour = vec![NONE; n];
         let mut used: Vec<bool> = Vec::new();
-        let mut count = greedy(h, (0..n).filter(|&i| cell.is_occupied(i)), &mut colour, &mut used)?;
+        let steps = steps(h);
+        let mut count = greedy(h, &steps, (0..n).filter(|&i| cell.is_occupied(i)), &mut colour, &mut used)?;
         // Iterated greedy: recolouring class by class never needs more colours than
         // before, and often fewer. Passes alternate two class orders: the last class first,
         // and the largest class first.
@@ -128,7 +181,7 @@ impl Colouring {
                 }
             }
             colour.iter_mut().for_each(|c| *c = NONE);
-            count = greedy(h, order[..acc].iter().map(|&i| i as usize), &mut colour, &mut used)?;
+            count = greedy(h, &steps, order[..acc].iter().map(|&i| i as usize), &mut colour, &mut used)?;
         }
         // Split each colour by basis site: a class of the refined colouring is still an
         // independent set, and its sites all have the same bonds, which the Monte Carlo
@@ -217,5 +270,55 @@ impl Colouring {
     pub fn bytes_per_site(&self, sites: usize) -> f64 {
         let bytes = self.sites.len() * 4 + self.starts.len() * 8 + self.chunk_offsets.len() * 4;
         bytes as f64 / sites.max(1) as f64
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use spindrift_hamiltonian::{add_shell, ShellCoupling, ShellRef, Species};
+    use spindrift_lattice::{preset, BondList, Supercell};
+
+    // The division-free neighbour must be `Supercell::neighbour` exactly (the lattice's own
+    // definition, tested in its crate), including boxes of one and two cells where offsets
+    // of the third shell reach past the box, and open axes that cut bonds.
+    #[test]
+    fn neighbour_steps_match_the_supercell() {
+        let cases = [
+            ("simple-cubic", [2, 3, 1], [true, true, true]),
+            ("simple-cubic", [3, 2, 2], [true, false, true]),
+            ("bcc", [2, 2, 3], [false, true, true]),
+            ("fcc", [2, 1, 3], [true, true, false]),
+            ("honeycomb", [1, 4, 1], [true, true, false]),
+            ("triangular", [5, 2, 1], [false, false, false]),
+        ];
+        for (name, cells, periodic) in cases {
+            let cell = Supercell::new(preset(name, 3.0, None).unwrap(), cells, periodic, 1).unwrap();
+            let mut bonds = BondList::new(cell.basis_len());
+            for n in 1..=3 {
+                let shell = ShellCoupling { shell: ShellRef::Index(n), j: 1.0, dmi: None, pair: None };
+                add_shell(&cell, &mut bonds, &shell).unwrap();
+            }
+            let species = Species {
+                name: "M".into(),
+                moment: 2.0,
+                damping: 0.1,
+                anisotropy: 0.0,
+                axis: [0.0, 0.0, 1.0],
+            };
+            let h = Hamiltonian::new(cell, vec![species], bonds, [0.0; 3]).unwrap();
+            let steps = steps(&h);
+            let cell = h.cell();
+            let mut checked = 0;
+            for i in 0..h.len() {
+                let (c, b) = cell.decompose(i);
+                for (bond, step) in h.bonds().from_basis(b).iter().zip(&steps[b]) {
+                    let ours = neighbour(cell.cells(), cell.periodic(), cell.basis_len(), c, step);
+                    assert_eq!(ours, cell.neighbour(c, bond.offset, bond.to), "{name} {cells:?} site {i}");
+                    checked += 1;
+                }
+            }
+            assert!(checked > 0, "{name}: no bonds");
+        }
     }
 }

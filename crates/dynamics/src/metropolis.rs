@@ -3,17 +3,21 @@
 //! # Moves
 //!
 //! Each attempt picks one of three trial moves for spin `S` (fixed probabilities, so the
-//! mixture is as symmetric as its parts):
+//! mixture is as symmetric as its parts). All use the random numbers of one
+//! [`NoiseStream::trial`] draw: a `pick` uniform on `{0, 1/8, ..., 7/8}`, an isotropic
+//! vector `g` (a uniform direction on the sphere times a radius uniform on `(0, 3)`, so that
+//! `<|g|^2> = 3` as for three standard normal deviates) and the acceptance test's `u`:
 //!
-//! * with probability [`P_CONE`], a Gaussian move `S' = (S + sigma g) / |S + sigma g|`, `g`
-//!   three standard normal deviates: its density depends only on the angle between `S` and
-//!   `S'`, so it is symmetric; `sigma` sets its reach and is tuned (see below);
-//! * with probability [`P_UNIFORM`], a new direction uniform on the sphere, `S' = g / |g|`
-//!   with the same three normal deviates `g`: an isotropic Gaussian vector points in a
-//!   uniformly distributed direction (M. E. Muller, Commun. ACM 2, 19 (1959); quoted from
-//!   memory). It decorrelates fast at high temperature;
+//! * with probability [`P_CONE`], a random-walk move `S' = (S + sigma g) / |S + sigma g|`:
+//!   since the law of `g` is isotropic, the density of `S'` depends only on the angle
+//!   between `S` and `S'`, so the move is symmetric; `sigma` sets its reach and is tuned
+//!   (see below);
+//! * with probability [`P_UNIFORM`], a new direction uniform on the sphere, `S' = g / |g|`;
+//!   it decorrelates fast at high temperature;
 //! * otherwise the reflection `S' = -S`, which crosses anisotropy barriers that small moves
 //!   cannot.
+//!
+//! The probabilities are multiples of `1/8`, which `pick` resolves exactly.
 //!
 //! A move that changes the energy by `dE` (meV, [`Hamiltonian::energy_change`]) is
 //! accepted with probability `min(1, exp(-dE / kB T))` (N. Metropolis, A. W. Rosenbluth,
@@ -22,10 +26,10 @@
 //! with the exponential of `crate::acceptance` (no library call, the same bits on every
 //! instruction-set level). At `T = 0` only moves with `dE <= 0` are accepted.
 //!
-//! # Adapting the Gaussian move
+//! # Adapting the random-walk move
 //!
 //! When a sweep is called with `adapt = true`, `sigma` is updated after the sweep from the
-//! acceptance rate `r` of its Gaussian moves: `sigma <- sigma (1/2 + r) / (3/2 - r)`, which
+//! acceptance rate `r` of its random-walk moves: `sigma <- sigma (1/2 + r) / (3/2 - r)`, which
 //! leaves `sigma` alone at `r = 1/2`, grows it when most moves pass and shrinks it when most
 //! fail, by at most a factor 3 per sweep; `sigma` stays within
 //! [[`SIGMA_MIN`], [`SIGMA_MAX`]]. Aiming at one half is common practice for
@@ -47,17 +51,20 @@
 //! Sites are coloured so that no bond joins two sites of one colour ([`Colouring`]; each
 //! class holds one basis site); a sweep visits the classes in order and updates all sites
 //! of a class at once. Within a class the trial of site `i` in sweep `n` uses only the
-//! fixed spins of other classes and the random numbers addressed by `(n, i)` in stream 1,
-//! drawn for every site whatever its move: `gaussian3(2n, i)` for the Gaussian and the
-//! uniform move, and `uniform4(2n + 1, i)`, whose word 0 chooses the move and word 3 is
-//! the acceptance test's `u` (words 1 and 2 are not used). So a sweep gives bitwise the
+//! fixed spins of other classes and the random numbers `trial(n, i)` of stream 1, drawn for
+//! every site whatever its move (one Philox block per site; see `spindrift_noise`'s
+//! `trial.rs` for the layout and precision of the words). So a sweep gives bitwise the
 //! same spins for any thread count.
+//!
+//! Until this layout (one draw per trial), a sweep drew `gaussian3(2n, i)` and
+//! `uniform4(2n + 1, i)` (a three-Gaussian `g`, two Philox blocks per site); the same seed
+//! therefore gives a different, equally valid chain than before.
 //!
 //! Each class is processed in blocks of at most [`BLOCK`] sites: the trials of a block
 //! are decided in parallel into a buffer, then written back in parallel over chunks of the
 //! spin array. Deciding runs 64 sites at a time in phases without branches, so that they
 //! vectorise: random numbers in bulk, trial spins (every move computed, one selected),
-//! energy changes ([`Hamiltonian::energy_changes`]), acceptance. Memory: 4 bytes per
+//! energy changes ([`Hamiltonian::energy_changes_from`]), acceptance. Memory: 4 bytes per
 //! site for the class lists, plus a buffer of `24 * min(largest class, BLOCK)` bytes.
 
 use crate::acceptance::boltzmann_factor;
@@ -69,15 +76,19 @@ use spindrift_hamiltonian::{Hamiltonian, CHUNK};
 use spindrift_lattice::{dot, Vec3};
 use spindrift_noise::{NoiseStream, STREAM_METROPOLIS};
 
-/// Probability of the Gaussian move.
+/// Probability of the random-walk move (a multiple of 1/8, see the module documentation).
 pub const P_CONE: f64 = 0.75;
-/// Probability of the uniform move (the reflection takes the rest, 0.125).
+/// Probability of the uniform move (a multiple of 1/8; the reflection takes the rest,
+/// 0.125).
 pub const P_UNIFORM: f64 = 0.125;
-/// Smallest Gaussian width.
+// `pick` resolves eighths only.
+const _: () = assert!(P_CONE * 8.0 == (P_CONE * 8.0) as u32 as f64);
+const _: () = assert!(P_UNIFORM * 8.0 == (P_UNIFORM * 8.0) as u32 as f64);
+/// Smallest random-walk width.
 pub const SIGMA_MIN: f64 = 1e-6;
-/// Largest Gaussian width; at this width the move is practically uniform.
+/// Largest random-walk width; at this width the move is practically uniform.
 pub const SIGMA_MAX: f64 = 100.0;
-/// Initial Gaussian width.
+/// Initial random-walk width.
 pub const SIGMA_START: f64 = 0.5;
 /// Sites per block of a colour.
 pub const BLOCK: usize = 64 * CHUNK;
@@ -165,12 +176,12 @@ impl Metropolis {
         &self.colouring
     }
 
-    /// Width of the Gaussian move (dimensionless, relative to the unit spin).
+    /// Width of the random-walk move (dimensionless, relative to the unit spin).
     pub fn sigma(&self) -> f64 {
         self.sigma
     }
 
-    /// Sets the width of the Gaussian move, clamped to [[`SIGMA_MIN`], [`SIGMA_MAX`]]
+    /// Sets the width of the random-walk move, clamped to [[`SIGMA_MIN`], [`SIGMA_MAX`]]
     /// (e.g. when resuming from a checkpoint).
     pub fn set_sigma(&mut self, sigma: f64) {
         self.sigma = if sigma.is_nan() { SIGMA_START } else { sigma.clamp(SIGMA_MIN, SIGMA_MAX) };
@@ -184,7 +195,7 @@ impl Metropolis {
 
     /// One sweep: one trial move per occupied site, at `temperature` (K). `sweep_index`
     /// selects the random numbers (pass `0, 1, 2, ...`, and the same index again when a
-    /// run resumes). With `adapt`, tunes the Gaussian width after the sweep (equilibration
+    /// run resumes). With `adapt`, tunes the random-walk width after the sweep (equilibration
     /// only; see the module documentation).
     pub fn sweep(
         &mut self,
@@ -207,8 +218,6 @@ impl Metropolis {
         let beta = 1.0 / (K_B * temperature);
         let stream = self.stream;
         let sigma = self.sigma;
-        let gauss_step = sweep_index.wrapping_mul(2);
-        let unif_step = gauss_step.wrapping_add(1);
         let n = spins.len();
         let mut total = Counts::default();
 
@@ -220,7 +229,7 @@ impl Metropolis {
                 let buffer = &mut self.buffer[..block.len()];
                 // Decide every trial of the block; the spins of this colour do not change
                 // until all are decided, and no trial reads another spin of its colour.
-                let ctx = TrialContext { h, spins: &*spins, stream, sigma, beta, gauss_step, unif_step };
+                let ctx = TrialContext { h, spins: &*spins, stream, sigma, beta, step: sweep_index };
                 let counts = if block.len() <= CHUNK {
                     decide(&ctx, buffer, block)
                 } else {
@@ -280,8 +289,8 @@ struct TrialContext<'a> {
     sigma: f64,
     /// `1 / kB T`, 1/meV (infinite at 0 K).
     beta: f64,
-    gauss_step: u64,
-    unif_step: u64,
+    /// The sweep index, the step of the random numbers.
+    step: u64,
 }
 
 spindrift_isa::multiversion! {
@@ -289,50 +298,51 @@ spindrift_isa::multiversion! {
     /// into `out`; the spins do not change until every trial of the block is decided.
     /// Compiled per instruction-set level (same bits on each).
     fn decide(ctx: &TrialContext<'_>, out: &mut [Vec3], sites: &[u32]) -> Counts {
-        let TrialContext { h, spins, stream, sigma, beta, gauss_step, unif_step } = *ctx;
+        let TrialContext { h, spins, stream, sigma, beta, step } = *ctx;
         let mut counts = Counts::default();
         // A few sites at a time, in phases without branches: random numbers in bulk (bitwise
         // the per-site values), trial spins, energy changes, acceptance. On the stack.
-        let mut uniforms = [[0.0; 4]; DRAWS];
-        let mut normals = [[0.0; 3]; DRAWS];
+        let mut kick = [[0.0; 3]; DRAWS];
+        let mut pick = [0.0; DRAWS];
+        let mut accept = [0.0; DRAWS];
         let mut old = [[0.0; 3]; DRAWS];
         let mut trials = [[0.0; 3]; DRAWS];
         let mut de = [0.0; DRAWS];
         let mut units = [0.0; DRAWS];
-        let mut pass = [false; DRAWS];
         for (out, sites) in out.chunks_mut(DRAWS).zip(sites.chunks(DRAWS)) {
             let n = sites.len();
-            let (uniforms, normals, old) = (&mut uniforms[..n], &mut normals[..n], &mut old[..n]);
-            let (trials, de, units) = (&mut trials[..n], &mut de[..n], &mut units[..n]);
-            let pass = &mut pass[..n];
-            stream.fill_uniform4_at(unif_step, sites, uniforms);
-            stream.fill_gaussian3_at(gauss_step, sites, normals);
+            let (kick, pick, accept) = (&mut kick[..n], &mut pick[..n], &mut accept[..n]);
+            let (old, trials, de, units) = (&mut old[..n], &mut trials[..n], &mut de[..n], &mut units[..n]);
+            stream.fill_trial_at(step, sites, kick, pick, accept);
             for (o, &i) in old.iter_mut().zip(sites) {
                 *o = spins[i as usize];
             }
-            for (((t, s), u), g) in trials.iter_mut().zip(&*old).zip(&*uniforms).zip(&*normals) {
-                *t = trial_spin(*s, u[0], *g, sigma);
+            for k in 0..n {
+                trials[k] = trial_spin(old[k], pick[k], kick[k], sigma);
             }
-            h.energy_changes(spins, sites, trials, de);
+            h.energy_changes_from(spins, sites, old, trials, de);
             // `|` rather than `||`: the factor is computed for every site, so the loop has
-            // no branch. A NaN change (a Gaussian move of zero length) fails both tests.
-            for ((p, &d), u) in pass.iter_mut().zip(&*de).zip(&*uniforms) {
-                *p = (d <= 0.0) | (u[3] < boltzmann_factor(-d * beta));
+            // no branch. A NaN change (a move of zero length) fails both tests. The mask is
+            // all ones for an accepted move.
+            let mut keep = [0u64; DRAWS];
+            for k in 0..n {
+                let d = de[k];
+                let p = (d <= 0.0) | (accept[k] < boltzmann_factor(-d * beta));
+                keep[k] = u64::from(p).wrapping_neg();
             }
-            for (((o, &p), t), s) in out.iter_mut().zip(&*pass).zip(&*trials).zip(&*old) {
-                // A select by bit masks, which the compiler keeps free of branches.
-                let keep = u64::from(p).wrapping_neg();
-                *o = std::array::from_fn(|a| f64::from_bits((t[a].to_bits() & keep) | (s[a].to_bits() & !keep)));
-            }
-            for ((x, &p), &d) in units.iter_mut().zip(&*pass).zip(&*de) {
-                *x = if p { (d * ENERGY_SCALE).round() } else { 0.0 };
+            // Selects by bit masks, which the compiler keeps free of branches.
+            for k in 0..n {
+                let (t, s, m) = (trials[k], old[k], keep[k]);
+                out[k] = std::array::from_fn(|a| f64::from_bits((t[a].to_bits() & m) | (s[a].to_bits() & !m)));
+                units[k] = f64::from_bits((de[k] * ENERGY_SCALE).round().to_bits() & m);
             }
             let (mut accepted, mut cone_attempted, mut cone_accepted) = (0u64, 0u64, 0u64);
-            for (&p, u) in pass.iter().zip(&*uniforms) {
-                let cone = u[0] < P_CONE;
-                accepted += u64::from(p);
-                cone_attempted += u64::from(cone);
-                cone_accepted += u64::from(cone & p);
+            for k in 0..n {
+                let cone = u64::from(pick[k] < P_CONE);
+                let p = keep[k] & 1;
+                accepted += p;
+                cone_attempted += cone;
+                cone_accepted += cone & p;
             }
             counts.attempted += n as u64;
             counts.accepted += accepted;
@@ -344,9 +354,9 @@ spindrift_isa::multiversion! {
     }
 }
 
-/// The trial spin for spin `s` (see "Moves" in the module documentation): `choice` uniform
-/// on `[0, 1)` picks the move, `g` holds three standard normal deviates. Without branches;
-/// a Gaussian move of zero length gives NaN, which the acceptance test rejects.
+/// The trial spin for spin `s` (see "Moves" in the module documentation): `choice`
+/// (uniform on `{0, 1/8, ..., 7/8}`) picks the move, `g` is the isotropic vector of the draw. Without branches;
+/// a random-walk move of zero length gives NaN, which the acceptance test rejects.
 #[inline(always)]
 fn trial_spin(s: Vec3, choice: f64, g: Vec3, sigma: f64) -> Vec3 {
     let cone = choice < P_CONE;
@@ -361,14 +371,20 @@ fn trial_spin(s: Vec3, choice: f64, g: Vec3, sigma: f64) -> Vec3 {
     }
 }
 
-/// The sum of integers held as `f64`, exactly, as an `i128`; in `i64` (which vectorises)
-/// when every term is below `2^56` in magnitude, so that up to 128 terms cannot overflow.
+/// The sum of integers held as `f64`, exactly, as an `i128`. When every term is below
+/// `2^51` in magnitude (and there are at most `2^11`, so that the sum fits in `i64`), it
+/// adds them in `i64`, each converted by adding `1.5 * 2^52`: that sum is exact and lies in
+/// `[2^52, 2^53)`, where the bits of a double minus those of `1.5 * 2^52` are the integer
+/// (the `i64` sum of the bits wraps; the difference does not). That conversion vectorises on every
+/// level; the saturating `as i64` does not.
 #[inline(always)]
 fn integer_sum(units: &[f64]) -> i128 {
-    const LIMIT: f64 = 72_057_594_037_927_936.0; // 2^56
+    const LIMIT: f64 = 2_251_799_813_685_248.0; // 2^51
+    const MAGIC: f64 = 6_755_399_441_055_744.0; // 1.5 * 2^52
     let small = units.iter().fold(true, |ok, u| ok & (u.abs() < LIMIT));
-    if small && units.len() <= 128 {
-        i128::from(units.iter().map(|&u| u as i64).sum::<i64>())
+    if small && units.len() <= 1 << 11 {
+        let sum = units.iter().fold(0i64, |acc, &u| acc.wrapping_add((u + MAGIC).to_bits() as i64));
+        i128::from(sum.wrapping_sub((units.len() as i64).wrapping_mul(MAGIC.to_bits() as i64)))
     } else {
         units.iter().map(|&u| u as i128).sum()
     }

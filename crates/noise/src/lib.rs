@@ -83,6 +83,10 @@
 //!   `w_i / 2^32` on `[0, 1)`, resolution `2^-32`.
 //! * [`NoiseStream::fill_gaussian3_at`] and [`NoiseStream::fill_uniform4_at`] do the same
 //!   in bulk for a list of scattered sites, bit for bit equal to the per-site calls.
+//! * [`NoiseStream::trial`] and [`NoiseStream::fill_trial_at`] give the random numbers of
+//!   one Monte Carlo trial move from one Philox call: a move choice in eighths, an
+//!   isotropic perturbation and a 32-bit acceptance uniform (see `trial.rs` for the layout
+//!   of the words and the precision).
 //!
 //! # Cost
 //!
@@ -112,8 +116,10 @@
 
 mod philox;
 mod transform;
+mod trial;
 
 pub use philox::philox4x32_10;
+pub use trial::TrialDraw;
 
 use transform::{gaussian3_from_words, gaussian4_from_words, uniform4_from_words};
 

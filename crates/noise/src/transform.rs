@@ -51,11 +51,11 @@ const TWO_POW_M32: f64 = 1.0 / 4_294_967_296.0;
 /// 2^52: a double whose mantissa field holds an integer `k < 2^52` above this exponent is
 /// exactly `2^52 + k`, which turns integers into doubles with one bit operation and one
 /// exact subtraction on every instruction-set level.
-const TWO_POW_52: f64 = 4_503_599_627_370_496.0;
+pub(crate) const TWO_POW_52: f64 = 4_503_599_627_370_496.0;
 
 /// `2^52 + k` exactly, for `k < 2^52`.
 #[inline(always)]
-fn two_pow_52_plus(k: u64) -> f64 {
+pub(crate) fn two_pow_52_plus(k: u64) -> f64 {
     f64::from_bits(TWO_POW_52.to_bits() | k)
 }
 

@@ -148,7 +148,55 @@ impl Hamiltonian {
     #[inline(always)]
     pub(super) fn energy_changes_block(&self, spins: &[Vec3], sites: &[u32], new: &[Vec3], out: &mut [f64]) {
         let len = sites.len().min(LANES);
-        let (sites, new, out) = (&sites[..len], &new[..len], &mut out[..len]);
+        let mut old = [[0.0; 3]; LANES];
+        for (o, &i) in old.iter_mut().zip(&sites[..len]) {
+            *o = spins[i as usize];
+        }
+        self.energy_changes_block_from(spins, sites, &old[..len], new, out);
+    }
+
+    /// Energy changes (meV) of one-spin moves of many sites at once, given the present spins
+    /// of the sites: as [`Hamiltonian::energy_changes`] (bit for bit), for a caller that
+    /// has already read `old[k] = spins[sites[k]]` and so saves reading them again. Panics
+    /// if the four lengths differ or a site is outside `spins`; `old` is not checked
+    /// against `spins`.
+    #[inline(always)]
+    pub fn energy_changes_from(
+        &self,
+        spins: &[Vec3],
+        sites: &[u32],
+        old: &[Vec3],
+        new: &[Vec3],
+        out: &mut [f64],
+    ) {
+        let n = sites.len();
+        assert!(old.len() == n && new.len() == n && out.len() == n, "one trial and one output per site");
+        if self.len() > u32::MAX as usize {
+            // Beyond the block kernel's 32-bit cell arithmetic: one site at a time.
+            for ((&i, &t), o) in sites.iter().zip(new).zip(out.iter_mut()) {
+                *o = self.energy_change(spins, i as usize, t);
+            }
+            return;
+        }
+        for (((s, o), t), d) in
+            sites.chunks(LANES).zip(old.chunks(LANES)).zip(new.chunks(LANES)).zip(out.chunks_mut(LANES))
+        {
+            self.energy_changes_block_from(spins, s, o, t, d);
+        }
+    }
+
+    /// [`Hamiltonian::energy_changes_block`] with the present spins of the sites given.
+    #[inline(always)]
+    fn energy_changes_block_from(
+        &self,
+        spins: &[Vec3],
+        sites: &[u32],
+        old: &[Vec3],
+        new: &[Vec3],
+        out: &mut [f64],
+    ) {
+        let len = sites.len().min(LANES);
+        let (sites, old, new, out) = (&sites[..len], &old[..len], &new[..len], &mut out[..len]);
         let nb = self.cell.basis_len() as u32;
         let cells = self.cell.cells();
         let (n1, n2) = (cells[0] as u32, cells[1] as u32);
@@ -178,10 +226,6 @@ impl Hamiltonian {
         };
         let mut c: Option<Coords> = None;
 
-        let mut old = [[0.0; 3]; LANES];
-        for (o, &i) in old.iter_mut().zip(sites) {
-            *o = spins[i as usize];
-        }
         for b in passes {
             let bu = b as usize;
             // Phase 2: the pair field sum_j M_ij S_j, T per unit spin.
@@ -243,6 +287,14 @@ impl Hamiltonian {
             let d = if k0 + 1 < len { sites[k0 + 1].wrapping_sub(i0) } else { 0 };
             let mut k1 = k0 + 1;
             if d == 1 || d == 2 {
+                // Most often the rest of the block is one run (a row of a checkerboard class):
+                // tested first without branches, which vectorises; as the sites then
+                // ascend, the last one is the only one that can pass the row's end.
+                let rest = &sites[k0..len];
+                let one_run = rest.windows(2).fold(true, |ok, w| ok & (w[1].wrapping_sub(w[0]) == d));
+                if one_run && sites[len - 1] < row_end {
+                    k1 = len;
+                }
                 while k1 < len && sites[k1].wrapping_sub(sites[k1 - 1]) == d && sites[k1] < row_end {
                     k1 += 1;
                 }
@@ -406,7 +458,8 @@ mod tests {
         }
     }
 
-    // The block kernel must give the one-site energy change bit for bit (that one is checked
+    // The block kernel must give the one-site energy change bit for bit, with or without the
+    // present spins handed in (the one-site change is checked
     // against total energy differences in tests/hamiltonian.rs), whichever path a site takes:
     // strided runs of step 1 and 2 (all sites, every other site, one sublattice), runs cut by
     // row ends and periodic wraps, scattered and descending lists (per-site path), blocks
@@ -445,9 +498,14 @@ mod tests {
                 let new: Vec<Vec3> = sites.iter().map(|&i| unit(8, i as usize)).collect();
                 let mut out = vec![f64::NAN; sites.len()];
                 h.energy_changes(&spins, &sites, &new, &mut out);
-                for ((&i, t), o) in sites.iter().zip(&new).zip(&out) {
+                // The variant that is handed the present spins must agree too.
+                let old: Vec<Vec3> = sites.iter().map(|&i| spins[i as usize]).collect();
+                let mut from = vec![f64::NAN; sites.len()];
+                h.energy_changes_from(&spins, &sites, &old, &new, &mut from);
+                for (((&i, t), o), f) in sites.iter().zip(&new).zip(&out).zip(&from) {
                     let e = h.energy_change(&spins, i as usize, *t);
                     assert_eq!(o.to_bits(), e.to_bits(), "{name} {cells:?} site {i}: {o} != {e}");
+                    assert_eq!(f.to_bits(), e.to_bits(), "{name} {cells:?} site {i}, given old: {f} != {e}");
                 }
             }
         }

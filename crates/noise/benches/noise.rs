@@ -1,7 +1,7 @@
-//! Throughput of the bulk generators over 10^5 sites (three Gaussians or four uniforms per
-//! site), in one call and in the 256-site blocks of the Heun step, and of the per-site call
-//! for comparison. Criterion reports elements per second; the time per site is the
-//! reciprocal.
+//! Throughput of the bulk generators over 10^5 sites: the thermal noise (three Gaussians
+//! per site) in one call and in the 256-site blocks of the Heun step, the per-site call for
+//! comparison, and the Monte Carlo trial draws of a colour class (every other site).
+//! Criterion reports elements per second; the time per site is the reciprocal.
 // criterion's macros define public functions without doc comments.
 #![allow(missing_docs)]
 
@@ -18,24 +18,15 @@ fn bench(c: &mut Criterion) {
     let thermal = NoiseStream::new(7, STREAM_LLG_THERMAL);
     let mut g = vec![[0.0; 3]; SITES];
     let mut step = 0u64;
-    group.bench_function("fill_gaussian3 per 1e5 sites", |b| {
+    group.bench_function("fill_gaussian3_dense per 1e5 sites", |b| {
         b.iter(|| {
             step += 1;
-            thermal.fill_gaussian3(black_box(step), 0, &mut g);
+            thermal.fill_gaussian3_dense(black_box(step), 0, 1.0, &mut g);
             black_box(&g);
         })
     });
-    // As the Heun step calls it: one 256-site block at a time, output in L1.
-    group.bench_function("fill_gaussian3 in 256-site blocks, 1e5 sites", |b| {
-        b.iter(|| {
-            step += 1;
-            for (k, block) in g.chunks_mut(256).enumerate() {
-                thermal.fill_gaussian3(black_box(step), (k * 256) as u64, block);
-            }
-            black_box(&g);
-        })
-    });
-    // The dense layout, as the Heun step calls it (scaled by a thermal width).
+    // As the Heun step calls it: one 256-site block at a time, output in L1, scaled by a
+    // thermal width.
     group.bench_function("fill_gaussian3_dense in 256-site blocks, 1e5 sites", |b| {
         b.iter(|| {
             step += 1;
@@ -45,23 +36,24 @@ fn bench(c: &mut Criterion) {
             black_box(&g);
         })
     });
-    group.bench_function("gaussian3 per site, 1e5 sites", |b| {
+    group.bench_function("gaussian3_dense per site, 1e5 sites", |b| {
         b.iter(|| {
             step += 1;
             for (k, v) in g.iter_mut().enumerate() {
-                *v = thermal.gaussian3(black_box(step), k as u64);
+                *v = thermal.gaussian3_dense(black_box(step), k as u64);
             }
             black_box(&g);
         })
     });
 
     let metropolis = NoiseStream::new(7, STREAM_METROPOLIS);
-    let mut u = vec![[0.0; 4]; SITES];
-    group.bench_function("fill_uniform4 per 1e5 sites", |b| {
+    let sites: Vec<u32> = (0..SITES as u32).map(|i| 2 * i).collect();
+    let (mut pick, mut accept) = (vec![0.0; SITES], vec![0.0; SITES]);
+    group.bench_function("fill_trial_at, every other site of 2e5", |b| {
         b.iter(|| {
             step += 1;
-            metropolis.fill_uniform4(black_box(step), 0, &mut u);
-            black_box(&u);
+            metropolis.fill_trial_at(black_box(step), &sites, &mut g, &mut pick, &mut accept);
+            black_box((&g, &pick, &accept));
         })
     });
     group.finish();

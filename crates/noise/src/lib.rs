@@ -40,18 +40,20 @@
 //!
 //! # Deviates
 //!
-//! * [`NoiseStream::gaussian3`] gives three independent standard normal deviates per
-//!   `(step, site)` from one Philox call (words `w0..w3`), by the Box-Muller transform
-//!   (G. E. P. Box, M. E. Muller, Ann. Math. Statist. 29, 610, 1958) on uniforms
-//!   `u_i = (w_i + 1/2) / 2^32` in the open interval `(0, 1)`:
-//!   `r1 (cos theta, sin theta)` and `r2 sin(pi (u3 - 1/2))`, with `r_i = sqrt(-2 ln u_i)`.
-//!   The angle `theta` is uniform on the circle: `w1`'s top two bits choose the quarter of
-//!   the circle around one of the four axes and the other 30 bits the offset in it, which
-//!   reaches each of the `2^32` angles `2 pi (j + 1/2) / 2^32` once (the same angles as
-//!   `2 pi u1`, in another order, so that the sine and cosine need polynomials on
-//!   `|x| <= pi/4` only). The third deviate uses only the sine half of its pair, on a half
-//!   turn: the sine of an angle uniform on `(-pi/2, pi/2)` has the same (arcsine) law as
-//!   the cosine of an angle uniform on the circle, and costs one polynomial instead of two.
+//! * [`NoiseStream::gaussian3_dense`] gives three independent standard normal deviates per
+//!   `(step, site)`, for the LLG thermal field. The deviates of a step form one sequence,
+//!   `3 site + component`, and Philox block `b` (the counter's site words hold `b`) gives
+//!   deviates `4 b .. 4 b + 3` as two Box-Muller pairs (G. E. P. Box, M. E. Muller, Ann.
+//!   Math. Statist. 29, 610, 1958) on uniforms `u_i = (w_i + 1/2) / 2^32` in the open
+//!   interval `(0, 1)`: `r0 (cos theta1, sin theta1)` and `r2 (cos theta3, sin theta3)`,
+//!   with `r_i = sqrt(-2 ln u_i)`. Each angle is uniform on the circle: the word's top two
+//!   bits choose the quarter of the circle around one of the four axes and the other 30
+//!   bits the offset in it, which reaches each of the `2^32` angles `2 pi (j + 1/2) / 2^32`
+//!   once (the same angles as `2 pi u`, in another order, so that the sine and cosine need
+//!   polynomials on `|x| <= pi/4` only). Four sites share three blocks. A component of one
+//!   site and one of the next may come from one pair; the two deviates of a Box-Muller pair
+//!   are independent (Box and Muller 1958), and the tests check the flattened sequence for
+//!   correlation.
 //!
 //!   **Accuracy:** each deviate is within `1.5e-10` of the exact transform of its words;
 //!   that moves its distribution function by at most `6e-11`, half of what the `2^-32`
@@ -63,26 +65,14 @@
 //!   cosines never exceed 1). An exact standard normal exceeds that with probability
 //!   `1.3e-11` per deviate; below it the radial law is exact up to the `2^-32` quantisation
 //!   of `u`.
-//! * [`NoiseStream::gaussian3_dense`] is the other layout, for the LLG thermal field: the
-//!   deviates of a step form one sequence, `3 site + component`, and Philox block `b` (the
-//!   counter's site words hold `b`) gives deviates `4 b .. 4 b + 3` as two full
-//!   Box-Muller pairs, `r0 (cos theta1, sin theta1)` and `r2 (cos theta3, sin theta3)`,
-//!   with the radii and angles above. Four sites share three blocks, so the bulk fill
-//!   ([`NoiseStream::fill_gaussian3_dense`], which also takes a scale for the radii) needs
-//!   a quarter fewer Philox calls and logarithms, and no half-turn sine. The same accuracy
-//!   and cut-off hold. A component of one site and one of the next may come from one pair;
-//!   the two deviates of a Box-Muller pair are independent (Box and Muller 1958), and the
-//!   tests check the flattened sequence for correlation.
-//! * [`NoiseStream::fill_gaussian3`] evaluates many consecutive sites at once, bit for bit
-//!   equal to the per-site calls: Philox on blocks of 16 sites, then branch-free
-//!   logarithm and sine/cosine kernels (fitted polynomials) that the compiler vectorises.
-//!   The kernels use only correctly rounded IEEE operations and Rust never contracts them
-//!   into fused multiply-adds, so the numbers are also the same on every platform and for
-//!   every `target-cpu`.
-//! * [`NoiseStream::uniform4`] and [`NoiseStream::fill_uniform4`] give four uniforms
-//!   `w_i / 2^32` on `[0, 1)`, resolution `2^-32`.
-//! * [`NoiseStream::fill_gaussian3_at`] and [`NoiseStream::fill_uniform4_at`] do the same
-//!   in bulk for a list of scattered sites, bit for bit equal to the per-site calls.
+//! * [`NoiseStream::fill_gaussian3_dense`] evaluates many consecutive sites at once, bit for
+//!   bit equal to the per-site calls, with a scale applied to the radii: Philox on groups
+//!   of 32 sites (24 blocks), then branch-free logarithm and sine/cosine kernels (fitted
+//!   polynomials) that the compiler vectorises. The kernels use only correctly rounded
+//!   IEEE operations and Rust never contracts them into fused multiply-adds, so the numbers
+//!   are also the same on every platform and for every `target-cpu`.
+//! * [`NoiseStream::uniform4`] gives four uniforms `w_i / 2^32` on `[0, 1)`, resolution
+//!   `2^-32` (random initial states).
 //! * [`NoiseStream::trial`] and [`NoiseStream::fill_trial_at`] give the random numbers of
 //!   one Monte Carlo trial move from one Philox call: a move choice in eighths, an
 //!   isotropic perturbation and a 32-bit acceptance uniform (see `trial.rs` for the layout
@@ -91,14 +81,14 @@
 //! # Cost
 //!
 //! Measured on an AMD EPYC (Zen 4) with one thread, filling 256-site blocks as the Heun
-//! step does: `fill_gaussian3` takes about 4.4 ns per site (three deviates) on x86-64-v4
-//! (AVX-512), of which Philox is about 1.5 ns; about 7 ns on x86-64-v3 (AVX2) and 13 ns
-//! on the baseline x86-64 (SSE2), all with the same bits. `fill_gaussian3_dense` takes 14%
-//! less than `fill_gaussian3` (2.3 against 2.7 ns per site at x86-64-v4, in one criterion
-//! run). `fill_uniform4` takes about 2.4, 3 and 5.5 ns. The bulk functions are compiled for every level of `spindrift_isa`
-//! and run on the widest the CPU has, so the default portable build gets the faster
-//! figures. The loops are bound by the number of vector instructions, so every polynomial
-//! term counts: about 0.1 ns per site.
+//! step does: `fill_gaussian3_dense` takes about 2.3 ns per site (three deviates) on
+//! x86-64-v4 (AVX-512), of which Philox is about 1.2 ns. An earlier layout with one block
+//! per site and a half-turn sine for the third deviate took 2.7 ns in the same criterion
+//! run (4.4 ns on another day; the baseline x86-64 level is about three times slower than
+//! AVX-512, with the same bits). The bulk functions are compiled for every level of
+//! `spindrift_isa` and run on the widest the CPU has, so the default portable build gets
+//! the faster figures. The loops are bound by the number of vector instructions, so every
+//! polynomial term counts: about 0.1 ns per site.
 //!
 //! All deviates are dimensionless; callers scale them (for example by the thermal field's
 //! standard deviation in tesla).
@@ -109,8 +99,8 @@
 //! let noise = NoiseStream::new(7, STREAM_LLG_THERMAL);
 //! let mut b = vec![[0.0; 3]; 1000];
 //! // A thread that owns sites 1000..2000 fills its own slice for time step 42.
-//! noise.fill_gaussian3(42, 1000, &mut b);
-//! assert_eq!(b[5], noise.gaussian3(42, 1005));
+//! noise.fill_gaussian3_dense(42, 1000, 1.0, &mut b);
+//! assert_eq!(b[5], noise.gaussian3_dense(42, 1005));
 //! ```
 #![deny(missing_docs)]
 
@@ -121,7 +111,7 @@ mod trial;
 pub use philox::philox4x32_10;
 pub use trial::TrialDraw;
 
-use transform::{gaussian3_from_words, gaussian4_from_words, uniform4_from_words};
+use transform::{gaussian4_from_words, uniform4_from_words};
 
 /// Stream id of the stochastic LLG thermal field.
 pub const STREAM_LLG_THERMAL: u32 = 0;
@@ -178,40 +168,10 @@ impl NoiseStream {
         philox4x32_10(counter(step, site), self.key)
     }
 
-    /// Three independent standard normal deviates (mean 0, variance 1, dimensionless) for
-    /// `(step, site)`, from one Philox call. Magnitudes never exceed 6.7637 (see the crate
-    /// documentation for this cut-off and for the accuracy).
-    #[inline]
-    pub fn gaussian3(&self, step: u64, site: u64) -> [f64; 3] {
-        gaussian3_from_words(self.words(step, site))
-    }
-
-    /// `out[k] = self.gaussian3(step, first_site + k)` for every `k`, bit for bit, with site
-    /// indices wrapping modulo `2^64`. Evaluated in blocks for speed; allocates nothing.
-    pub fn fill_gaussian3(&self, step: u64, first_site: u64, out: &mut [[f64; 3]]) {
-        fill_gaussian3_kernel(*self, step, first_site, out);
-    }
-
-    #[inline(always)]
-    fn fill_gaussian3_portable(&self, step: u64, first_site: u64, out: &mut [[f64; 3]]) {
-        let mut site = first_site;
-        let mut blocks = out.chunks_exact_mut(LANES);
-        for block in &mut blocks {
-            let w = self.words_lanes::<LANES>(step, site);
-            for j in 0..LANES {
-                block[j] = gaussian3_from_words([w[0][j], w[1][j], w[2][j], w[3][j]]);
-            }
-            site = site.wrapping_add(LANES as u64);
-        }
-        for (k, g) in blocks.into_remainder().iter_mut().enumerate() {
-            *g = self.gaussian3(step, site.wrapping_add(k as u64));
-        }
-    }
-
     /// Three independent standard normal deviates for `(step, site)` in the dense layout
     /// (see the crate documentation): deviates `3 site .. 3 site + 2` of the step's
-    /// sequence, four per Philox block, so that four sites share three blocks. A different
-    /// sequence from [`NoiseStream::gaussian3`], with the same accuracy and cut-off.
+    /// sequence, four per Philox block, so that four sites share three blocks. Magnitudes
+    /// never exceed 6.7637 (see the crate documentation for this cut-off and the accuracy).
     #[inline]
     pub fn gaussian3_dense(&self, step: u64, site: u64) -> [f64; 3] {
         self.dense_site(step, site, 1.0)
@@ -238,8 +198,8 @@ impl NoiseStream {
     /// `out[k] = scale * self.gaussian3_dense(step, first_site + k)` for every `k`, bit for
     /// bit (with `scale` multiplying the radius, as in the per-site call), for site indices
     /// without wrap-around. Whole groups of four sites, starting at a multiple of four,
-    /// take three Philox blocks and four logarithms and sine-cosine pairs: a quarter fewer
-    /// than [`NoiseStream::fill_gaussian3`]. Allocates nothing.
+    /// take three Philox blocks, six logarithms and six sine-cosine pairs. Allocates
+    /// nothing.
     pub fn fill_gaussian3_dense(&self, step: u64, first_site: u64, scale: f64, out: &mut [[f64; 3]]) {
         fill_gaussian3_dense_kernel(*self, step, first_site, scale, out);
     }
@@ -285,78 +245,6 @@ impl NoiseStream {
         uniform4_from_words(self.words(step, site))
     }
 
-    /// `out[k] = self.uniform4(step, first_site + k)` for every `k`, bit for bit, with site
-    /// indices wrapping modulo `2^64`. Allocates nothing.
-    ///
-    /// The loop repeats that of [`NoiseStream::fill_gaussian3`] on purpose: a shared
-    /// generic version taking the transform as a closure measured 25% slower in a whole
-    /// 300 K run (1.40e7 -> 1.09e7 spin-steps/s, one thread), as the compiler no longer
-    /// vectorised the transform across lanes.
-    pub fn fill_uniform4(&self, step: u64, first_site: u64, out: &mut [[f64; 4]]) {
-        fill_uniform4_kernel(*self, step, first_site, out);
-    }
-
-    #[inline(always)]
-    fn fill_uniform4_portable(&self, step: u64, first_site: u64, out: &mut [[f64; 4]]) {
-        let mut site = first_site;
-        let mut blocks = out.chunks_exact_mut(LANES);
-        for block in &mut blocks {
-            let w = self.words_lanes::<LANES>(step, site);
-            for j in 0..LANES {
-                block[j] = uniform4_from_words([w[0][j], w[1][j], w[2][j], w[3][j]]);
-            }
-            site = site.wrapping_add(LANES as u64);
-        }
-        for (k, u) in blocks.into_remainder().iter_mut().enumerate() {
-            *u = self.uniform4(step, site.wrapping_add(k as u64));
-        }
-    }
-
-    /// `out[k] = self.gaussian3(step, sites[k])` for every `k`, bit for bit: the bulk
-    /// evaluation for a list of scattered sites (a Monte Carlo colour class, say). Panics if
-    /// the lengths differ. Allocates nothing.
-    pub fn fill_gaussian3_at(&self, step: u64, sites: &[u32], out: &mut [[f64; 3]]) {
-        fill_gaussian3_at_kernel(*self, step, sites, out);
-    }
-
-    #[inline(always)]
-    fn fill_gaussian3_at_portable(&self, step: u64, sites: &[u32], out: &mut [[f64; 3]]) {
-        assert_eq!(sites.len(), out.len(), "one output per site");
-        let mut blocks = out.chunks_exact_mut(LANES);
-        let mut ids = sites.chunks_exact(LANES);
-        for (block, id) in (&mut blocks).zip(&mut ids) {
-            let w = self.words_lanes_at::<LANES>(step, id);
-            for j in 0..LANES {
-                block[j] = gaussian3_from_words([w[0][j], w[1][j], w[2][j], w[3][j]]);
-            }
-        }
-        for (g, &site) in blocks.into_remainder().iter_mut().zip(ids.remainder()) {
-            *g = self.gaussian3(step, u64::from(site));
-        }
-    }
-
-    /// `out[k] = self.uniform4(step, sites[k])` for every `k`, bit for bit. Panics if the
-    /// lengths differ. Allocates nothing.
-    pub fn fill_uniform4_at(&self, step: u64, sites: &[u32], out: &mut [[f64; 4]]) {
-        fill_uniform4_at_kernel(*self, step, sites, out);
-    }
-
-    #[inline(always)]
-    fn fill_uniform4_at_portable(&self, step: u64, sites: &[u32], out: &mut [[f64; 4]]) {
-        assert_eq!(sites.len(), out.len(), "one output per site");
-        let mut blocks = out.chunks_exact_mut(LANES);
-        let mut ids = sites.chunks_exact(LANES);
-        for (block, id) in (&mut blocks).zip(&mut ids) {
-            let w = self.words_lanes_at::<LANES>(step, id);
-            for j in 0..LANES {
-                block[j] = uniform4_from_words([w[0][j], w[1][j], w[2][j], w[3][j]]);
-            }
-        }
-        for (u, &site) in blocks.into_remainder().iter_mut().zip(ids.remainder()) {
-            *u = self.uniform4(step, u64::from(site));
-        }
-    }
-
     /// Philox words of the `L` sites listed in `sites` (at least `L` of them), word-major.
     #[inline(always)]
     fn words_lanes_at<const L: usize>(&self, step: u64, sites: &[u32]) -> [[u32; L]; 4] {
@@ -395,13 +283,6 @@ fn counter(step: u64, site: u64) -> [u32; 4] {
 }
 
 spindrift_isa::multiversion! {
-    /// [`NoiseStream::fill_gaussian3`], compiled per instruction-set level.
-    fn fill_gaussian3_kernel(stream: NoiseStream, step: u64, first_site: u64, out: &mut [[f64; 3]]) {
-        stream.fill_gaussian3_portable(step, first_site, out)
-    }
-}
-
-spindrift_isa::multiversion! {
     /// [`NoiseStream::fill_gaussian3_dense`], compiled per instruction-set level.
     fn fill_gaussian3_dense_kernel(
         stream: NoiseStream,
@@ -411,27 +292,6 @@ spindrift_isa::multiversion! {
         out: &mut [[f64; 3]]
     ) {
         stream.fill_gaussian3_dense_portable(step, first_site, scale, out)
-    }
-}
-
-spindrift_isa::multiversion! {
-    /// [`NoiseStream::fill_uniform4`], compiled per instruction-set level.
-    fn fill_uniform4_kernel(stream: NoiseStream, step: u64, first_site: u64, out: &mut [[f64; 4]]) {
-        stream.fill_uniform4_portable(step, first_site, out)
-    }
-}
-
-spindrift_isa::multiversion! {
-    /// [`NoiseStream::fill_gaussian3_at`], compiled per instruction-set level.
-    fn fill_gaussian3_at_kernel(stream: NoiseStream, step: u64, sites: &[u32], out: &mut [[f64; 3]]) {
-        stream.fill_gaussian3_at_portable(step, sites, out)
-    }
-}
-
-spindrift_isa::multiversion! {
-    /// [`NoiseStream::fill_uniform4_at`], compiled per instruction-set level.
-    fn fill_uniform4_at_kernel(stream: NoiseStream, step: u64, sites: &[u32], out: &mut [[f64; 4]]) {
-        stream.fill_uniform4_at_portable(step, sites, out)
     }
 }
 

@@ -7,28 +7,11 @@ use super::*;
 
 const N: usize = 1_000_000;
 
-/// The two ways of drawing three deviates per site: one Philox block per site
-/// (`gaussian3`), or four sites per three blocks (`gaussian3_dense`).
-#[derive(Debug, Clone, Copy)]
-enum Layout {
-    Site,
-    Dense,
-}
-
-const LAYOUTS: [Layout; 2] = [Layout::Site, Layout::Dense];
-
-fn normals_in(layout: Layout, seed: u64, stream: u32, step: u64, n: usize) -> Vec<[f64; 3]> {
-    let mut g = vec![[0.0; 3]; n];
-    let s = NoiseStream::new(seed, stream);
-    match layout {
-        Layout::Site => s.fill_gaussian3(step, 0, &mut g),
-        Layout::Dense => s.fill_gaussian3_dense(step, 0, 1.0, &mut g),
-    }
-    g
-}
-
+/// `n` sites' thermal-noise deviates (the dense layout) of `(seed, stream, step)`.
 fn normals(seed: u64, stream: u32, step: u64, n: usize) -> Vec<[f64; 3]> {
-    normals_in(Layout::Site, seed, stream, step, n)
+    let mut g = vec![[0.0; 3]; n];
+    NoiseStream::new(seed, stream).fill_gaussian3_dense(step, 0, 1.0, &mut g);
+    g
 }
 
 fn mean(x: &[f64]) -> f64 {
@@ -74,32 +57,6 @@ fn words_follow_the_documented_counter_layout() {
     assert_eq!(s.key, [k as u32, (k >> 32) as u32]);
 }
 
-#[test]
-fn bulk_fill_equals_per_site_calls_bit_for_bit() {
-    let s = NoiseStream::new(7, STREAM_LLG_THERMAL);
-    // Lengths around the block size, and first sites that carry into the high counter
-    // word and wrap around 2^64.
-    for &first in &[0u64, 5, (1 << 32) - 3, u64::MAX - 4] {
-        for len in [0usize, 1, 7, 8, 9, 16, 17, 100, 1001] {
-            let mut g = vec![[f64::NAN; 3]; len];
-            s.fill_gaussian3(42, first, &mut g);
-            let mut u = vec![[f64::NAN; 4]; len];
-            s.fill_uniform4(42, first, &mut u);
-            for k in 0..len {
-                let site = first.wrapping_add(k as u64);
-                let one = s.gaussian3(42, site);
-                for i in 0..3 {
-                    assert_eq!(g[k][i].to_bits(), one[i].to_bits(), "site {site} component {i}");
-                }
-                let one = s.uniform4(42, site);
-                for i in 0..4 {
-                    assert_eq!(u[k][i].to_bits(), one[i].to_bits(), "site {site} component {i}");
-                }
-            }
-        }
-    }
-}
-
 // The property the crate exists for: any split of the sites over any number of threads
 // gives the same bits.
 #[test]
@@ -107,13 +64,13 @@ fn same_bits_for_any_thread_count_and_chunking() {
     let s = NoiseStream::new(2024, STREAM_LLG_THERMAL);
     let n = 10_007;
     let mut serial = vec![[0.0; 3]; n];
-    s.fill_gaussian3(3, 0, &mut serial);
+    s.fill_gaussian3_dense(3, 0, 1.0, &mut serial);
     for threads in [2usize, 3, 7] {
         let mut parallel = vec![[0.0; 3]; n];
         let chunk = n.div_ceil(threads);
         std::thread::scope(|scope| {
             for (t, part) in parallel.chunks_mut(chunk).enumerate() {
-                scope.spawn(move || s.fill_gaussian3(3, (t * chunk) as u64, part));
+                scope.spawn(move || s.fill_gaussian3_dense(3, (t * chunk) as u64, 1.0, part));
             }
         });
         let same =
@@ -125,15 +82,15 @@ fn same_bits_for_any_thread_count_and_chunking() {
 #[test]
 fn different_seeds_streams_steps_and_sites_give_different_numbers() {
     let base = NoiseStream::new(1, STREAM_LLG_THERMAL);
-    let g = base.gaussian3(10, 20);
+    let g = base.gaussian3_dense(10, 20);
     let variants = [
-        NoiseStream::new(2, STREAM_LLG_THERMAL).gaussian3(10, 20),
-        NoiseStream::new(1, STREAM_METROPOLIS).gaussian3(10, 20),
-        NoiseStream::new(1, STREAM_INITIAL_STATE).gaussian3(10, 20),
-        base.gaussian3(11, 20),
-        base.gaussian3(10, 21),
+        NoiseStream::new(2, STREAM_LLG_THERMAL).gaussian3_dense(10, 20),
+        NoiseStream::new(1, STREAM_METROPOLIS).gaussian3_dense(10, 20),
+        NoiseStream::new(1, STREAM_INITIAL_STATE).gaussian3_dense(10, 20),
+        base.gaussian3_dense(11, 20),
+        base.gaussian3_dense(10, 21),
         // Swapping step and site must not alias.
-        base.gaussian3(20, 10),
+        base.gaussian3_dense(20, 10),
     ];
     for v in variants {
         for i in 0..3 {
@@ -173,18 +130,17 @@ fn different_seeds_streams_and_steps_are_uncorrelated() {
 // Each of the three components is tested on its own 10^6 deviates.
 #[test]
 fn normal_moments_and_tails() {
-    let cases = [(Layout::Site, 7u64, STREAM_LLG_THERMAL), (Layout::Site, 123_456_789, STREAM_INITIAL_STATE)];
-    for (layout, seed, stream) in cases.into_iter().chain([(Layout::Dense, 7, STREAM_LLG_THERMAL)]) {
-        let g = normals_in(layout, seed, stream, 5, N);
+    for (seed, stream) in [(7u64, STREAM_LLG_THERMAL), (123_456_789, STREAM_INITIAL_STATE)] {
+        let g = normals(seed, stream, 5, N);
         let n = N as f64;
         for i in 0..3 {
             let x = component(&g, i);
             let m1 = mean(&x);
             let m2 = x.iter().map(|v| v * v).sum::<f64>() / n;
             let m4 = x.iter().map(|v| v.powi(4)).sum::<f64>() / n;
-            assert!(m1.abs() < 5.0 / n.sqrt(), "{layout:?}: mean {m1}");
-            assert!((m2 - 1.0).abs() < 5.0 * (2.0 / n).sqrt(), "{layout:?}: variance {m2}");
-            assert!((m4 - 3.0).abs() < 5.0 * (96.0 / n).sqrt(), "{layout:?}: fourth moment {m4}");
+            assert!(m1.abs() < 5.0 / n.sqrt(), "mean {m1}");
+            assert!((m2 - 1.0).abs() < 5.0 * (2.0 / n).sqrt(), "variance {m2}");
+            assert!((m4 - 3.0).abs() < 5.0 * (96.0 / n).sqrt(), "fourth moment {m4}");
             for (k, p) in [(1.0, 0.317_310_507_9), (2.0, 0.045_500_263_9), (3.0, 0.002_699_796_1)] {
                 let frac = x.iter().filter(|v| v.abs() > k).count() as f64 / n;
                 let se = (p * (1.0 - p) / n).sqrt();
@@ -223,17 +179,15 @@ fn normal_histogram_chi_square() {
         1.281_551_566,
         1.644_853_627,
     ];
-    for layout in LAYOUTS {
-        let g = normals_in(layout, 31, STREAM_LLG_THERMAL, 0, N);
-        for i in 0..3 {
-            let mut counts = [0usize; 20];
-            for v in &g {
-                counts[EDGES.partition_point(|&e| e < v[i])] += 1;
-            }
-            let expected = N as f64 / 20.0;
-            let chi2: f64 = counts.iter().map(|&c| (c as f64 - expected).powi(2) / expected).sum();
-            assert!(chi2 < 19.0 + 5.0 * 38f64.sqrt(), "{layout:?}: chi2 = {chi2}, counts {counts:?}");
+    let g = normals(31, STREAM_LLG_THERMAL, 0, N);
+    for i in 0..3 {
+        let mut counts = [0usize; 20];
+        for v in &g {
+            counts[EDGES.partition_point(|&e| e < v[i])] += 1;
         }
+        let expected = N as f64 / 20.0;
+        let chi2: f64 = counts.iter().map(|&c| (c as f64 - expected).powi(2) / expected).sum();
+        assert!(chi2 < 19.0 + 5.0 * 38f64.sqrt(), "chi2 = {chi2}, counts {counts:?}");
     }
 }
 
@@ -289,24 +243,22 @@ fn ks_statistic(mut x: Vec<f64>, cdf: impl Fn(f64) -> f64) -> f64 {
 // that misplaced a quarter of the circle or mis-scaled the radius by 1% fails it.
 #[test]
 fn kolmogorov_smirnov_against_normal_and_chi_square() {
-    for layout in LAYOUTS {
-        let g = normals_in(layout, 2026, STREAM_LLG_THERMAL, 9, N);
-        let bound = 2.5 / (N as f64).sqrt();
-        let (ca, sa) = (0.3f64.cos(), 0.3f64.sin());
-        let samples = [
-            ("component 0", component(&g, 0)),
-            ("component 1", component(&g, 1)),
-            ("component 2", component(&g, 2)),
-            ("rotated pair", g.iter().map(|v| ca * v[0] + sa * v[1]).collect()),
-        ];
-        for (name, x) in samples {
-            let d = ks_statistic(x, normal_cdf);
-            assert!(d < bound, "{layout:?}, {name}: D = {d}, bound {bound}");
-        }
-        let r2: Vec<f64> = g.iter().map(|v| v[0] * v[0] + v[1] * v[1]).collect();
-        let d = ks_statistic(r2, |x| 1.0 - (-0.5 * x).exp());
-        assert!(d < bound, "{layout:?}, squared radius: D = {d}, bound {bound}");
+    let g = normals(2026, STREAM_LLG_THERMAL, 9, N);
+    let bound = 2.5 / (N as f64).sqrt();
+    let (ca, sa) = (0.3f64.cos(), 0.3f64.sin());
+    let samples = [
+        ("component 0", component(&g, 0)),
+        ("component 1", component(&g, 1)),
+        ("component 2", component(&g, 2)),
+        ("rotated pair", g.iter().map(|v| ca * v[0] + sa * v[1]).collect()),
+    ];
+    for (name, x) in samples {
+        let d = ks_statistic(x, normal_cdf);
+        assert!(d < bound, "{name}: D = {d}, bound {bound}");
     }
+    let r2: Vec<f64> = g.iter().map(|v| v[0] * v[0] + v[1] * v[1]).collect();
+    let d = ks_statistic(r2, |x| 1.0 - (-0.5 * x).exp());
+    assert!(d < bound, "squared radius: D = {d}, bound {bound}");
 }
 
 // No correlation between the three components of one site, nor between the same component
@@ -316,49 +268,36 @@ fn kolmogorov_smirnov_against_normal_and_chi_square() {
 // dense layout those are the pairs that cross a site boundary and may share a radius.
 #[test]
 fn components_sites_and_steps_are_uncorrelated() {
-    for layout in LAYOUTS {
-        let g = normals_in(layout, 11, STREAM_LLG_THERMAL, 0, N);
-        let c: Vec<Vec<f64>> = (0..3).map(|i| component(&g, i)).collect();
-        let bound = 5.0 / (N as f64).sqrt();
-        for (i, j) in [(0, 1), (0, 2), (1, 2)] {
-            let r = correlation(&c[i], &c[j]);
-            assert!(r.abs() < bound, "{layout:?}: components {i},{j}: r = {r}");
-        }
-        for i in 0..3 {
-            let r = correlation(&c[i][..N - 1], &c[i][1..]);
-            assert!(
-                r.abs() < 5.0 / ((N - 1) as f64).sqrt(),
-                "{layout:?}: consecutive sites, component {i}: r = {r}"
-            );
-        }
-        // The squares too: Box-Muller pairs share a radius, which would show up here if two
-        // pairs were built from overlapping words.
-        let sq: Vec<Vec<f64>> = c.iter().map(|x| x.iter().map(|v| v * v).collect()).collect();
-        for (i, j) in [(0, 1), (0, 2), (1, 2)] {
-            let r = correlation(&sq[i], &sq[j]);
-            assert!(r.abs() < bound, "{layout:?}: squares of components {i},{j}: r = {r}");
-        }
-        let flat = g.as_flattened();
-        let m = flat.len() - 1;
-        let flat_sq: Vec<f64> = flat.iter().map(|v| v * v).collect();
-        for (name, x) in [("deviates", flat), ("squares", &flat_sq[..])] {
-            let r = correlation(&x[..m], &x[1..]);
-            assert!(
-                r.abs() < 5.0 / (m as f64).sqrt(),
-                "{layout:?}: consecutive {name} of the sequence: r = {r}"
-            );
-        }
-        // One site over consecutive steps; site 18 starts in the middle of a dense block.
-        let s = NoiseStream::new(11, STREAM_LLG_THERMAL);
-        let series: Vec<f64> = (0..N as u64)
-            .map(|step| match layout {
-                Layout::Site => s.gaussian3(step, 17)[0],
-                Layout::Dense => s.gaussian3_dense(step, 18)[0],
-            })
-            .collect();
-        let r = correlation(&series[..N - 1], &series[1..]);
-        assert!(r.abs() < 5.0 / ((N - 1) as f64).sqrt(), "{layout:?}: consecutive steps: r = {r}");
+    let g = normals(11, STREAM_LLG_THERMAL, 0, N);
+    let c: Vec<Vec<f64>> = (0..3).map(|i| component(&g, i)).collect();
+    let bound = 5.0 / (N as f64).sqrt();
+    for (i, j) in [(0, 1), (0, 2), (1, 2)] {
+        let r = correlation(&c[i], &c[j]);
+        assert!(r.abs() < bound, "components {i},{j}: r = {r}");
     }
+    for i in 0..3 {
+        let r = correlation(&c[i][..N - 1], &c[i][1..]);
+        assert!(r.abs() < 5.0 / ((N - 1) as f64).sqrt(), "consecutive sites, component {i}: r = {r}");
+    }
+    // The squares too: Box-Muller pairs share a radius, which would show up here if two
+    // pairs were built from overlapping words.
+    let sq: Vec<Vec<f64>> = c.iter().map(|x| x.iter().map(|v| v * v).collect()).collect();
+    for (i, j) in [(0, 1), (0, 2), (1, 2)] {
+        let r = correlation(&sq[i], &sq[j]);
+        assert!(r.abs() < bound, "squares of components {i},{j}: r = {r}");
+    }
+    let flat = g.as_flattened();
+    let m = flat.len() - 1;
+    let flat_sq: Vec<f64> = flat.iter().map(|v| v * v).collect();
+    for (name, x) in [("deviates", flat), ("squares", &flat_sq[..])] {
+        let r = correlation(&x[..m], &x[1..]);
+        assert!(r.abs() < 5.0 / (m as f64).sqrt(), "consecutive {name} of the sequence: r = {r}");
+    }
+    // One site over consecutive steps; site 18 starts in the middle of a dense block.
+    let s = NoiseStream::new(11, STREAM_LLG_THERMAL);
+    let series: Vec<f64> = (0..N as u64).map(|step| s.gaussian3_dense(step, 18)[0]).collect();
+    let r = correlation(&series[..N - 1], &series[1..]);
+    assert!(r.abs() < 5.0 / ((N - 1) as f64).sqrt(), "consecutive steps: r = {r}");
 }
 
 // The dense layout's bulk fill against its per-site call, bit for bit, for every offset of
@@ -422,8 +361,8 @@ fn dense_layout_same_bits_for_any_chunking() {
 // 100-bin chi-square (Pearson 1900; 99 degrees of freedom, bound mean + 5 sd).
 #[test]
 fn uniform_moments_histogram_and_correlation() {
-    let mut u = vec![[0.0; 4]; N];
-    NoiseStream::new(5, STREAM_METROPOLIS).fill_uniform4(9, 0, &mut u);
+    let stream = NoiseStream::new(5, STREAM_INITIAL_STATE);
+    let u: Vec<[f64; 4]> = (0..N as u64).map(|site| stream.uniform4(9, site)).collect();
     let n = N as f64;
     let cols: Vec<Vec<f64>> = (0..4).map(|i| u.iter().map(|v| v[i]).collect()).collect();
     for x in &cols {
@@ -448,25 +387,5 @@ fn uniform_moments_histogram_and_correlation() {
         }
         let r = correlation(&cols[i][..N - 1], &cols[i][1..]);
         assert!(r.abs() < 5.0 / (n - 1.0).sqrt(), "consecutive sites, word {i}: r = {r}");
-    }
-}
-
-// The bulk functions for scattered sites must give exactly the per-site deviates (the
-// Monte Carlo sweep relies on it for its documented addressing), for lists shorter and
-// longer than a block and with a remainder. Common practice for a bulk/scalar pair.
-#[test]
-fn bulk_at_sites_equals_per_site_calls_bitwise() {
-    let stream = NoiseStream::new(11, STREAM_METROPOLIS);
-    for len in [0usize, 1, 15, 16, 17, 100] {
-        let sites: Vec<u32> = (0..len as u32).map(|k| k.wrapping_mul(2_654_435_761) % 1_000_003).collect();
-        let mut g = vec![[0.0; 3]; len];
-        let mut u = vec![[0.0; 4]; len];
-        stream.fill_gaussian3_at(42, &sites, &mut g);
-        stream.fill_uniform4_at(43, &sites, &mut u);
-        for k in 0..len {
-            let site = u64::from(sites[k]);
-            assert_eq!(g[k].map(f64::to_bits), stream.gaussian3(42, site).map(f64::to_bits));
-            assert_eq!(u[k].map(f64::to_bits), stream.uniform4(43, site).map(f64::to_bits));
-        }
     }
 }

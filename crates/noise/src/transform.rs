@@ -16,16 +16,13 @@
 //!   that at most `1.7e-11` relative in `y`). Then `y = s Q(z) - 2 (e - 32) ln 2` with
 //!   `Q = -4 (1 + z P)`. `m - 1` is exact (Sterbenz), so `y` keeps its relative accuracy
 //!   for `u` next to 1.
-//! * Angle of the first pair: bit 31 of the word negates the cosine, bit 30 swaps cosine and
+//! * Angle of a pair: bit 31 of the word negates the cosine, bit 30 swaps cosine and
 //!   sine, and bits 0 to 29 give `x = (2 k + 1 - 2^30) pi / 2^32` in `(-pi/4, pi/4)`. The
 //!   four cases are the quarters of the circle centred on the `+x`, `-x`, `+y` and `-y`
 //!   axes, so the words map one to one onto the `2^32` angles `2 pi (j + 1/2) / 2^32`: a
 //!   uniform angle, as for `2 pi u`, in another order. `cos x = 1 + z C(z)` (quartic `C`,
 //!   error below `2.3e-13`) and `sin x = x + x z S(z)` (cubic `S`, below `2e-11`
 //!   relative), `z = x^2`.
-//! * Third deviate: `sin x` for `x = pi (u - 1/2)` in `(-pi/2, pi/2)`, `x + x z S(z)` with a
-//!   quintic `S` whose constant term is lowered by 1.5 times its fitting error, so that the
-//!   polynomial never exceeds `|sin x|` (hence never 1); absolute error below `8e-13`.
 //!
 //! The polynomials are minimax fits (Remez exchange in 60-digit arithmetic, rounded to
 //! double) made by `tools/fit_polynomials.py` in this crate, and evaluated by Horner's rule,
@@ -146,18 +143,6 @@ const COS_C: [f64; 5] = [
     2.47998628572598e-05,
     -2.7237194487682744e-07,
 ];
-/// `(sin x - x)/x^3` as a quintic in `x^2`, fitted on `|x| <= pi/2` (maximum error
-/// `8.2e-14`), then lowered by 1.5 times that error so that it stays below the exact
-/// function.
-const SIN_HALF_C: [f64; 6] = [
-    -0.16666666666670749,
-    0.00833333333094789,
-    -0.00019841268711495946,
-    2.7557123451213166e-06,
-    -2.503675783023972e-08,
-    1.5502716875603527e-10,
-];
-
 /// `c[0] + c[1] z + c[2] z^2 + ...` by Horner's rule.
 #[inline(always)]
 fn horner(c: &[f64], z: f64) -> f64 {
@@ -190,36 +175,6 @@ pub(crate) fn cos_sin_turn(w: u32) -> (f64, f64) {
     } else {
         (c, s)
     }
-}
-
-/// `sin x` for `|x| < pi/2`, never above `|sin x|`.
-#[inline(always)]
-pub(crate) fn sin_half_turn_reduced(x: f64) -> f64 {
-    let z = x * x;
-    x + x * (z * horner(&SIN_HALF_C, z))
-}
-
-/// `sin x` for `x = pi ((w + 1/2) / 2^32 - 1/2)`, uniform on `(-pi/2, pi/2)`. Its sine has
-/// the arcsine law on `(-1, 1)`, the law of the cosine of a uniform angle on the circle,
-/// at the cost of one polynomial instead of two.
-#[inline(always)]
-pub(crate) fn sin_half_turn(w: u32) -> f64 {
-    let w = u64::from(w);
-    // The odd integer 2 w + 1 - 2^32, below 2^32 in magnitude; exact in f64.
-    let odd = two_pow_52_plus((w << 1) | 1) - (TWO_POW_52 + 4_294_967_296.0);
-    sin_half_turn_reduced(odd * (PI * TWO_POW_M32 * 0.5))
-}
-
-/// Three standard normal deviates from one Philox block, by Box-Muller: a full pair
-/// `r1 (cos theta, sin theta)` from words 0 and 1, and `r2 sin phi` from words 2 and 3,
-/// with `phi` uniform on a half turn (the sign of `sin phi` covers the other half).
-#[inline(always)]
-pub(crate) fn gaussian3_from_words(w: [u32; 4]) -> [f64; 3] {
-    let r1 = box_muller_radius(w[0]);
-    let (c1, s1) = cos_sin_turn(w[1]);
-    let r2 = box_muller_radius(w[2]);
-    let s2 = sin_half_turn(w[3]);
-    [r1 * c1, r1 * s1, r2 * s2]
 }
 
 /// Four standard normal deviates from one Philox block, each multiplied by `scale`: two
@@ -333,28 +288,6 @@ mod tests {
         assert!(worst_s < 2e-11, "worst relative error of sin: {worst_s:e}");
     }
 
-    // The half-turn sine within 8e-13 (the shifted quintic), and never above |sin x|, so
-    // never beyond 1 even for the words whose angle is nearest +-pi/2.
-    #[test]
-    fn half_turn_sine_matches_std_and_stays_inside_unit_interval() {
-        let mut worst = 0.0f64;
-        for k in -100_000i32..=100_000 {
-            let x = f64::from(k) * (PI / 2.0 / 100_001.0);
-            let s = sin_half_turn_reduced(x);
-            worst = worst.max((s - x.sin()).abs());
-            assert!(s.abs() <= x.sin().abs(), "x = {x}");
-        }
-        let ends = (0u32..1000).chain(u32::MAX - 999..=u32::MAX);
-        for w in sample_words().chain(ends) {
-            let x = PI * (open_unit(w) - 0.5);
-            let s = sin_half_turn(w);
-            assert!(s.abs() < 1.0, "w = {w}");
-            // The std reference's angle is rounded twice, hence a little more room.
-            assert!((s - x.sin()).abs() < 1e-12, "w = {w}");
-        }
-        assert!(worst < 8e-13, "worst absolute error of the half-turn sine: {worst:e}");
-    }
-
     /// The angle of `cos_sin_turn(w)` as the module documentation defines it: offset `x`
     /// from the centre of the quarter chosen by bits 30 and 31.
     fn documented_angle(w: u32) -> f64 {
@@ -422,24 +355,17 @@ mod tests {
         assert!(worst < 2e-11, "worst absolute error of the turn sine/cosine: {worst:e}");
     }
 
-    // The three deviates against Box-Muller written with std (G. E. P. Box and M. E. Muller,
-    // Ann. Math. Statist. 29, 610 (1958)) on the same words and angles: within the
-    // documented 1.5e-10.
+    // The four deviates of a block against Box-Muller written with std (G. E. P. Box and
+    // M. E. Muller, Ann. Math. Statist. 29, 610 (1958)) on the same words and angles: within
+    // the documented 1.5e-10.
     #[test]
     fn gaussian_transform_matches_box_muller_with_std_functions() {
         let mut worst = 0.0f64;
         for w0 in sample_words().step_by(7) {
             let w = [w0, w0.rotate_left(11) ^ 0x5555_5555, !w0, w0.wrapping_mul(0x9e37_79b9)];
-            let g = gaussian3_from_words(w);
             let r1 = (-2.0 * open_unit(w[0]).ln()).sqrt();
             let r2 = (-2.0 * open_unit(w[2]).ln()).sqrt();
             let t1 = documented_angle(w[1]);
-            let t2 = PI * (open_unit(w[3]) - 0.5);
-            let reference = [r1 * t1.cos(), r1 * t1.sin(), r2 * t2.sin()];
-            for i in 0..3 {
-                worst = worst.max((g[i] - reference[i]).abs());
-            }
-            // The dense layout's two full pairs.
             let g4 = gaussian4_from_words(w, 1.0);
             let t3 = documented_angle(w[3]);
             let reference = [r1 * t1.cos(), r1 * t1.sin(), r2 * t3.cos(), r2 * t3.sin()];

@@ -97,15 +97,6 @@ cos_c, e = remez(at_zero_or(-mp.mpf(1) / 2, cosine_series), 0, z_q, 4)
 print(f"// (cos x - 1)/x^2 on |x| <= pi/4: max error {float(e):.3g}")
 show("COS_C", cos_c)
 
-# sin x = x + x z S(z) for |x| < pi/2, with the constant lowered by 1.5 times the maximum
-# error so that S never exceeds the exact series: then |sin x| <= 1 holds with a margin of
-# about 1.6e-13 at pi/2, far above the rounding of the evaluation.
-z_h = (mp.pi / 2) ** 2
-half_s, e = remez(at_zero_or(-mp.mpf(1) / 6, sine_series), 0, z_h, 5)
-half_s[0] -= mp.mpf(1.5) * e
-print(f"// (sin x - x)/x^3 on |x| <= pi/2: max error {float(e):.3g}, shifted down by 1.5 times that")
-show("SIN_HALF_C", half_s)
-
 # atan u = u + u z P(z) for |u| <= tan(pi/8) (crates/observe/src/atan2.rs).
 z_t = mp.tan(mp.pi / 8) ** 2
 atan_p, e = remez(at_zero_or(-mp.mpf(1) / 3, atan_series), 0, z_t, 9)

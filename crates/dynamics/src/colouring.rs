@@ -17,7 +17,7 @@
 //!
 //! Finally each colour is split by basis site, so that all sites of a class have the same
 //! bonds (the Monte Carlo kernel treats a block of them at once; see
-//! `Hamiltonian::energy_changes`). A subset of an independent set is independent, so the
+//! `Hamiltonian::energy_changes_from`). A subset of an independent set is independent, so the
 //! classes still form a proper colouring; where a colour holds one basis site only (any
 //! one-site basis, the nearest-neighbour honeycomb) nothing changes.
 

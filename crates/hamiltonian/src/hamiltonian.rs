@@ -482,28 +482,6 @@ impl Hamiltonian {
         -dot(ds, h) + self.onsite_energy(i, new) - self.onsite_energy(i, old)
     }
 
-    /// Energy changes (meV) of one-spin moves of many sites at once: `out[k]` is
-    /// [`Hamiltonian::energy_change`]`(spins, sites[k], new[k])` bit for bit, each site
-    /// evaluated against `spins` as given (for sites that share no bond, such as a Monte
-    /// Carlo colour class, the changes add up). Vectorised over the sites in blocks of 64,
-    /// fastest when the sites of a block share one basis site (see `hamiltonian/trials.rs`).
-    /// Panics if the three lengths differ or a site is outside `spins`.
-    #[inline(always)]
-    pub fn energy_changes(&self, spins: &[Vec3], sites: &[u32], new: &[Vec3], out: &mut [f64]) {
-        assert!(sites.len() == new.len() && sites.len() == out.len(), "one trial and one output per site");
-        if self.len() > u32::MAX as usize {
-            // Beyond the block kernel's 32-bit cell arithmetic: one site at a time.
-            for ((&i, &t), o) in sites.iter().zip(new).zip(out.iter_mut()) {
-                *o = self.energy_change(spins, i as usize, t);
-            }
-            return;
-        }
-        let lanes = trials::LANES;
-        for ((s, t), o) in sites.chunks(lanes).zip(new.chunks(lanes)).zip(out.chunks_mut(lanes)) {
-            self.energy_changes_block(spins, s, t, o);
-        }
-    }
-
     /// Energy by term, meV (totals, every pair once). Deterministic for any thread count.
     pub fn energy(&self, spins: &[Vec3]) -> EnergyTerms {
         let partial: Vec<EnergyTerms> = spins

@@ -56,9 +56,9 @@
 //! `trial.rs` for the layout and precision of the words). So a sweep gives bitwise the
 //! same spins for any thread count.
 //!
-//! Until this layout (one draw per trial), a sweep drew `gaussian3(2n, i)` and
-//! `uniform4(2n + 1, i)` (a three-Gaussian `g`, two Philox blocks per site); the same seed
-//! therefore gives a different, equally valid chain than before.
+//! Before this layout (one draw per trial), a sweep drew two Philox blocks per site (three
+//! Gaussians for `g` and four uniforms); the same seed therefore gives a different, equally
+//! valid chain than runs of earlier versions.
 //!
 //! Each class is processed in blocks of at most [`BLOCK`] sites: the trials of a block
 //! are decided in parallel into a buffer, then written back in parallel over chunks of the

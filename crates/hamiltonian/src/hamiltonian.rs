@@ -348,9 +348,11 @@ impl Hamiltonian {
     ///
     /// For each basis site the row's bonds are resolved once to their neighbour rows, then
     /// applied in packs of up to [`PACK`] consecutive bonds of one kind (matrix or
-    /// isotropic): one pass over the row per pack, whose loop body adds the pack's bonds to
-    /// the site's sum in list order, so that it vectorises and reads and writes `out` once
-    /// per pack rather than once per bond. Cells whose neighbour across a bond of the pack
+    /// isotropic; a matrix pack whose bonds all have `M_xy = M_yx = 0` skips those two
+    /// products, see [`IN_PLANE`]): one pass over the row per pack, whose loop body adds
+    /// the pack's bonds to the site's sum in list order, so that it vectorises and reads
+    /// and writes `out` once per pack rather than once per bond. Cells whose neighbour
+    /// across a bond of the pack
     /// wraps around the row's ends go one by one. Every site adds its bonds in list order
     /// either way, so the result is bitwise that of a plain per-site loop.
     #[inline(always)]

@@ -147,8 +147,8 @@ impl Hamiltonian {
     /// [`Hamiltonian::energy_change`]`(spins, sites[k], new[k])` bit for bit, each site
     /// evaluated against `spins` as given (for sites that share no bond, such as a Monte
     /// Carlo colour class, the changes add up), with `old[k] = spins[sites[k]]` handed in by
-    /// a caller that has read them already. Vectorised over the sites in blocks of
-    /// [`LANES`], fastest when the sites of a block share one basis site. Panics if the four
+    /// a caller that has read them already. Vectorised over the sites in blocks of 64,
+    /// fastest when the sites of a block share one basis site. Panics if the four
     /// lengths differ or a site is outside `spins`; `old` is not checked against `spins`.
     #[inline(always)]
     pub fn energy_changes_from(

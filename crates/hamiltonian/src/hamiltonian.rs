@@ -12,6 +12,7 @@ use crate::constants::MU_B;
 use crate::dmi::Dmi;
 use crate::energy::EnergyTerms;
 use crate::exchange::Exchange;
+use crate::rows::{FlatRows, SpinRows};
 use crate::species::Species;
 use crate::term::Term;
 use crate::zeeman::Zeeman;
@@ -319,8 +320,13 @@ impl Hamiltonian {
         field_range_kernel(self, spins, start, out);
     }
 
+    /// [`Hamiltonian::field_range`] reading the spins from `rows`, compiled for the
+    /// instruction set of its caller (not dispatched): for integrators that keep only some
+    /// rows, from within their own [`spindrift_isa::multiversion!`] kernels. The sites
+    /// `start .. start + out.len()` must lie in rows that `rows` holds, as must the rows
+    /// their bonds reach.
     #[inline(always)]
-    fn field_range_portable(&self, spins: &[Vec3], start: usize, out: &mut [Vec3]) {
+    pub fn field_range_in<R: SpinRows>(&self, rows: &R, start: usize, out: &mut [Vec3]) {
         let nb = self.cell.basis_len();
         let [n1, n2, _] = self.cell.cells();
         let row_len = n1 * nb;
@@ -330,7 +336,13 @@ impl Hamiltonian {
             let r = lo / row_len;
             let row_start = r * row_len;
             let hi = (row_start + row_len).min(end);
-            self.field_row::<true>(spins, [r % n2, r / n2], row_start, lo, &mut out[lo - start..hi - start]);
+            self.field_row::<true, R>(
+                rows,
+                [r % n2, r / n2],
+                row_start,
+                lo,
+                &mut out[lo - start..hi - start],
+            );
             lo = hi;
         }
         if let Some(occ) = self.cell.occupation() {
@@ -356,9 +368,9 @@ impl Hamiltonian {
     /// wraps around the row's ends go one by one. Every site adds its bonds in list order
     /// either way, so the result is bitwise that of a plain per-site loop.
     #[inline(always)]
-    fn field_row<const ONSITE: bool>(
+    fn field_row<const ONSITE: bool, R: SpinRows>(
         &self,
-        spins: &[Vec3],
+        rows: &R,
         c23: [usize; 2],
         row_start: usize,
         lo: usize,
@@ -383,11 +395,10 @@ impl Hamiltonian {
             // The first pack writes the sums; later ones add to them.
             let mut fresh = true;
             let row = RowPass {
-                spins,
+                own: &rows.row(c23[0], c23[1])[b..],
                 nb: nb as i64,
                 // out[c1 * nb + shift] is the site of cell c1.
                 shift: row_start as i64 + b as i64 - lo as i64,
-                lo,
                 first,
                 last,
                 n1,
@@ -412,7 +423,7 @@ impl Hamiltonian {
                     continue;
                 }
                 let next = RowBond {
-                    base: ((t[1] * cells[1] + t[0]) * cells[0] * nb + bond.to) as i64,
+                    row: &rows.row(t[0], t[1])[bond.to..],
                     o1: bond.offset[0] as i64,
                     m: bond.m,
                     iso: bond.iso,
@@ -526,7 +537,7 @@ impl Hamiltonian {
             let row_start = r * row_len;
             let hi = (row_start + row_len).min(end).min(lo + BLOCK);
             let h = &mut h[..hi - lo];
-            self.field_row::<false>(spins, [r % n2, r / n2], row_start, lo, h);
+            self.field_row::<false, _>(&FlatRows::new(self, spins), [r % n2, r / n2], row_start, lo, h);
             let mut b = lo % nb;
             for (k, hk) in h.iter().enumerate() {
                 let s = spins[lo + k];
@@ -599,7 +610,7 @@ impl Hamiltonian {
 spindrift_isa::multiversion! {
     /// [`Hamiltonian::field_range`], compiled per instruction-set level.
     fn field_range_kernel(h: &Hamiltonian, spins: &[Vec3], start: usize, out: &mut [Vec3]) {
-        h.field_range_portable(spins, start, out)
+        h.field_range_in(&FlatRows::new(h, spins), start, out)
     }
 }
 
@@ -613,11 +624,12 @@ spindrift_isa::multiversion! {
 /// Most bonds applied in one pass over a row (see `Hamiltonian::field_row`).
 const PACK: usize = 4;
 
-/// One bond resolved for a row: the neighbour of cell `c1` is site `base + (c1 + o1) nb`
-/// (after wrapping `c1 + o1` at the row's ends).
+/// One bond resolved for a row: the neighbour of cell `c1` is `row[(c1 + o1) nb]` (after
+/// wrapping `c1 + o1` at the row's ends).
 #[derive(Debug, Clone, Copy, Default)]
-struct RowBond {
-    base: i64,
+struct RowBond<'a> {
+    /// The neighbour row from the bond's target basis site on.
+    row: &'a [Vec3],
     o1: i64,
     /// `M_ij / (mu_i muB)`, T per unit spin.
     m: [Vec3; 3],
@@ -693,12 +705,11 @@ fn flat_onsite(k_field: &[f64], axis: &[Vec3], field: Vec3) -> Vec<Option<FlatOn
 /// The cells `first .. last` of one basis site in a row, and how to reach their
 /// neighbours.
 struct RowPass<'a> {
-    spins: &'a [Vec3],
+    /// The evaluated row's spins from its basis site on: cell `c1`'s is `own[c1 nb]`.
+    own: &'a [Vec3],
     nb: i64,
     /// `out[c1 nb + shift]` is the site of cell `c1`.
     shift: i64,
-    /// Site index of `out[0]`.
-    lo: usize,
     first: i64,
     last: i64,
     /// Cells along the row.
@@ -766,13 +777,13 @@ impl RowPass<'_> {
         if inner_lo < inner_hi {
             let len = (inner_hi - inner_lo) as usize;
             let k0 = (inner_lo * self.nb + self.shift) as usize;
-            let j0 = pack.map(|r| (r.base + (inner_lo + r.o1) * self.nb) as usize);
+            let j0 = pack.map(|r| ((inner_lo + r.o1) * self.nb) as usize);
             let m = pack.map(|r| r.m);
             let j = pack.map(|r| r.iso.unwrap_or(0.0));
             if self.nb == 1 {
                 // Plain slices, which the compiler vectorises.
                 let out = &mut out[k0..k0 + len];
-                let s: [&[Vec3]; K] = std::array::from_fn(|p| &self.spins[j0[p]..j0[p] + len]);
+                let s: [&[Vec3]; K] = std::array::from_fn(|p| &pack[p].row[j0[p]..j0[p] + len]);
                 for (k, o) in out.iter_mut().enumerate() {
                     let mut h = if FRESH { [0.0; 3] } else { *o };
                     for p in 0..K {
@@ -786,7 +797,7 @@ impl RowPass<'_> {
                     let o = &mut out[k0 + k * nb];
                     let mut h = if FRESH { [0.0; 3] } else { *o };
                     for p in 0..K {
-                        add_bond::<KIND>(&mut h, &self.spins[j0[p] + k * nb], &m[p], j[p]);
+                        add_bond::<KIND>(&mut h, &pack[p].row[j0[p] + k * nb], &m[p], j[p]);
                     }
                     *o = h;
                 }
@@ -810,12 +821,7 @@ impl RowPass<'_> {
         let mut h = if FRESH { [0.0; 3] } else { out[k] };
         for r in pack {
             if let Some(t1) = wrap(c1 + r.o1, self.n1, self.periodic) {
-                add_bond::<KIND>(
-                    &mut h,
-                    &self.spins[(r.base + t1 * self.nb) as usize],
-                    &r.m,
-                    r.iso.unwrap_or(0.0),
-                );
+                add_bond::<KIND>(&mut h, &r.row[(t1 * self.nb) as usize], &r.m, r.iso.unwrap_or(0.0));
             }
         }
         out[k] = h;
@@ -827,7 +833,8 @@ impl RowPass<'_> {
         let k0 = (self.first * self.nb + self.shift) as usize;
         let len = (self.last - self.first) as usize;
         if self.nb == 1 {
-            let spins = &self.spins[self.lo + k0..self.lo + k0 + len];
+            let first = self.first as usize;
+            let spins = &self.own[first..first + len];
             let out = &mut out[k0..k0 + len];
             if let Some(flat) = flat {
                 // The row as flat numbers against the constants repeated to the same period:
@@ -846,8 +853,7 @@ impl RowPass<'_> {
         } else {
             let nb = self.nb as usize;
             for k in 0..len {
-                let i = k0 + k * nb;
-                onsite.add(&mut out[i], &self.spins[self.lo + i]);
+                onsite.add(&mut out[k0 + k * nb], &self.own[(self.first as usize + k) * nb]);
             }
         }
     }

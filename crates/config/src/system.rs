@@ -8,11 +8,18 @@ use crate::units::{lookup_unit, Dimension};
 use spindrift_hamiltonian::{add_shell, DmiKind, Hamiltonian, ShellCoupling, ShellRef, Species};
 use spindrift_lattice::{preset, BasisSite, BondList, Coupling, Crystal, LatticeError, Supercell, Vec3};
 
-/// Bytes of memory a spin costs in an `evolve` run: the spins (24) and the Heun
-/// predictor and noise buffers (48), plus a little for observers' scratch; the lattice
-/// header is written and dropped before the run. Measured as peak RSS with
-/// `/usr/bin/time -v` by `scripts/bench` (10^7 spins), which `check` should match to 10%.
+/// Bytes of memory a spin costs at most in an `evolve` run: the spins (24) and the
+/// Heun predictor and noise buffers (48), plus a little for observers' scratch; the
+/// lattice header is written and dropped before the run. An upper bound, for refusing
+/// systems that cannot fit before building them: the fused step of large systems holds
+/// 24 bytes less (see `memory_estimate_bytes` in `validate`).
 pub const BYTES_PER_SPIN: u64 = 76;
+
+/// Bytes per spin of an `evolve` run besides the integrator's scratch
+/// (`Heun::scratch_bytes`): the spins (24) and observers' scratch (4). Peak RSS is
+/// measured with `/usr/bin/time -v` by `scripts/bench` (10^7 spins); `check`'s estimate
+/// should match it to 10%.
+pub const BYTES_PER_SPIN_HELD: u64 = 28;
 
 /// One coupling entry and what it found, for `check`.
 #[derive(Debug, Clone, PartialEq)]

@@ -4,6 +4,7 @@ use crate::error::ConfigError;
 use crate::load::Loaded;
 use crate::protocol::{self, SystemDefaults};
 use crate::system::{self, CouplingReport};
+use spindrift_dynamics::Heun;
 use spindrift_engine::Protocol;
 use spindrift_hamiltonian::timestep::recommended_dt;
 use spindrift_hamiltonian::Hamiltonian;
@@ -44,7 +45,13 @@ pub fn validate(loaded: &Loaded, memory_limit: Option<u64>) -> Result<Validated,
     let mut warnings = sys.warnings;
     let protocol = protocol::build(loaded, &SystemDefaults { dt, field: h.field() }, &mut warnings)?;
     let bonds: u64 = (0..h.cell().basis_len()).map(|b| h.bonds().from_basis(b).len() as u64).sum();
-    let memory_estimate_bytes = h.len() as u64 * system::BYTES_PER_SPIN + bonds * 160 + 4096;
+    // The rings of the fused step (half a MiB per thread) for as many threads as the
+    // machine runs by default: `--threads` is not known here, and the rings are small.
+    let threads = std::thread::available_parallelism().map_or(1, |n| n.get());
+    let memory_estimate_bytes = h.len() as u64 * system::BYTES_PER_SPIN_HELD
+        + Heun::scratch_bytes(&h, threads) as u64
+        + bonds * 160
+        + 4096;
     Ok(Validated {
         title: loaded.raw.title.clone().unwrap_or_default(),
         seed: loaded.raw.seed.unwrap_or(0),

@@ -24,10 +24,13 @@
 //! * then `S_i'` is renormalised to unit length.
 //!
 //! The second form of the corrector needs no copy of `f(S)`: the predictor carries it.
-//! The step is two passes over the sites, run in parallel with rayon: over chunks of
-//! [`CHUNK`] sites, or, for systems larger than the caches, over one share of the planes
-//! per thread walked in bands of rows (see `Order`). Every site's result depends only on
-//! its inputs, never on the order or the scheduling of the pieces, and
+//! For systems that fit the caches the step is two passes over the sites, run in parallel
+//! with rayon over chunks of [`CHUNK`] sites. Larger systems (more than 2^19 sites) take
+//! one fused pass: each thread walks its range of rows in bands, computing the predictor
+//! just ahead of the band into a small ring of rows and correcting the band from it (see
+//! the `fused` module), so that only the spins travel to and from memory. Every site's
+//! result depends only on its inputs, never on the order or the scheduling of the pieces,
+//! and
 //! the noise of step `n` at site `i` is `NoiseStream::new(seed, 0).gaussian3_dense(n, i)`
 //! scaled by the site's standard deviation (in the generator, on the Box-Muller radii, when
 //! every site has the same one), so the result is bitwise the same for any thread count,
@@ -37,8 +40,12 @@
 //!
 //! Two arrays of `N` 3-vectors (48 bytes per site): the predictor, and the scaled noise,
 //! which the corrector overwrites with the pre-step spins as it consumes it (see
-//! [`Heun::step`] on errors). The field at the predictor lives only in a block of
-//! `BLOCK` (256) sites on the stack. Nothing is allocated in [`Heun::step`].
+//! [`Heun::step`] on errors). The fused step of a large system holds instead a second
+//! spin array (24 bytes per site), which the step writes and then swaps with the caller's,
+//! and one ring of rows per thread (about half a MiB). The field at the predictor lives
+//! only in a block of `BLOCK` (256) sites on the stack. [`Heun::step`] allocates nothing
+//! in proportion to the system: the fused step makes one list of slice handles (threads
+//! times planes) per step.
 
 use crate::error::{check_len, first_bad, StepError};
 use rayon::prelude::*;
@@ -46,6 +53,8 @@ use spindrift_hamiltonian::constants::{GAMMA_PER_PS, K_B};
 use spindrift_hamiltonian::{Hamiltonian, CHUNK};
 use spindrift_lattice::{cross, dot, Vec3};
 use spindrift_noise::{NoiseStream, STREAM_LLG_THERMAL};
+
+mod fused;
 
 /// Parameters of one Heun step. Both may change from step to step (a temperature ramp
 /// passes a new temperature; a field ramp calls [`Hamiltonian::set_field`] between steps).
@@ -83,6 +92,27 @@ fn llg_rhs(s: Vec3, b: Vec3, gamma_ll: f64, alpha: f64) -> Vec3 {
     [-gamma_ll * (t[0] + alpha * d[0]), -gamma_ll * (t[1] + alpha * d[1]), -gamma_ll * (t[2] + alpha * d[2])]
 }
 
+/// Heun's corrector for one site: `(S + P + dt f(P, B)) / 2` renormalised, with `B` the
+/// field at the predictor (thermal part included). A result that is not finite or has
+/// collapsed to zero is reported as not good, and the old spin is returned in its place.
+#[inline(always)]
+fn corrected(c: SiteConst, s: Vec3, p: Vec3, b: Vec3, dt: f64) -> (Vec3, bool) {
+    let f = llg_rhs(p, b, c.gamma_ll, c.alpha);
+    let v =
+        [0.5 * (s[0] + p[0] + dt * f[0]), 0.5 * (s[1] + p[1] + dt * f[1]), 0.5 * (s[2] + p[2] + dt * f[2])];
+    let n2 = dot(v, v);
+    // One comparison catches NaN, infinity and a collapsed spin alike.
+    let good = n2.is_finite() && n2 > 0.0;
+    let inv = 1.0 / n2.sqrt();
+    (if good { [v[0] * inv, v[1] * inv, v[2] * inv] } else { s }, good)
+}
+
+/// The first site of a block starting at site `first` whose corrector failed (`ok` false),
+/// other than a vacant site: those hold zero spins, and failing is what keeps them zero.
+fn first_failed(ok: &[bool], occupation: Option<&[bool]>, first: usize) -> Option<usize> {
+    (0..ok.len()).find(|&k| !ok[k] && occupation.is_none_or(|o| o[first + k])).map(|k| first + k)
+}
+
 /// Sites per block within a chunk: the predictor's field and noise, and the corrector's
 /// field buffer on the stack (6 KiB), stay in L1 between being made and being used.
 const BLOCK: usize = 256;
@@ -93,12 +123,27 @@ pub struct Heun {
     stream: NoiseStream,
     damping: Vec<f64>,
     consts: Vec<SiteConst>,
-    predictor: Vec<Vec3>,
-    /// The scaled thermal field of the step; the pre-step spins after the corrector.
-    noise: Vec<Vec3>,
+    buffers: Buffers,
+    /// Sites.
+    len: usize,
     /// See [`LARGE`] and [`BAND_BYTES`].
     large: usize,
     band_bytes: usize,
+}
+
+/// The scratch arrays of one of the two ways a step goes.
+#[derive(Debug, Clone)]
+enum Buffers {
+    /// Two passes over the whole system (see [`Order`]).
+    TwoPass {
+        predictor: Vec<Vec3>,
+        /// The scaled thermal field of the step; the pre-step spins after the corrector.
+        noise: Vec<Vec3>,
+    },
+    /// One fused pass over bands of rows for systems of more than [`LARGE`] sites (see
+    /// the `fused` module): the new spins go to `next`, which is then swapped with the
+    /// caller's array; each task keeps its predictor in its own ring of rows.
+    Fused { bands: fused::Bands, next: Vec<Vec3>, rings: Vec<fused::Ring> },
 }
 
 impl Heun {
@@ -106,31 +151,57 @@ impl Heun {
     /// stream 0 of `seed`. Every later call must pass a Hamiltonian with the same
     /// supercell and species (the applied field may change).
     pub fn new(h: &Hamiltonian, seed: u64) -> Self {
+        Self::with_order(h, seed, LARGE, BAND_BYTES, true)
+    }
+
+    /// The integrator with `large` and `band_bytes` in place of [`LARGE`] and
+    /// [`BAND_BYTES`] (tests reach the orders of large systems with small ones this way),
+    /// fusing the passes of large systems when `fuse`.
+    fn with_order(h: &Hamiltonian, seed: u64, large: usize, band_bytes: usize, fuse: bool) -> Self {
         let n = h.len();
         let damping = h.basis_damping();
+        let buffers = match fused_bands(h, large, band_bytes, fuse) {
+            Some(bands) => {
+                let rings = (0..bands.tasks(rayon::current_num_threads()))
+                    .map(|_| fused::Ring::new(bands.ring_len()))
+                    .collect();
+                Buffers::Fused { bands, next: vec![[0.0; 3]; n], rings }
+            }
+            None => Buffers::TwoPass { predictor: vec![[0.0; 3]; n], noise: vec![[0.0; 3]; n] },
+        };
         Self {
             stream: NoiseStream::new(seed, STREAM_LLG_THERMAL),
             consts: vec![SiteConst::default(); BLOCK + damping.len()],
             damping,
-            predictor: vec![[0.0; 3]; n],
-            noise: vec![[0.0; 3]; n],
-            large: LARGE,
-            band_bytes: BAND_BYTES,
+            buffers,
+            len: n,
+            large,
+            band_bytes,
         }
     }
 
-    /// The same integrator, walking planes in bands of `band_bytes` from `large` sites on
-    /// instead of [`LARGE`] and [`BAND_BYTES`], so that tests reach that order with small
-    /// systems.
-    #[cfg(test)]
-    fn with_band_order(mut self, large: usize, band_bytes: usize) -> Self {
-        (self.large, self.band_bytes) = (large, band_bytes);
-        self
+    /// Bytes of scratch memory that [`Heun::new`] allocates for `h` when called in a
+    /// thread pool of `threads` threads: the predictor and noise arrays (48 bytes per
+    /// site), or for the fused step of a large system the second spin array (24 bytes per
+    /// site) and one ring of rows per thread (about half a MiB each). Touches no thread
+    /// pool, so it can be called before the program sets up its own.
+    pub fn scratch_bytes(h: &Hamiltonian, threads: usize) -> usize {
+        let v = std::mem::size_of::<Vec3>();
+        match fused_bands(h, LARGE, BAND_BYTES, true) {
+            Some(bands) => h.len() * v + bands.tasks(threads) * bands.ring_len() * 2 * v,
+            None => h.len() * 2 * v,
+        }
     }
 
-    /// Bytes of scratch memory per site (the two buffers).
-    pub fn bytes_per_site(&self) -> usize {
-        2 * std::mem::size_of::<Vec3>()
+    /// Bytes of scratch memory this integrator holds.
+    pub fn bytes(&self) -> usize {
+        let v = std::mem::size_of::<Vec3>();
+        match &self.buffers {
+            Buffers::TwoPass { predictor, noise } => (predictor.len() + noise.len()) * v,
+            Buffers::Fused { next, rings, .. } => {
+                (next.len() + rings.iter().map(|r| 2 * r.len()).sum::<usize>()) * v
+            }
+        }
     }
 
     /// Advances `spins` by one step `params.dt` at `params.temperature`, under the
@@ -138,19 +209,23 @@ impl Heun {
     /// documentation): pass `0, 1, 2, ...` over a run, and the same index again when a
     /// run resumes.
     ///
+    /// The fused step of a large system writes the new spins to a second array and swaps
+    /// it with `spins` (the vector's buffer changes; its length does not).
+    ///
     /// On [`StepError::NonFinite`] the spins are restored to their values before the call
-    /// (the corrector keeps each pre-step spin in the noise buffer as it overwrites it), so
-    /// the caller keeps the last good state without copying it every step. Other errors are
-    /// returned before anything is touched. Vacant sites stay `[0, 0, 0]`.
+    /// (the corrector keeps each pre-step spin in the noise buffer as it overwrites it, or
+    /// the fused step leaves them untouched), so the caller keeps the last good state
+    /// without copying it every step. Other errors are returned before anything is
+    /// touched. Vacant sites stay `[0, 0, 0]`.
     pub fn step(
         &mut self,
         h: &Hamiltonian,
-        spins: &mut [Vec3],
+        spins: &mut Vec<Vec3>,
         params: &HeunParams,
         step_index: u64,
     ) -> Result<(), StepError> {
-        check_len(self.predictor.len(), spins.len())?;
-        check_len(self.predictor.len(), h.len())?;
+        check_len(self.len, spins.len())?;
+        check_len(self.len, h.len())?;
         let dt = params.dt;
         if !(dt.is_finite() && dt > 0.0) {
             return Err(StepError::BadParameter { name: "dt", value: dt, expected: "finite and > 0 ps" });
@@ -192,6 +267,17 @@ impl Heun {
             step_index,
         };
 
+        let (predictor, noise) = match &mut self.buffers {
+            Buffers::TwoPass { predictor, noise } => (predictor, noise),
+            Buffers::Fused { bands, next, rings } => {
+                let bad = fused::step(&ctx, bands, spins, next, rings);
+                if let Some(site) = bad {
+                    return Err(StepError::NonFinite { site, step: step_index });
+                }
+                std::mem::swap(spins, next);
+                return Ok(());
+            }
+        };
         let order = Order::new(h, self.large, self.band_bytes);
         let task = order.task_len(spins.len());
 
@@ -200,14 +286,11 @@ impl Heun {
             let spins: &[Vec3] = spins;
             if spins.len() <= task {
                 order.visit(0, spins.len(), |a, b| {
-                    predictor_chunk(&ctx, spins, a, &mut self.predictor[a..b], &mut self.noise[a..b])
+                    predictor_chunk(&ctx, spins, a, &mut predictor[a..b], &mut noise[a..b])
                 });
             } else {
-                self.predictor
-                    .par_chunks_mut(task)
-                    .zip(self.noise.par_chunks_mut(task))
-                    .enumerate()
-                    .for_each(|(k, (pred, noise))| {
+                predictor.par_chunks_mut(task).zip(noise.par_chunks_mut(task)).enumerate().for_each(
+                    |(k, (pred, noise))| {
                         let start = k * task;
                         order.visit(start, pred.len(), |a, b| {
                             predictor_chunk(
@@ -218,12 +301,13 @@ impl Heun {
                                 &mut noise[a - start..b - start],
                             )
                         })
-                    });
+                    },
+                );
             }
         }
 
         // Pass 2: field at P, corrector, renormalisation.
-        let predictor = &self.predictor[..];
+        let predictor = &predictor[..];
         let correct = |start: usize, out: &mut [Vec3], noise: &mut [Vec3]| {
             let mut bad = None;
             order.visit(start, out.len(), |a, b| {
@@ -239,22 +323,32 @@ impl Heun {
             bad
         };
         let bad = if spins.len() <= task {
-            correct(0, spins, &mut self.noise)
+            correct(0, spins, noise)
         } else {
             spins
                 .par_chunks_mut(task)
-                .zip(self.noise.par_chunks_mut(task))
+                .zip(noise.par_chunks_mut(task))
                 .enumerate()
                 .map(|(k, (out, noise))| correct(k * task, out, noise))
                 .reduce(|| None, first_bad)
         };
         if let Some(site) = bad {
-            spins.par_chunks_mut(CHUNK).zip(self.noise.par_chunks(CHUNK)).for_each(|(s, old)| {
+            spins.par_chunks_mut(CHUNK).zip(noise.par_chunks(CHUNK)).for_each(|(s, old)| {
                 s.copy_from_slice(old);
             });
             return Err(StepError::NonFinite { site, step: step_index });
         }
         Ok(())
+    }
+}
+
+/// The geometry of the fused step for `h`, when it takes one: with `fuse`, above `large`
+/// sites, and when the planes have rows enough (see [`fused::Bands::new`]).
+fn fused_bands(h: &Hamiltonian, large: usize, band_bytes: usize, fuse: bool) -> Option<fused::Bands> {
+    if fuse && h.len() > large {
+        fused::Bands::new(h, FUSED_BAND_BYTES.min(band_bytes))
+    } else {
+        None
     }
 }
 
@@ -284,6 +378,9 @@ struct Order {
 /// Sites above which a step walks its planes in bands: 12.6 MB per array, so that the
 /// spins, the predictor and the noise together (38 MB) outgrow a typical L3 cache.
 const LARGE: usize = 1 << 19;
+
+/// Bytes of predictor and noise per band of the fused step ([`Buffers::Fused`]).
+const FUSED_BAND_BYTES: usize = 512 * 1024;
 
 /// Bytes of one band of rows over three planes, for each array read with neighbours: what
 /// measured best on a 1000 x 1000 x 10 system with 1 MiB of L2 per core (8 rows of 1000
@@ -436,34 +533,15 @@ spindrift_isa::multiversion! {
             // found afterwards from `ok`.
             let mut all_ok = true;
             for k in 0..len {
-                let c = consts[k];
                 let s = out[k];
-                let p = predictor[k];
-                let f = llg_rhs(p, fields[k], c.gamma_ll, c.alpha);
-                let v = [
-                    0.5 * (s[0] + p[0] + dt * f[0]),
-                    0.5 * (s[1] + p[1] + dt * f[1]),
-                    0.5 * (s[2] + p[2] + dt * f[2]),
-                ];
+                let (v, good) = corrected(consts[k], s, predictor[k], fields[k], dt);
                 noise[k] = s;
-                let n2 = dot(v, v);
-                // One comparison catches NaN, infinity and a collapsed spin alike.
-                let good = n2.is_finite() && n2 > 0.0;
-                let inv = 1.0 / n2.sqrt();
-                out[k] = if good { [v[0] * inv, v[1] * inv, v[2] * inv] } else { s };
+                out[k] = v;
                 ok[k] = good;
                 all_ok &= good;
             }
             if !all_ok {
-                // Vacant sites (zero spin, zero field) are the expected failures: they
-                // keep their zero spin. Any other is the first bad site of this block.
-                for k in 0..len {
-                    let vacant = occupation.is_some_and(|o| !o[first + k]);
-                    if !ok[k] && !vacant {
-                        bad = first_bad(bad, Some(first + k));
-                        break;
-                    }
-                }
+                bad = first_bad(bad, first_failed(ok, occupation, first));
             }
         }
         bad
@@ -476,20 +554,28 @@ mod tests {
     use spindrift_hamiltonian::{add_shell, DmiKind, ShellCoupling, ShellRef, Species};
     use spindrift_lattice::{preset, BondList, Supercell};
 
-    /// Simple cubic with exchange and interfacial DMI on the first shell, 8 rows of 12
-    /// cells per plane, 5 planes (open along a3).
-    fn system() -> Hamiltonian {
-        let cell =
-            Supercell::new(preset("simple-cubic", 3.0, None).unwrap(), [12, 8, 5], [true, true, false], 0)
-                .unwrap();
+    /// Simple cubic with exchange on the first `shells` shells and interfacial DMI on the
+    /// first, 8 rows of 12 cells per plane, 5 planes (open along a3), periodic along a2
+    /// when `periodic_y`, each site occupied with probability `occupancy`.
+    fn system_with(shells: usize, periodic_y: bool, occupancy: f64) -> Hamiltonian {
+        system_of([12, 8, 5], shells, periodic_y, occupancy)
+    }
+
+    /// [`system_with`] of other dimensions.
+    fn system_of(cells: [usize; 3], shells: usize, periodic_y: bool, occupancy: f64) -> Hamiltonian {
+        let mut crystal = preset("simple-cubic", 3.0, None).unwrap();
+        crystal.basis[0].occupancy = occupancy;
+        let cell = Supercell::new(crystal, cells, [true, periodic_y, false], 4).unwrap();
         let mut bonds = BondList::new(1);
-        let spec = ShellCoupling {
-            shell: ShellRef::Index(1),
-            j: 5.0,
-            dmi: Some((1.0, DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] })),
-            pair: None,
-        };
-        add_shell(&cell, &mut bonds, &spec).unwrap();
+        for shell in 1..=shells {
+            let spec = ShellCoupling {
+                shell: ShellRef::Index(shell),
+                j: 5.0 / shell as f64,
+                dmi: (shell == 1).then_some((1.0, DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] })),
+                pair: None,
+            };
+            add_shell(&cell, &mut bonds, &spec).unwrap();
+        }
         let species = vec![Species {
             name: "M".into(),
             moment: 2.0,
@@ -498,6 +584,10 @@ mod tests {
             axis: [0.0, 0.0, 1.0],
         }];
         Hamiltonian::new(cell, species, bonds, [0.0, 0.0, 1.0]).unwrap()
+    }
+
+    fn system() -> Hamiltonian {
+        system_with(1, true, 1.0)
     }
 
     // Every site once, whatever the task's range and the band height.
@@ -519,28 +609,50 @@ mod tests {
         }
     }
 
-    // The order of the walk changes no bit: steps at 300 K in chunk order and in bands of
-    // one and of three rows, on one thread and on two.
+    // The order of the walk changes no bit: steps at 300 K in chunk order, in bands of one
+    // and of three rows, and fused over bands of one, three and six rows, on one, two and
+    // three threads; with one shell and periodic rows, and with four shells (bonds two rows
+    // apart), open rows and vacancies.
     #[test]
     fn band_order_gives_the_same_bits() {
-        let h = system();
-        let mut start = vec![[0.0; 3]; h.len()];
-        crate::initial::random(&h, &mut start, 3).unwrap();
-        let p = HeunParams { dt: 1e-3, temperature: 300.0 };
-        let run = |heun: Heun, threads: usize| {
-            let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
-            let (mut heun, mut s) = (heun, start.clone());
-            pool.install(|| (0..5).for_each(|n| heun.step(&h, &mut s, &p, n).unwrap()));
-            s
-        };
-        let reference = run(Heun::new(&h, 9), 1);
-        for threads in [1, 2] {
-            for band_bytes in [1, 3 * 12 * 24 * 3] {
-                let got = run(Heun::new(&h, 9).with_band_order(0, band_bytes), threads);
-                let same =
-                    reference.iter().zip(&got).all(|(a, b)| (0..3).all(|i| a[i].to_bits() == b[i].to_bits()));
-                assert!(same, "{threads} threads, bands of {band_bytes} bytes");
+        for h in [system(), system_with(4, false, 0.9)] {
+            assert!(matches!(Heun::with_order(&h, 9, 0, 1, true).buffers, Buffers::Fused { .. }));
+            let mut start = vec![[0.0; 3]; h.len()];
+            crate::initial::random(&h, &mut start, 3).unwrap();
+            let p = HeunParams { dt: 1e-3, temperature: 300.0 };
+            let run = |heun: Heun, threads: usize| {
+                let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+                let (mut heun, mut s) = (heun, start.clone());
+                pool.install(|| (0..5).for_each(|n| heun.step(&h, &mut s, &p, n).unwrap()));
+                s
+            };
+            let reference = run(Heun::new(&h, 9), 1);
+            let per_row = 5 * 12 * 48;
+            for threads in [1, 2, 3] {
+                for (fuse, band_bytes) in
+                    [(false, 1), (false, 3 * 12 * 24 * 3), (true, 1), (true, 3 * per_row), (true, 1 << 20)]
+                {
+                    let got = run(Heun::with_order(&h, 9, 0, band_bytes, fuse), threads);
+                    let same = reference
+                        .iter()
+                        .zip(&got)
+                        .all(|(a, b)| (0..3).all(|i| a[i].to_bits() == b[i].to_bits()));
+                    assert!(same, "{threads} threads, fused {fuse}, bands of {band_bytes} bytes");
+                }
             }
+        }
+    }
+
+    // What `check` is told a run will hold is what the integrator holds: two arrays for a
+    // small system, one spin array and the rings for a large one.
+    #[test]
+    fn scratch_bytes_are_what_new_allocates() {
+        for (cells, per_site) in [([12, 8, 5], 48), ([600, 600, 2], 24)] {
+            let h = system_of(cells, 1, true, 1.0);
+            let bytes = Heun::new(&h, 1).bytes();
+            assert_eq!(Heun::scratch_bytes(&h, rayon::current_num_threads()), bytes);
+            let rings = bytes - per_site * h.len();
+            assert!(rings < 2 * h.len(), "{cells:?}: {rings} bytes of rings");
         }
     }
 }

@@ -449,6 +449,18 @@ impl Hamiltonian {
         }
     }
 
+    /// How far the bonds reach across rows: the largest `|o2|` and `|o3|` of a bond's
+    /// cell offset `(o1, o2, o3)`, in cells along `a2` and `a3`.
+    pub fn row_reach(&self) -> [usize; 2] {
+        let mut reach = [0; 2];
+        for bond in self.fused.iter().flatten() {
+            for k in 0..2 {
+                reach[k] = reach[k].max(bond.offset[k + 1].unsigned_abs() as usize);
+            }
+        }
+        reach
+    }
+
     /// Effective field (T) of every site, in parallel chunks.
     pub fn fields(&self, spins: &[Vec3], out: &mut [Vec3]) {
         out.par_chunks_mut(CHUNK)

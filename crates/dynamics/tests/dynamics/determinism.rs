@@ -27,7 +27,7 @@ fn start(h: &Hamiltonian) -> Vec<Vec3> {
     s
 }
 
-fn heun_run(h: &Hamiltonian, from: u64, to: u64, s: &mut [Vec3]) {
+fn heun_run(h: &Hamiltonian, from: u64, to: u64, s: &mut Vec<Vec3>) {
     let mut heun = Heun::new(h, 2024);
     let p = HeunParams { dt: 1e-3, temperature: 300.0 };
     for n in from..to {

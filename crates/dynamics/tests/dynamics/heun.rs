@@ -8,7 +8,7 @@ use spindrift_hamiltonian::constants::{GAMMA_PER_PS, K_B, MU_B};
 use spindrift_hamiltonian::{Hamiltonian, Species};
 use spindrift_lattice::{preset, BondList, Supercell, Vec3};
 
-fn run(h: &Hamiltonian, spins: &mut [Vec3], dt: f64, steps: u64, temperature: f64, seed: u64) {
+fn run(h: &Hamiltonian, spins: &mut Vec<Vec3>, dt: f64, steps: u64, temperature: f64, seed: u64) {
     let mut heun = Heun::new(h, seed);
     let p = HeunParams { dt, temperature };
     for n in 0..steps {
@@ -249,7 +249,7 @@ fn non_finite_step_restores_the_spins() {
         Err(StepError::BadParameter { name: "dt", .. })
     ));
     assert!(matches!(
-        heun.step(&h, &mut s[1..], &HeunParams::default(), 0),
+        heun.step(&h, &mut s[1..].to_vec(), &HeunParams::default(), 0),
         Err(StepError::LengthMismatch { .. })
     ));
 }

@@ -558,15 +558,22 @@ mod tests {
     /// first, 8 rows of 12 cells per plane, 5 planes (open along a3), periodic along a2
     /// when `periodic_y`, each site occupied with probability `occupancy`.
     fn system_with(shells: usize, periodic_y: bool, occupancy: f64) -> Hamiltonian {
-        system_of([12, 8, 5], shells, periodic_y, occupancy)
+        system_of("simple-cubic", [12, 8, 5], shells, periodic_y, occupancy)
     }
 
-    /// [`system_with`] of other dimensions.
-    fn system_of(cells: [usize; 3], shells: usize, periodic_y: bool, occupancy: f64) -> Hamiltonian {
-        let mut crystal = preset("simple-cubic", 3.0, None).unwrap();
-        crystal.basis[0].occupancy = occupancy;
+    /// [`system_with`] of another lattice and other dimensions.
+    fn system_of(
+        lattice: &str,
+        cells: [usize; 3],
+        shells: usize,
+        periodic_y: bool,
+        occupancy: f64,
+    ) -> Hamiltonian {
+        let mut crystal = preset(lattice, 3.0, None).unwrap();
+        crystal.basis.iter_mut().for_each(|b| b.occupancy = occupancy);
+        let nb = crystal.basis.len();
         let cell = Supercell::new(crystal, cells, [true, periodic_y, false], 4).unwrap();
-        let mut bonds = BondList::new(1);
+        let mut bonds = BondList::new(nb);
         for shell in 1..=shells {
             let spec = ShellCoupling {
                 shell: ShellRef::Index(shell),
@@ -612,10 +619,10 @@ mod tests {
     // The order of the walk changes no bit: steps at 300 K in chunk order, in bands of one
     // and of three rows, and fused over bands of one, three and six rows, on one, two and
     // three threads; with one shell and periodic rows, and with four shells (bonds two rows
-    // apart), open rows and vacancies.
+    // apart), open rows and vacancies, and on a two-site basis (bcc, 2 shells).
     #[test]
     fn band_order_gives_the_same_bits() {
-        for h in [system(), system_with(4, false, 0.9)] {
+        for h in [system(), system_with(4, false, 0.9), system_of("bcc", [12, 8, 5], 2, true, 1.0)] {
             assert!(matches!(Heun::with_order(&h, 9, 0, 1, true).buffers, Buffers::Fused { .. }));
             let mut start = vec![[0.0; 3]; h.len()];
             crate::initial::random(&h, &mut start, 3).unwrap();
@@ -648,7 +655,7 @@ mod tests {
     #[test]
     fn scratch_bytes_are_what_new_allocates() {
         for (cells, per_site) in [([12, 8, 5], 48), ([600, 600, 2], 24)] {
-            let h = system_of(cells, 1, true, 1.0);
+            let h = system_of("simple-cubic", cells, 1, true, 1.0);
             let bytes = Heun::new(&h, 1).bytes();
             assert_eq!(Heun::scratch_bytes(&h, rayon::current_num_threads()), bytes);
             let rings = bytes - per_site * h.len();

@@ -63,6 +63,45 @@ fn steps(h: &Hamiltonian) -> Vec<Vec<Step>> {
         .collect()
 }
 
+/// The cells of a basis site whose every bond stays inside the box without wrapping:
+/// `lo[k] <= c[k] < hi[k]` on each axis. There the neighbour along bond `s` is site
+/// `i + delta[s]`, one addition instead of [`neighbour`]'s per-axis tests (most sites of a
+/// large box are inside; the result is the same site).
+struct Interior {
+    lo: [usize; 3],
+    hi: [usize; 3],
+    delta: Vec<isize>,
+}
+
+/// The [`Interior`] of each basis site, bonds in the order of [`steps`].
+fn interiors(h: &Hamiltonian) -> Vec<Interior> {
+    let cell = h.cell();
+    let (cells, nb) = (cell.cells(), cell.basis_len());
+    (0..nb)
+        .map(|b| {
+            let bonds = h.bonds().from_basis(b);
+            let mut lo = [0usize; 3];
+            let mut hi = cells;
+            for bond in bonds {
+                for k in 0..3 {
+                    let o = bond.offset[k] as isize;
+                    lo[k] = lo[k].max((-o).max(0) as usize);
+                    hi[k] = hi[k].min(cells[k].saturating_sub(o.max(0) as usize));
+                }
+            }
+            let delta = bonds
+                .iter()
+                .map(|bond| {
+                    let o = bond.offset.map(|x| x as isize);
+                    let cell_step = (o[2] * cells[1] as isize + o[1]) * cells[0] as isize + o[0];
+                    cell_step * nb as isize + bond.to as isize - b as isize
+                })
+                .collect();
+            Interior { lo, hi, delta }
+        })
+        .collect()
+}
+
 /// `Supercell::neighbour` of cell `c` along `step`, by comparisons instead of divisions.
 #[inline]
 fn neighbour(cells: [usize; 3], periodic: [bool; 3], nb: usize, c: [usize; 3], step: &Step) -> Option<usize> {
@@ -81,36 +120,74 @@ fn neighbour(cells: [usize; 3], periodic: [bool; 3], nb: usize, c: [usize; 3], s
     Some(((t[2] * cells[1] + t[1]) * cells[0] + t[0]) * nb + step.to)
 }
 
-/// Greedy colouring of the sites in `order` (all `NONE` in `colour` beforehand): each takes
-/// the smallest colour that no already coloured neighbour has. Returns the number of colours.
-fn greedy(
-    h: &Hamiltonian,
-    steps: &[Vec<Step>],
-    order: impl Iterator<Item = usize>,
-    colour: &mut [u16],
-    used: &mut Vec<bool>,
-) -> Result<usize, StepError> {
-    let cell = h.cell();
-    let (cells, periodic, nb) = (cell.cells(), cell.periodic(), cell.basis_len());
-    let mut count = 0usize;
-    for i in order {
-        let (c, b) = cell.decompose(i);
-        used.iter_mut().for_each(|u| *u = false);
-        for step in &steps[b] {
-            if let Some(j) = neighbour(cells, periodic, nb, c, step) {
-                // A bond that wraps onto the site itself (a short periodic box) is no
-                // constraint between two sites.
-                if j != i && colour[j] != NONE {
-                    used[colour[j] as usize] = true;
+/// The sites `0 .. n` in index order with their cell coordinates and basis site, counted
+/// up one by one rather than divided out (four integer divisions per site would cost more
+/// than the colouring itself).
+fn in_index_order(
+    cells: [usize; 3],
+    nb: usize,
+    n: usize,
+) -> impl Iterator<Item = (usize, [usize; 3], usize)> {
+    let (mut c, mut b) = ([0usize; 3], 0usize);
+    (0..n).map(move |i| {
+        let here = (i, c, b);
+        b += 1;
+        if b == nb {
+            b = 0;
+            c[0] += 1;
+            if c[0] == cells[0] {
+                c[0] = 0;
+                c[1] += 1;
+                if c[1] == cells[1] {
+                    c[1] = 0;
+                    c[2] += 1;
                 }
             }
         }
-        let free = used.iter().position(|u| !u).unwrap_or(used.len());
+        here
+    })
+}
+
+/// Greedy colouring of the sites in `order`, each given with its cell and basis site (all
+/// `NONE` in `colour` beforehand): each takes the smallest colour that no already coloured
+/// neighbour has. Returns the number of colours.
+fn greedy(
+    h: &Hamiltonian,
+    steps: &[Vec<Step>],
+    order: impl Iterator<Item = (usize, [usize; 3], usize)>,
+    colour: &mut [u16],
+    used: &mut Vec<usize>,
+) -> Result<usize, StepError> {
+    let cell = h.cell();
+    let (cells, periodic, nb) = (cell.cells(), cell.periodic(), cell.basis_len());
+    let interior = interiors(h);
+    let mut count = 0usize;
+    // `used[k] == i` marks colour `k` as taken by a neighbour of site `i`, so the marks
+    // need no clearing from one site to the next (each site comes once per pass).
+    used.iter_mut().for_each(|u| *u = usize::MAX);
+    for (i, c, b) in order {
+        let inner = &interior[b];
+        let inside = (0..3).fold(true, |ok, k| ok & (c[k] >= inner.lo[k]) & (c[k] < inner.hi[k]));
+        for (step, &delta) in steps[b].iter().zip(&inner.delta) {
+            let j = if inside {
+                Some(i.wrapping_add_signed(delta))
+            } else {
+                neighbour(cells, periodic, nb, c, step)
+            };
+            if let Some(j) = j {
+                // A bond that wraps onto the site itself (a short periodic box) is no
+                // constraint between two sites.
+                if j != i && colour[j] != NONE {
+                    used[colour[j] as usize] = i;
+                }
+            }
+        }
+        let free = used.iter().position(|&u| u != i).unwrap_or(used.len());
         if free >= NONE as usize {
             return Err(StepError::TooLarge { what: "colours", value: free + 1, limit: NONE as usize });
         }
         if free == used.len() {
-            used.push(false);
+            used.push(usize::MAX);
         }
         colour[i] = free as u16;
         count = count.max(free + 1);
@@ -144,9 +221,11 @@ impl Colouring {
             });
         }
         let mut colour = vec![NONE; n];
-        let mut used: Vec<bool> = Vec::new();
+        let mut used: Vec<usize> = Vec::new();
         let steps = steps(h);
-        let mut count = greedy(h, &steps, (0..n).filter(|&i| cell.is_occupied(i)), &mut colour, &mut used)?;
+        let nb = cell.basis_len();
+        let sites = in_index_order(cell.cells(), nb, n).filter(|&(i, _, _)| cell.is_occupied(i));
+        let mut count = greedy(h, &steps, sites, &mut colour, &mut used)?;
         // Iterated greedy: recolouring class by class never needs more colours than
         // before, and often fewer. Passes alternate two class orders: the last class first,
         // and the largest class first.
@@ -181,16 +260,21 @@ impl Colouring {
                 }
             }
             colour.iter_mut().for_each(|c| *c = NONE);
-            count = greedy(h, &steps, order[..acc].iter().map(|&i| i as usize), &mut colour, &mut used)?;
+            let sites = order[..acc].iter().map(|&i| {
+                let (c, b) = cell.decompose(i as usize);
+                (i as usize, c, b)
+            });
+            count = greedy(h, &steps, sites, &mut colour, &mut used)?;
         }
         // Split each colour by basis site: a class of the refined colouring is still an
         // independent set, and its sites all have the same bonds, which the Monte Carlo
         // kernel needs to treat a block of them at once. Empty classes are dropped.
-        let nb = cell.basis_len();
+        // The basis site of site i is i mod nb: a cycling counter, not a division.
+        let basis = || (0..nb).cycle();
         let mut used_class = vec![false; count * nb];
-        for (i, c) in colour.iter().enumerate() {
+        for (c, b) in colour.iter().zip(basis()) {
             if *c != NONE {
-                used_class[*c as usize * nb + i % nb] = true;
+                used_class[*c as usize * nb + b] = true;
             }
         }
         let mut renumber = vec![NONE as usize; count * nb];
@@ -204,9 +288,9 @@ impl Colouring {
         if classes > NONE as usize {
             return Err(StepError::TooLarge { what: "colours", value: classes, limit: NONE as usize });
         }
-        for (i, c) in colour.iter_mut().enumerate() {
+        for (c, b) in colour.iter_mut().zip(basis()) {
             if *c != NONE {
-                *c = renumber[*c as usize * nb + i % nb] as u16;
+                *c = renumber[*c as usize * nb + b] as u16;
             }
         }
         let count = classes;
@@ -279,6 +363,21 @@ mod tests {
     use spindrift_hamiltonian::{add_shell, ShellCoupling, ShellRef, Species};
     use spindrift_lattice::{preset, BondList, Supercell};
 
+    // The counted coordinates must be `Supercell::decompose` exactly (the lattice's own
+    // definition, tested in its crate).
+    #[test]
+    fn counted_coordinates_match_the_supercell() {
+        for (name, cells) in [("simple-cubic", [3, 4, 5]), ("fcc", [2, 3, 2]), ("honeycomb", [5, 1, 3])] {
+            let cell = Supercell::new(preset(name, 3.0, None).unwrap(), cells, [true; 3], 1).unwrap();
+            let mut count = 0;
+            for (i, c, b) in in_index_order(cell.cells(), cell.basis_len(), cell.len()) {
+                assert_eq!((c, b), cell.decompose(i), "{name} site {i}");
+                count += 1;
+            }
+            assert_eq!(count, cell.len());
+        }
+    }
+
     // The division-free neighbour must be `Supercell::neighbour` exactly (the lattice's own
     // definition, tested in its crate), including boxes of one and two cells where offsets
     // of the third shell reach past the box, and open axes that cut bonds.
@@ -291,6 +390,9 @@ mod tests {
             ("fcc", [2, 1, 3], [true, true, false]),
             ("honeycomb", [1, 4, 1], [true, true, false]),
             ("triangular", [5, 2, 1], [false, false, false]),
+            ("simple-cubic", [9, 8, 7], [true, true, false]),
+            ("fcc", [6, 5, 7], [false, true, true]),
+            ("honeycomb", [8, 9, 2], [true, false, false]),
         ];
         for (name, cells, periodic) in cases {
             let cell = Supercell::new(preset(name, 3.0, None).unwrap(), cells, periodic, 1).unwrap();
@@ -308,13 +410,25 @@ mod tests {
             };
             let h = Hamiltonian::new(cell, vec![species], bonds, [0.0; 3]).unwrap();
             let steps = steps(&h);
+            let interior = interiors(&h);
             let cell = h.cell();
             let mut checked = 0;
             for i in 0..h.len() {
                 let (c, b) = cell.decompose(i);
-                for (bond, step) in h.bonds().from_basis(b).iter().zip(&steps[b]) {
+                let inner = &interior[b];
+                let inside = (0..3).all(|k| c[k] >= inner.lo[k] && c[k] < inner.hi[k]);
+                for ((bond, step), &delta) in h.bonds().from_basis(b).iter().zip(&steps[b]).zip(&inner.delta)
+                {
+                    let expected = cell.neighbour(c, bond.offset, bond.to);
                     let ours = neighbour(cell.cells(), cell.periodic(), cell.basis_len(), c, step);
-                    assert_eq!(ours, cell.neighbour(c, bond.offset, bond.to), "{name} {cells:?} site {i}");
+                    assert_eq!(ours, expected, "{name} {cells:?} site {i}");
+                    if inside {
+                        assert_eq!(
+                            Some(i.wrapping_add_signed(delta)),
+                            expected,
+                            "{name} {cells:?} inner site {i}"
+                        );
+                    }
                     checked += 1;
                 }
             }

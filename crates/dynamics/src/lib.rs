@@ -33,6 +33,7 @@ mod error;
 pub mod heun;
 pub mod initial;
 pub mod metropolis;
+mod moment;
 pub mod relax;
 
 pub use colouring::Colouring;
@@ -40,4 +41,5 @@ pub use error::{InitError, StepError};
 pub use heun::{Heun, HeunParams};
 pub use initial::{favoured_helicity, favoured_helicity_for, InitialState};
 pub use metropolis::{Metropolis, SweepStats};
+pub use moment::MomentTally;
 pub use relax::{relax, RelaxParams, RelaxReport, Relaxer, RelaxerState};

@@ -46,6 +46,15 @@
 //! on how rayon groups the chunks, so it is the same for any thread count, which a
 //! floating-point reduction would not guarantee.
 //!
+//! # Moment bookkeeping
+//!
+//! [`SweepStats::moment`] is the fixed-point moment sum of [`MomentTally`] of the spins
+//! after the sweep, gathered from the decided spins while they are still in the cache:
+//! every occupied site is decided exactly once per sweep, in one class, and keeps that
+//! spin to the end of the sweep, and the tally is an integer sum, independent of order. So
+//! a sampler reads the magnetisation of every sweep without a pass over the spins, and it
+//! equals [`MomentTally::units`] of the spins bit for bit.
+//!
 //! # Parallel and reproducible
 //!
 //! Sites are coloured so that no bond joins two sites of one colour ([`Colouring`]; each
@@ -70,6 +79,7 @@
 use crate::acceptance::boltzmann_factor;
 use crate::colouring::Colouring;
 use crate::error::{check_len, StepError};
+use crate::moment::{moment_units, MomentTally};
 use rayon::prelude::*;
 use spindrift_hamiltonian::constants::K_B;
 use spindrift_hamiltonian::{Hamiltonian, CHUNK};
@@ -111,6 +121,9 @@ pub struct SweepStats {
     /// sweep minus before, up to rounding (each change is rounded to a multiple of
     /// `2^-32` meV; see the module documentation).
     pub energy_change: f64,
+    /// The fixed-point moment sum of the spins after the sweep, per component, exactly
+    /// [`MomentTally::units`] of them (see the module documentation).
+    pub moment: [i128; 3],
 }
 
 impl SweepStats {
@@ -132,6 +145,8 @@ struct Counts {
     cone_attempted: u64,
     /// Sum of accepted energy changes in units of `1 / ENERGY_SCALE` meV.
     energy_change: i128,
+    /// Fixed-point moment sum of the decided spins (units of [`MomentTally`]).
+    moment: [i128; 3],
 }
 
 impl Counts {
@@ -142,6 +157,7 @@ impl Counts {
             cone_accepted: self.cone_accepted + o.cone_accepted,
             cone_attempted: self.cone_attempted + o.cone_attempted,
             energy_change: self.energy_change + o.energy_change,
+            moment: crate::moment::add(self.moment, o.moment),
         }
     }
 }
@@ -151,6 +167,7 @@ impl Counts {
 pub struct Metropolis {
     stream: NoiseStream,
     colouring: Colouring,
+    tally: MomentTally,
     buffer: Vec<Vec3>,
     sigma: f64,
     len: usize,
@@ -165,6 +182,7 @@ impl Metropolis {
         Ok(Self {
             stream: NoiseStream::new(seed, STREAM_METROPOLIS),
             colouring,
+            tally: MomentTally::new(h),
             buffer,
             sigma: SIGMA_START,
             len: h.len(),
@@ -174,6 +192,11 @@ impl Metropolis {
     /// The colouring of the bond graph.
     pub fn colouring(&self) -> &Colouring {
         &self.colouring
+    }
+
+    /// The fixed-point moment sum that [`SweepStats::moment`] is given in.
+    pub fn tally(&self) -> &MomentTally {
+        &self.tally
     }
 
     /// Width of the random-walk move (dimensionless, relative to the unit spin).
@@ -219,17 +242,20 @@ impl Metropolis {
         let stream = self.stream;
         let sigma = self.sigma;
         let n = spins.len();
+        let nb = h.cell().basis_len();
         let mut total = Counts::default();
 
         for c in 0..self.colouring.len() {
             let class = self.colouring.class(c);
+            // Every site of a class has the same basis site.
+            let weight = class.first().map_or(0.0, |&i| self.tally.weight(i as usize % nb));
             let mut block_start = 0;
             while block_start < class.len() {
                 let block = &class[block_start..(block_start + BLOCK).min(class.len())];
                 let buffer = &mut self.buffer[..block.len()];
                 // Decide every trial of the block; the spins of this colour do not change
                 // until all are decided, and no trial reads another spin of its colour.
-                let ctx = TrialContext { h, spins: &*spins, stream, sigma, beta, step: sweep_index };
+                let ctx = TrialContext { h, spins: &*spins, stream, sigma, beta, step: sweep_index, weight };
                 let counts = if block.len() <= CHUNK {
                     decide(&ctx, buffer, block)
                 } else {
@@ -276,6 +302,7 @@ impl Metropolis {
             accepted: total.accepted,
             attempted: total.attempted,
             energy_change: total.energy_change as f64 / ENERGY_SCALE,
+            moment: total.moment,
         })
     }
 }
@@ -291,6 +318,8 @@ struct TrialContext<'a> {
     beta: f64,
     /// The sweep index, the step of the random numbers.
     step: u64,
+    /// The [`MomentTally`] weight of the class's basis site, μB.
+    weight: f64,
 }
 
 spindrift_isa::multiversion! {
@@ -298,7 +327,7 @@ spindrift_isa::multiversion! {
     /// into `out`; the spins do not change until every trial of the block is decided.
     /// Compiled per instruction-set level (same bits on each).
     fn decide(ctx: &TrialContext<'_>, out: &mut [Vec3], sites: &[u32]) -> Counts {
-        let TrialContext { h, spins, stream, sigma, beta, step } = *ctx;
+        let TrialContext { h, spins, stream, sigma, beta, step, weight } = *ctx;
         let mut counts = Counts::default();
         // A few sites at a time, in phases without branches: random numbers in bulk (bitwise
         // the per-site values), trial spins, energy changes, acceptance. On the stack.
@@ -349,6 +378,7 @@ spindrift_isa::multiversion! {
             counts.cone_attempted += cone_attempted;
             counts.cone_accepted += cone_accepted;
             counts.energy_change += integer_sum(units);
+            counts.moment = crate::moment::add(counts.moment, moment_units(weight, out));
         }
         counts
     }

@@ -183,6 +183,45 @@ impl ChargeObserver {
     }
 }
 
+/// Positions of a row whose solid angles are computed together, in buffers on the stack
+/// (about 2 KiB).
+const SPAN: usize = 256;
+
+/// Whether a spin is present (vacant sites hold the zero spin), without a branch.
+#[inline(always)]
+fn present(s: Vec3) -> bool {
+    (s[0] != 0.0) | (s[1] != 0.0) | (s[2] != 0.0)
+}
+
+/// The sum of the solid angles of the two triangles anchored at a site `s0` with
+/// neighbours `s1` (along a1), `s12` (along a1 + a2) and `s2` (along a2), each triangle
+/// counted only when its corners are present: `(0 + Omega_1) + Omega_2`, the order of the
+/// site-by-site sum. Without branches: both angles are computed and the absent ones
+/// replaced by zero, which leaves the sum's bits alone (see `Geometry::accumulate`).
+#[inline(always)]
+fn anchored(s0: Vec3, s1: Vec3, s12: Vec3, s2: Vec3) -> f64 {
+    let (p0, p1, p12, p2) = (present(s0), present(s1), present(s12), present(s2));
+    let lower = solid_angle(s0, s1, s12);
+    let upper = solid_angle(s0, s12, s2);
+    let lower = if p0 & p1 & p12 { lower } else { 0.0 };
+    let upper = if p0 & p12 & p2 { upper } else { 0.0 };
+    (0.0 + lower) + upper
+}
+
+spindrift_isa::multiversion! {
+    /// `out[k] = anchored(row[k], row[k + nb], next[k + nb], next[k])`: the solid angles
+    /// anchored at consecutive positions of a row of cells whose neighbour cell along a1
+    /// is the next one in the row (no wrap), `next` being the row one cell further along
+    /// a2. Compiled per instruction-set level (same bits on each).
+    fn anchored_run(row: &[Vec3], next: &[Vec3], nb: usize, out: &mut [f64]) {
+        let n = out.len();
+        let (row, next) = (&row[..n + nb], &next[..n + nb]);
+        for k in 0..n {
+            out[k] = anchored(row[k], row[k + nb], next[k + nb], next[k]);
+        }
+    }
+}
+
 impl Geometry {
     /// Index along an in-plane axis one cell further, or `None` where the box ends.
     #[inline(always)]
@@ -196,50 +235,68 @@ impl Geometry {
         }
     }
 
-    /// Sums the solid angles of the two triangles anchored at every site of one chunk.
+    /// Sums the solid angles of the two triangles anchored at every site of one chunk,
+    /// into one partial sum per plane of cells and basis site, site by site in index
+    /// order.
+    ///
+    /// The chunk is walked by rows of cells along a1. Where the row's neighbour along a2
+    /// exists, the angles of a stretch of up to [`SPAN`] positions are computed by
+    /// [`anchored_run`] (the last cell of a row, whose neighbour along a1 wraps or is
+    /// cut, one position at a time) and then added in order. A site without triangles
+    /// adds `+0`, which changes no partial sum: each starts at `+0` and is a sum of terms
+    /// none of which is `-0` (each term is `0 + ...`), so it is never `-0`; hence the bits
+    /// are those of the sum over the sites that have triangles alone.
     fn accumulate(&self, spins: &[Vec3], start: usize, count: usize, acc: &mut [f64]) {
         acc.fill(0.0);
         let nb = self.basis_len;
         let [n1, n2, _] = self.cells;
-        let plane = n1 * n2 * nb;
+        let row_len = n1 * nb;
+        let plane = row_len * n2;
         let first_plane = start / plane;
-        // The coordinates of site `start`, then advanced site by site: no division in the
-        // loop (four per site cost as much as the triangles).
-        let mut b = start % nb;
-        let mut c1 = (start / nb) % n1;
-        let mut c2 = (start / (nb * n1)) % n2;
-        let mut c3 = start / plane;
-        for i in start..start + count {
-            let s0 = spins[i];
-            if s0 != [0.0; 3] {
-                if let (Some(d1), Some(d2)) = (self.next(0, c1), self.next(1, c2)) {
-                    let index = |x: usize, y: usize| ((c3 * n2 + y) * n1 + x) * nb + b;
-                    let s1 = spins[index(d1, c2)];
-                    let s12 = spins[index(d1, d2)];
-                    let s2 = spins[index(c1, d2)];
-                    let mut omega = 0.0;
-                    if s1 != [0.0; 3] && s12 != [0.0; 3] {
-                        omega += solid_angle(s0, s1, s12);
-                    }
-                    if s12 != [0.0; 3] && s2 != [0.0; 3] {
-                        omega += solid_angle(s0, s12, s2);
-                    }
-                    acc[(c3 - first_plane) * nb + b] += omega;
-                }
-            }
-            b += 1;
-            if b == nb {
-                b = 0;
-                c1 += 1;
-                if c1 == n1 {
-                    c1 = 0;
-                    c2 += 1;
-                    if c2 == n2 {
-                        c2 = 0;
-                        c3 += 1;
+        // The positions of a row whose neighbour along a1 is the next cell of the row.
+        let inner = n1.saturating_sub(1) * nb;
+        let mut omega = [0.0; SPAN];
+        let end = start + count;
+        let mut site = start;
+        while site < end {
+            let row = site / row_len;
+            let row_start = row * row_len;
+            let seg_end = (row_start + row_len).min(end);
+            let (c2, c3) = (row % n2, row / n2);
+            let Some(d2) = self.next(1, c2) else {
+                site = seg_end;
+                continue;
+            };
+            let this = &spins[row_start..row_start + row_len];
+            let next_start = (c3 * n2 + d2) * row_len;
+            let next = &spins[next_start..next_start + row_len];
+            let sums = &mut acc[(c3 - first_plane) * nb..(c3 - first_plane + 1) * nb];
+            let mut p = site - row_start;
+            let p_end = seg_end - row_start;
+            while p < p_end {
+                let q = if p < inner { (p + SPAN).min(inner).min(p_end) } else { p_end };
+                let out = &mut omega[..q - p];
+                if p < inner {
+                    anchored_run(&this[p..], &next[p..], nb, out);
+                } else {
+                    // The last cell: its neighbour along a1 is the row's first cell, or none.
+                    let wrap = self.next(0, n1 - 1).is_some();
+                    for (k, w) in out.iter_mut().enumerate() {
+                        let (i, j) = (p + k, p + k - inner);
+                        *w = if wrap { anchored(this[i], this[j], next[j], next[i]) } else { 0.0 };
                     }
                 }
+                let mut b = p % nb;
+                for &w in out.iter() {
+                    sums[b] += w;
+                    b += 1;
+                    if b == nb {
+                        b = 0;
+                    }
+                }
+                p = q;
             }
+            site = seg_end;
         }
     }
 }
@@ -247,6 +304,86 @@ impl Geometry {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The per-site definition of `Geometry::accumulate`: every site in index order, its
+    /// two triangles where its neighbours exist and are present.
+    fn accumulate_by_site(g: &Geometry, spins: &[Vec3], start: usize, count: usize, acc: &mut [f64]) {
+        acc.fill(0.0);
+        let nb = g.basis_len;
+        let [n1, n2, _] = g.cells;
+        let first_plane = start / (n1 * n2 * nb);
+        for i in start..start + count {
+            let (b, c1, c2, c3) = (i % nb, (i / nb) % n1, (i / (nb * n1)) % n2, i / (nb * n1 * n2));
+            let s0 = spins[i];
+            if s0 == [0.0; 3] {
+                continue;
+            }
+            let (Some(d1), Some(d2)) = (g.next(0, c1), g.next(1, c2)) else { continue };
+            let index = |x: usize, y: usize| ((c3 * n2 + y) * n1 + x) * nb + b;
+            let (s1, s12, s2) = (spins[index(d1, c2)], spins[index(d1, d2)], spins[index(c1, d2)]);
+            let mut omega = 0.0;
+            if s1 != [0.0; 3] && s12 != [0.0; 3] {
+                omega += solid_angle(s0, s1, s12);
+            }
+            if s12 != [0.0; 3] && s2 != [0.0; 3] {
+                omega += solid_angle(s0, s12, s2);
+            }
+            acc[(c3 - first_plane) * nb + b] += omega;
+        }
+    }
+
+    /// The row kernel gives the partial sums of the site-by-site loop bit for bit (common
+    /// practice for a reordered kernel): rows cut by chunk ends, open and periodic edges,
+    /// boxes of one cell along an axis, bases of one to four sites, vacancies, and aligned
+    /// spins whose solid angles are signed zeros.
+    #[test]
+    fn row_kernel_equals_site_by_site_sum_bitwise() {
+        use spindrift_lattice::{preset, unit_hash};
+        let cases = [
+            ("square", [40, 40, 1], [true, true, true], 1.0),
+            ("simple-cubic", [70, 50, 3], [true, true, false], 1.0),
+            ("simple-cubic", [33, 29, 6], [false, true, false], 0.85),
+            ("honeycomb", [30, 45, 2], [false, false, true], 0.8),
+            ("triangular", [1, 6, 1], [true, true, false], 1.0),
+            ("triangular", [7, 1, 2], [true, true, false], 1.0),
+            ("bcc", [17, 23, 5], [true, false, false], 0.9),
+            ("fcc", [9, 13, 5], [true, true, true], 0.95),
+        ];
+        for (name, cells, periodic, occupancy) in cases {
+            let mut crystal = preset(name, 1.0, None).unwrap();
+            for b in &mut crystal.basis {
+                b.occupancy = occupancy;
+            }
+            let cell = Supercell::new(crystal, cells, periodic, 3).unwrap();
+            let spins: Vec<Vec3> = (0..cell.len())
+                .map(|i| {
+                    let i = i as u64;
+                    if !cell.is_occupied(i as usize) {
+                        [0.0; 3]
+                    } else if unit_hash(4, 0, i) < 0.3 {
+                        [0.0, 0.0, 1.0]
+                    } else {
+                        let z = 2.0 * unit_hash(4, 1, i) - 1.0;
+                        let phi = 2.0 * PI * unit_hash(4, 2, i);
+                        let r = (1.0 - z * z).sqrt();
+                        [r * phi.cos(), r * phi.sin(), z]
+                    }
+                })
+                .collect();
+            let g = ChargeObserver::new(&cell).geometry;
+            for k in 0..g.chunks.count {
+                let start = ChunkPlanes::start(k);
+                let count = CHUNK.min(g.len - start);
+                let mut rows = vec![f64::NAN; g.slot];
+                let mut sites = vec![f64::NAN; g.slot];
+                g.accumulate(&spins, start, count, &mut rows);
+                accumulate_by_site(&g, &spins, start, count, &mut sites);
+                for (r, s) in rows.iter().zip(&sites) {
+                    assert_eq!(r.to_bits(), s.to_bits(), "{name} {cells:?} chunk {k}: {r} != {s}");
+                }
+            }
+        }
+    }
 
     /// The octant of the unit sphere bounded by the three axes spans 4 pi / 8 = pi / 2 sr
     /// (elementary geometry), positive for the counter-clockwise order x, y, z.

@@ -89,6 +89,10 @@ pub(crate) fn run(
     // rounding cannot accumulate; a checkpoint carries the running value, so a resumed run
     // continues with the same bits.
     let mut energy = cursor.scalar("energy");
+    // Monte Carlo takes the magnetisation of a sample from the sweep before it (the
+    // fixed-point moment sum of `MomentTally`, exact, gathered by the sweep), not from a
+    // pass over the spins; samples follow sweeps only, so it is never read before set.
+    let mut moment = None;
     let mut accepted = cursor.counter("accepted");
     let mut attempted = cursor.counter("attempted");
     let unit = if plan.method == ScanMethod::Metropolis { "sweeps" } else { "steps" };
@@ -141,6 +145,7 @@ pub(crate) fn run(
                     .sweep(&r.h, &mut r.spins, temperature, global + step, step < plan.equilibrate)
                     .map_err(|e| r.step_error(e))?;
                 energy = Some(total + s.energy_change);
+                moment = Some(s.moment);
                 accepted += s.accepted;
                 attempted += s.attempted;
             } else if let Some(heun) = heun.as_mut() {
@@ -149,7 +154,13 @@ pub(crate) fn run(
             }
             step += 1;
             if step > plan.equilibrate && (step - plan.equilibrate) % sample_every == 0 {
-                let (m, e) = r.measure(energy)?;
+                let (m, e) = match (&mc, moment, energy) {
+                    // Per spin, as `Runner::measure` gives it, without a pass over the spins.
+                    (Some(mc), Some(units), Some(total)) => {
+                        (mc.tally().magnetization(units), total / r.h.spin_count().max(1) as f64)
+                    }
+                    _ => r.measure(energy)?,
+                };
                 samples.push(m, e);
             }
             if step == per_point {

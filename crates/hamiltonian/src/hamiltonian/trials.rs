@@ -281,8 +281,13 @@ impl Hamiltonian {
                 // Most often the rest of the block is one run (a row of a checkerboard class):
                 // tested first without branches, which vectorises; as the sites then
                 // ascend, the last one is the only one that can pass the row's end.
+                // Steps of `d` between neighbours are sites `i0 + k d`; compared so (rather
+                // than pairwise through `windows`, which stays a scalar loop) it vectorises.
                 let rest = &sites[k0..len];
-                let one_run = rest.windows(2).fold(true, |ok, w| ok & (w[1].wrapping_sub(w[0]) == d));
+                let one_run = rest
+                    .iter()
+                    .enumerate()
+                    .fold(true, |ok, (k, &s)| ok & (s == i0.wrapping_add(d.wrapping_mul(k as u32))));
                 if one_run && sites[len - 1] < row_end {
                     k1 = len;
                 }

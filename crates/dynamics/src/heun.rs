@@ -151,16 +151,17 @@ impl Heun {
     /// stream 0 of `seed`. Every later call must pass a Hamiltonian with the same
     /// supercell and species (the applied field may change).
     pub fn new(h: &Hamiltonian, seed: u64) -> Self {
-        Self::with_order(h, seed, LARGE, BAND_BYTES, true)
+        Self::with_order(h, seed, LARGE, BAND_BYTES, Some(ROWS_PER_REACH))
     }
 
     /// The integrator with `large` and `band_bytes` in place of [`LARGE`] and
     /// [`BAND_BYTES`] (tests reach the orders of large systems with small ones this way),
-    /// fusing the passes of large systems when `fuse`.
-    fn with_order(h: &Hamiltonian, seed: u64, large: usize, band_bytes: usize, fuse: bool) -> Self {
+    /// fusing the passes of large systems when `fuse` gives the rows per task and row of
+    /// reach it needs ([`ROWS_PER_REACH`]).
+    fn with_order(h: &Hamiltonian, seed: u64, large: usize, band_bytes: usize, fuse: Option<usize>) -> Self {
         let n = h.len();
         let damping = h.basis_damping();
-        let buffers = match fused_bands(h, large, band_bytes, fuse) {
+        let buffers = match fused_bands(h, large, band_bytes, fuse, rayon::current_num_threads()) {
             Some(bands) => {
                 let rings = (0..bands.tasks(rayon::current_num_threads()))
                     .map(|_| fused::Ring::new(bands.ring_len()))
@@ -187,7 +188,7 @@ impl Heun {
     /// pool, so it can be called before the program sets up its own.
     pub fn scratch_bytes(h: &Hamiltonian, threads: usize) -> usize {
         let v = std::mem::size_of::<Vec3>();
-        match fused_bands(h, LARGE, BAND_BYTES, true) {
+        match fused_bands(h, LARGE, BAND_BYTES, Some(ROWS_PER_REACH), threads) {
             Some(bands) => h.len() * v + bands.tasks(threads) * bands.ring_len() * 2 * v,
             None => h.len() * 2 * v,
         }
@@ -343,12 +344,20 @@ impl Heun {
 }
 
 /// The geometry of the fused step for `h`, when it takes one: with `fuse`, above `large`
-/// sites, and when the planes have rows enough (see [`fused::Bands::new`]).
-fn fused_bands(h: &Hamiltonian, large: usize, band_bytes: usize, fuse: bool) -> Option<fused::Bands> {
-    if fuse && h.len() > large {
-        fused::Bands::new(h, FUSED_BAND_BYTES.min(band_bytes))
-    } else {
-        None
+/// sites, and when the planes have rows enough for `threads` tasks of at least `fuse`
+/// rows per row of reach (see [`fused::Bands::new`]).
+fn fused_bands(
+    h: &Hamiltonian,
+    large: usize,
+    band_bytes: usize,
+    fuse: Option<usize>,
+    threads: usize,
+) -> Option<fused::Bands> {
+    match fuse {
+        Some(rows_per_reach) if h.len() > large => {
+            fused::Bands::new(h, FUSED_BAND_BYTES.min(band_bytes), rows_per_reach, threads)
+        }
+        _ => None,
     }
 }
 
@@ -381,6 +390,13 @@ const LARGE: usize = 1 << 19;
 
 /// Bytes of predictor and noise per band of the fused step ([`Buffers::Fused`]).
 const FUSED_BAND_BYTES: usize = 512 * 1024;
+
+/// Rows per task of the fused step, at least, for each row that a bond spans along `a2`:
+/// a task computes the predictor of `reach` rows beyond each end of its range again, and
+/// holds a ring of rows over every plane, so with fewer rows per task the repeated work
+/// passes a quarter and the rings a third of the memory they save. Systems whose planes
+/// have fewer rows for the threads keep the two passes.
+const ROWS_PER_REACH: usize = 8;
 
 /// Bytes of one band of rows over three planes, for each array read with neighbours: what
 /// measured best on a 1000 x 1000 x 10 system with 1 MiB of L2 per core (8 rows of 1000
@@ -623,7 +639,7 @@ mod tests {
     #[test]
     fn band_order_gives_the_same_bits() {
         for h in [system(), system_with(4, false, 0.9), system_of("bcc", [12, 8, 5], 2, true, 1.0)] {
-            assert!(matches!(Heun::with_order(&h, 9, 0, 1, true).buffers, Buffers::Fused { .. }));
+            assert!(matches!(Heun::with_order(&h, 9, 0, 1, Some(1)).buffers, Buffers::Fused { .. }));
             let mut start = vec![[0.0; 3]; h.len()];
             crate::initial::random(&h, &mut start, 3).unwrap();
             let p = HeunParams { dt: 1e-3, temperature: 300.0 };
@@ -639,12 +655,13 @@ mod tests {
                 for (fuse, band_bytes) in
                     [(false, 1), (false, 3 * 12 * 24 * 3), (true, 1), (true, 3 * per_row), (true, 1 << 20)]
                 {
+                    let fuse = fuse.then_some(1);
                     let got = run(Heun::with_order(&h, 9, 0, band_bytes, fuse), threads);
                     let same = reference
                         .iter()
                         .zip(&got)
                         .all(|(a, b)| (0..3).all(|i| a[i].to_bits() == b[i].to_bits()));
-                    assert!(same, "{threads} threads, fused {fuse}, bands of {band_bytes} bytes");
+                    assert!(same, "{threads} threads, fused {fuse:?}, bands of {band_bytes} bytes");
                 }
             }
         }
@@ -661,5 +678,15 @@ mod tests {
             let rings = bytes - per_site * h.len();
             assert!(rings < 2 * h.len(), "{cells:?}: {rings} bytes of rings");
         }
+    }
+
+    // Planes with too few rows for the threads keep the two passes: 8 rows of reach 1
+    // make one task of 8 rows, not two.
+    #[test]
+    fn few_rows_per_thread_keep_two_passes() {
+        let h = system();
+        assert!(fused_bands(&h, 0, BAND_BYTES, Some(ROWS_PER_REACH), 1).is_some());
+        assert!(fused_bands(&h, 0, BAND_BYTES, Some(ROWS_PER_REACH), 2).is_none());
+        assert!(fused_bands(&h, h.len(), BAND_BYTES, Some(ROWS_PER_REACH), 1).is_none());
     }
 }

@@ -36,12 +36,20 @@ pub(super) struct Bands {
     reach: usize,
     /// Rows per band.
     band: usize,
+    /// Rows per task, at least.
+    per_task: usize,
 }
 
 impl Bands {
     /// The geometry for `h` with bands of about `band_bytes` of predictor and noise over
-    /// every plane, or `None` when the planes have too few rows for a ring of rows.
-    pub(super) fn new(h: &Hamiltonian, band_bytes: usize) -> Option<Self> {
+    /// every plane and tasks of at least `rows_per_reach` rows per row of reach, or `None`
+    /// when the planes have too few rows for a ring of rows or for `threads` such tasks.
+    pub(super) fn new(
+        h: &Hamiltonian,
+        band_bytes: usize,
+        rows_per_reach: usize,
+        threads: usize,
+    ) -> Option<Self> {
         let [n1, ny, nz] = h.cell().cells();
         let row = n1 * h.cell().basis_len();
         let reach = h.row_reach()[0];
@@ -49,7 +57,16 @@ impl Bands {
         // A row is found in the ring by its index modulo n2, so the ring must not hold
         // one row twice.
         let band = (band_bytes / per_row).max(1).min(ny.checked_sub(2 * reach)?);
-        (band >= 1).then_some(Self { row, ny, nz, periodic_y: h.cell().periodic()[1], reach, band })
+        let per_task = rows_per_reach * reach.max(1);
+        (band >= 1 && ny >= per_task * threads).then_some(Self {
+            row,
+            ny,
+            nz,
+            periodic_y: h.cell().periodic()[1],
+            reach,
+            band,
+            per_task,
+        })
     }
 
     /// Rows per plane in the ring.
@@ -62,9 +79,11 @@ impl Bands {
         self.ring() * self.nz * self.row
     }
 
-    /// Tasks for `threads` threads: one range of rows each.
+    /// Tasks for `threads` threads: one range of rows each, as many as the rows allow
+    /// (fewer than the threads only when the step runs on more threads than the
+    /// integrator was made for).
     pub(super) fn tasks(&self, threads: usize) -> usize {
-        threads.clamp(1, self.ny)
+        threads.min(self.ny / self.per_task).max(1)
     }
 
     /// Rows along `a2` per plane of task `t` of `tasks`.
@@ -130,7 +149,7 @@ pub(super) fn run_task(
     rows: std::ops::Range<usize>,
     out: &mut [Option<&mut [Vec3]>],
 ) -> Option<usize> {
-    let Bands { row, ny, nz, periodic_y, reach, band } = *bands;
+    let Bands { row, ny, nz, periodic_y, reach, band, .. } = *bands;
     let ring_rows = bands.ring();
     let (ny_i, reach_i) = (ny as i64, reach as i64);
     // The predictor and noise of unwrapped row u of every plane, into its ring slot.

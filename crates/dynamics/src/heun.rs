@@ -689,4 +689,27 @@ mod tests {
         assert!(fused_bands(&h, 0, BAND_BYTES, Some(ROWS_PER_REACH), 2).is_none());
         assert!(fused_bands(&h, h.len(), BAND_BYTES, Some(ROWS_PER_REACH), 1).is_none());
     }
+
+    // A failing fused step reports the same first bad site as the two passes and leaves
+    // every spin as it was (the new spins went to the second array, which is not swapped).
+    #[test]
+    fn failing_fused_step_leaves_the_spins() {
+        let h = system();
+        let mut start = vec![[0.0; 3]; h.len()];
+        crate::initial::random(&h, &mut start, 3).unwrap();
+        start[37] = [f64::NAN, 0.0, 0.0];
+        let p = HeunParams { dt: 1e-3, temperature: 300.0 };
+        let mut two_pass = start.clone();
+        let expected = Heun::new(&h, 9).step(&h, &mut two_pass, &p, 4).unwrap_err();
+        assert!(matches!(expected, StepError::NonFinite { site, step: 4 } if site < 37));
+        for threads in [1, 2] {
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+            let mut heun = Heun::with_order(&h, 9, 0, 1, Some(1));
+            assert!(matches!(heun.buffers, Buffers::Fused { .. }));
+            let mut s = start.clone();
+            assert_eq!(pool.install(|| heun.step(&h, &mut s, &p, 4)), Err(expected.clone()));
+            let same = start.iter().zip(&s).all(|(a, b)| (0..3).all(|i| a[i].to_bits() == b[i].to_bits()));
+            assert!(same, "{threads} threads");
+        }
+    }
 }

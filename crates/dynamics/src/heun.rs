@@ -107,6 +107,38 @@ fn corrected(c: SiteConst, s: Vec3, p: Vec3, b: Vec3, dt: f64) -> (Vec3, bool) {
     (if good { [v[0] * inv, v[1] * inv, v[2] * inv] } else { s }, good)
 }
 
+/// `a[k] += b[k]`: the thermal field added to a block's fields.
+#[inline(always)]
+fn add_into(a: &mut [Vec3], b: &[Vec3]) {
+    for (a, b) in a.iter_mut().zip(b) {
+        *a = [a[0] + b[0], a[1] + b[1], a[2] + b[2]];
+    }
+}
+
+/// The corrector over one block: `out[k]` from the old spin `old[k]`, the predictor
+/// `pred[k]` and the field at the predictor `fields[k]`. Branch-free, so that it
+/// vectorises: a failed site keeps its old spin and is marked in `ok`. Returns whether
+/// every site succeeded.
+#[inline(always)]
+fn correct_block(
+    consts: &[SiteConst],
+    old: &[Vec3],
+    pred: &[Vec3],
+    fields: &[Vec3],
+    dt: f64,
+    out: &mut [Vec3],
+    ok: &mut [bool],
+) -> bool {
+    let mut all_ok = true;
+    for k in 0..out.len() {
+        let (v, good) = corrected(consts[k], old[k], pred[k], fields[k], dt);
+        out[k] = v;
+        ok[k] = good;
+        all_ok &= good;
+    }
+    all_ok
+}
+
 /// The first site of a block starting at site `first` whose corrector failed (`ok` false),
 /// other than a vacant site: those hold zero spins, and failing is what keeps them zero.
 fn first_failed(ok: &[bool], occupation: Option<&[bool]>, first: usize) -> Option<usize> {
@@ -494,9 +526,7 @@ spindrift_isa::multiversion! {
                         *th = [c.sigma * th[0], c.sigma * th[1], c.sigma * th[2]];
                     }
                 }
-                for (b, th) in pred.iter_mut().zip(&*noise) {
-                    *b = [b[0] + th[0], b[1] + th[1], b[2] + th[2]];
-                }
+                add_into(pred, noise);
             }
             for k in 0..len {
                 let c = consts[k];
@@ -540,23 +570,11 @@ spindrift_isa::multiversion! {
             let ok = &mut ok_block[..len];
             h.field_range(predictor, first, fields);
             if thermal.is_some() {
-                for (b, th) in fields.iter_mut().zip(&*noise) {
-                    *b = [b[0] + th[0], b[1] + th[1], b[2] + th[2]];
-                }
+                add_into(fields, noise);
             }
-            let predictor = &predictor[first..first + len];
-            // Branch-free, so that it vectorises: a failed site keeps its old spin and is
-            // found afterwards from `ok`.
-            let mut all_ok = true;
-            for k in 0..len {
-                let s = out[k];
-                let (v, good) = corrected(consts[k], s, predictor[k], fields[k], dt);
-                noise[k] = s;
-                out[k] = v;
-                ok[k] = good;
-                all_ok &= good;
-            }
-            if !all_ok {
+            // The noise is consumed: its slot keeps the pre-step spins from here on.
+            noise.copy_from_slice(out);
+            if !correct_block(consts, noise, &predictor[first..first + len], fields, dt, out, ok) {
                 bad = first_bad(bad, first_failed(ok, occupation, first));
             }
         }

@@ -17,7 +17,7 @@
 //! are computed twice with the same bits, and the result is bitwise that of the two-pass
 //! step for any number of tasks.
 
-use super::{corrected, first_bad, first_failed, predictor_chunk, StepContext, BLOCK};
+use super::{add_into, correct_block, first_bad, first_failed, predictor_chunk, StepContext, BLOCK};
 use rayon::prelude::*;
 use spindrift_hamiltonian::{Hamiltonian, SpinRows};
 use spindrift_lattice::Vec3;
@@ -233,19 +233,9 @@ spindrift_isa::multiversion! {
             let ok = &mut ok_block[..len];
             h.field_range_in(view, first, fields);
             if thermal.is_some() {
-                for (b, th) in fields.iter_mut().zip(noise) {
-                    *b = [b[0] + th[0], b[1] + th[1], b[2] + th[2]];
-                }
+                add_into(fields, noise);
             }
-            let old = &spins[first..first + len];
-            let mut all_ok = true;
-            for k in 0..len {
-                let (v, good) = corrected(consts[k], old[k], pred[k], fields[k], dt);
-                out[k] = v;
-                ok[k] = good;
-                all_ok &= good;
-            }
-            if !all_ok {
+            if !correct_block(consts, &spins[first..first + len], pred, fields, dt, out, ok) {
                 bad = first_bad(bad, first_failed(ok, occupation, first));
             }
         }

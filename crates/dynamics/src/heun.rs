@@ -592,7 +592,7 @@ mod tests {
     /// first, 8 rows of 12 cells per plane, 5 planes (open along a3), periodic along a2
     /// when `periodic_y`, each site occupied with probability `occupancy`.
     fn system_with(shells: usize, periodic_y: bool, occupancy: f64) -> Hamiltonian {
-        system_of("simple-cubic", [12, 8, 5], shells, periodic_y, occupancy)
+        system_of("simple-cubic", [12, 8, 5], shells, [true, periodic_y, false], occupancy)
     }
 
     /// [`system_with`] of another lattice and other dimensions.
@@ -600,13 +600,13 @@ mod tests {
         lattice: &str,
         cells: [usize; 3],
         shells: usize,
-        periodic_y: bool,
+        periodic: [bool; 3],
         occupancy: f64,
     ) -> Hamiltonian {
         let mut crystal = preset(lattice, 3.0, None).unwrap();
         crystal.basis.iter_mut().for_each(|b| b.occupancy = occupancy);
         let nb = crystal.basis.len();
-        let cell = Supercell::new(crystal, cells, [true, periodic_y, false], 4).unwrap();
+        let cell = Supercell::new(crystal, cells, periodic, 4).unwrap();
         let mut bonds = BondList::new(nb);
         for shell in 1..=shells {
             let spec = ShellCoupling {
@@ -653,10 +653,20 @@ mod tests {
     // The order of the walk changes no bit: steps at 300 K in chunk order, in bands of one
     // and of three rows, and fused over bands of one, three and six rows, on one, two and
     // three threads; with one shell and periodic rows, and with four shells (bonds two rows
-    // apart), open rows and vacancies, and on a two-site basis (bcc, 2 shells).
+    // apart), open rows and vacancies, and on other lattices: bcc (two sites, 2 shells),
+    // fcc (four sites, periodic planes too), honeycomb (two sites in a plane, 3 shells,
+    // open rows) and triangular (bonds across rows at an angle, vacancies).
     #[test]
     fn band_order_gives_the_same_bits() {
-        for h in [system(), system_with(4, false, 0.9), system_of("bcc", [12, 8, 5], 2, true, 1.0)] {
+        let systems = [
+            system(),
+            system_with(4, false, 0.9),
+            system_of("bcc", [12, 8, 5], 2, [true, true, false], 1.0),
+            system_of("fcc", [6, 8, 4], 2, [true; 3], 1.0),
+            system_of("honeycomb", [10, 9, 3], 3, [true, false, false], 1.0),
+            system_of("triangular", [11, 10, 2], 2, [true, true, false], 0.8),
+        ];
+        for h in systems {
             assert!(matches!(Heun::with_order(&h, 9, 0, 1, Some(1)).buffers, Buffers::Fused { .. }));
             let mut start = vec![[0.0; 3]; h.len()];
             crate::initial::random(&h, &mut start, 3).unwrap();
@@ -668,7 +678,8 @@ mod tests {
                 s
             };
             let reference = run(Heun::new(&h, 9), 1);
-            let per_row = 5 * 12 * 48;
+            let [n1, _, n3] = h.cell().cells();
+            let per_row = n3 * n1 * h.cell().basis_len() * 48;
             for threads in [1, 2, 3] {
                 for (fuse, band_bytes) in
                     [(false, 1), (false, 3 * 12 * 24 * 3), (true, 1), (true, 3 * per_row), (true, 1 << 20)]
@@ -690,7 +701,7 @@ mod tests {
     #[test]
     fn scratch_bytes_are_what_new_allocates() {
         for (cells, per_site) in [([12, 8, 5], 48), ([600, 600, 2], 24)] {
-            let h = system_of("simple-cubic", cells, 1, true, 1.0);
+            let h = system_of("simple-cubic", cells, 1, [true, true, false], 1.0);
             let bytes = Heun::new(&h, 1).bytes();
             assert_eq!(Heun::scratch_bytes(&h, rayon::current_num_threads()), bytes);
             let rings = bytes - per_site * h.len();

@@ -308,8 +308,9 @@ impl Hamiltonian {
     /// thermal field: `B_i = -(1/(mu_i muB)) dH/dS_i`. Vacant sites get a zero field.
     ///
     /// The range is cut into rows of cells along `a1` (`n1 * basis` consecutive sites). For
-    /// each row and bond the neighbour row is resolved once, so the inner loop over the row
-    /// is `j = base + (c1 + o1) * basis + to`, with a modulo only for the few sites whose
+    /// each row and bond the neighbour row is resolved once (a [`SpinRows`] lookup), so the
+    /// inner loop over the row reads `row[(c1 + o1) * basis + to]`, with a modulo only for
+    /// the few sites whose
     /// neighbour wraps around the row's ends. Each site still adds its bonds in the order of
     /// the bond list, so the result is bitwise that of a plain per-site loop.
     ///

@@ -95,7 +95,7 @@ impl Bands {
 /// One task's ring: the predictor and the scaled noise of `ring` rows of every plane, row
 /// `u` of plane `z` (rows counted without wrapping, so from `-reach`) in slot
 /// `z ring + (u mod ring)`.
-#[derive(Debug, Clone, Default)]
+#[derive(Debug, Clone)]
 pub(super) struct Ring {
     predictor: Vec<Vec3>,
     noise: Vec<Vec3>,

@@ -8,18 +8,36 @@ use crate::units::{lookup_unit, Dimension};
 use spindrift_hamiltonian::{add_shell, DmiKind, Hamiltonian, ShellCoupling, ShellRef, Species};
 use spindrift_lattice::{preset, BasisSite, BondList, Coupling, Crystal, LatticeError, Supercell, Vec3};
 
-/// Bytes of memory a spin costs at most in an `evolve` run: the spins (24) and the
-/// Heun predictor and noise buffers (48), plus a little for observers' scratch; the
-/// lattice header is written and dropped before the run. An upper bound, for refusing
-/// systems that cannot fit before building them: the fused step of large systems holds
-/// 24 bytes less (see `memory_estimate_bytes` in `validate`).
-pub const BYTES_PER_SPIN: u64 = 76;
-
 /// Bytes per spin of an `evolve` run besides the integrator's scratch
-/// (`Heun::scratch_bytes`): the spins (24) and observers' scratch (4). Peak RSS is
-/// measured with `/usr/bin/time -v` by `scripts/bench` (10^7 spins); `check`'s estimate
-/// should match it to 10%.
+/// (`Heun::scratch_bytes`): the spins (24) and observers' scratch (4); the lattice header
+/// is written and dropped before the run. Peak RSS is measured with `/usr/bin/time -v`
+/// by `scripts/bench` (10^7 spins); `check`'s estimate should match it to 10%.
 pub const BYTES_PER_SPIN_HELD: u64 = 28;
+
+/// Bytes per spin that any `evolve` run needs at least: [`BYTES_PER_SPIN_HELD`] and the
+/// second spin array of the fused Heun step (24; small systems need 48 instead). Systems
+/// that cannot fit even so are refused before anything is built; the others once the
+/// exact estimate is known (`validate`).
+pub const BYTES_PER_SPIN_LEAST: u64 = BYTES_PER_SPIN_HELD + 24;
+
+/// The error for a system of `cells` cells of `basis` sites whose memory `estimate`
+/// (bytes; `None` when it overflows) exceeds the `limit`.
+pub(crate) fn too_large(
+    loaded: &Loaded,
+    cells: [usize; 3],
+    basis: usize,
+    estimate: Option<u64>,
+    limit: u64,
+) -> ConfigError {
+    loaded.error_at(
+        "lattice.cells",
+        format!(
+            "{cells:?} cells of {basis} sites need about {} of memory, more than the {} available",
+            estimate.map_or("an unrepresentable amount".to_string(), human_bytes),
+            human_bytes(limit)
+        ),
+    )
+}
 
 /// One coupling entry and what it found, for `check`.
 #[derive(Debug, Clone, PartialEq)]
@@ -146,18 +164,10 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
     let raw = &loaded.raw;
     let (crystal, cells, periodic) = crystal(loaded)?;
     let sites = cells.iter().try_fold(crystal.basis.len() as u64, |acc, &n| acc.checked_mul(n as u64));
-    let estimate = sites.and_then(|s| s.checked_mul(BYTES_PER_SPIN));
-    if let (Some(limit), est) = (memory_limit, estimate) {
-        if est.is_none_or(|e| e > limit) {
-            return Err(loaded.error_at(
-                "lattice.cells",
-                format!(
-                    "{cells:?} cells of {} sites need about {} of memory, more than the {} available",
-                    crystal.basis.len(),
-                    est.map_or("an unrepresentable amount".to_string(), human_bytes),
-                    human_bytes(limit)
-                ),
-            ));
+    let least = sites.and_then(|s| s.checked_mul(BYTES_PER_SPIN_LEAST));
+    if let (Some(limit), least) = (memory_limit, least) {
+        if least.is_none_or(|e| e > limit) {
+            return Err(too_large(loaded, cells, crystal.basis.len(), least, limit));
         }
     }
     let seed = raw.seed.unwrap_or(0);

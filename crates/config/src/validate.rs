@@ -52,6 +52,15 @@ pub fn validate(loaded: &Loaded, memory_limit: Option<u64>) -> Result<Validated,
         + Heun::scratch_bytes(&h, threads) as u64
         + bonds * 160
         + 4096;
+    if let Some(limit) = memory_limit.filter(|&limit| memory_estimate_bytes > limit) {
+        return Err(system::too_large(
+            loaded,
+            h.cell().cells(),
+            h.cell().basis_len(),
+            Some(memory_estimate_bytes),
+            limit,
+        ));
+    }
     Ok(Validated {
         title: loaded.raw.title.clone().unwrap_or_default(),
         seed: loaded.raw.seed.unwrap_or(0),

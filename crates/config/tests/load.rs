@@ -8,7 +8,7 @@ use std::path::{Path, PathBuf};
 use spindrift_config::raw::{
     DmiKind, FerroSign, InitialState, PairListing, Preset, ScanMethod, ScanOrder, StageKind,
 };
-use spindrift_config::{load, load_str, ConfigError, Dimension, Loaded, Quantity};
+use spindrift_config::{load, load_str, validate, ConfigError, Dimension, Loaded, Quantity};
 
 const DEMO: &str = "configs/demo.toml";
 
@@ -379,4 +379,19 @@ fn missing_file_and_syntax_errors_name_the_file() {
 
     let e = load_str("title = \"x\"\n", Path::new(DEMO), &[]).unwrap_err();
     assert_eq!(e.message, "missing key `lattice`");
+}
+
+/// A system is refused once built when its exact memory estimate (what `check` prints)
+/// exceeds the limit, even where the least any run needs per spin would fit; a limit of
+/// exactly the estimate lets it through. (Our own behaviour, as the README's section on
+/// bad input states it; no outside source.)
+#[test]
+fn memory_limit_refuses_with_the_exact_estimate() {
+    let text = "[lattice]\npreset = \"square\"\na = 3.0\ncells = [8, 8, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\n[[exchange]]\nshell = 1\nj = 5.0\n[[stage]]\nkind = \"evolve\"\nduration = 0.01\n";
+    let loaded = load_str(text, Path::new("memory.toml"), &[]).unwrap();
+    let need = validate(&loaded, None).unwrap().memory_estimate_bytes;
+    assert!(64 * spindrift_config::system::BYTES_PER_SPIN_LEAST < need - 1);
+    let e = validate(&loaded, Some(need - 1)).unwrap_err().to_string();
+    assert!(e.contains("lattice.cells") && e.contains("of memory"), "{e}");
+    assert!(validate(&loaded, Some(need)).is_ok());
 }

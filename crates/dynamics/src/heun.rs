@@ -115,14 +115,14 @@ fn add_into(a: &mut [Vec3], b: &[Vec3]) {
     }
 }
 
-/// The corrector over one block: `out[k]` from the old spin `old[k]`, the predictor
-/// `pred[k]` and the field at the predictor `fields[k]`. Branch-free, so that it
-/// vectorises: a failed site keeps its old spin and is marked in `ok`. Returns whether
+/// The corrector over one block: `out[k]` from the old spin `old(k, out[k])`, the
+/// predictor `pred[k]` and the field at the predictor `fields[k]`. Branch-free, so that
+/// it vectorises: a failed site keeps its old spin and is marked in `ok`. Returns whether
 /// every site succeeded.
 #[inline(always)]
 fn correct_block(
     consts: &[SiteConst],
-    old: &[Vec3],
+    mut old: impl FnMut(usize, Vec3) -> Vec3,
     pred: &[Vec3],
     fields: &[Vec3],
     dt: f64,
@@ -131,7 +131,7 @@ fn correct_block(
 ) -> bool {
     let mut all_ok = true;
     for k in 0..out.len() {
-        let (v, good) = corrected(consts[k], old[k], pred[k], fields[k], dt);
+        let (v, good) = corrected(consts[k], old(k, out[k]), pred[k], fields[k], dt);
         out[k] = v;
         ok[k] = good;
         all_ok &= good;
@@ -572,9 +572,13 @@ spindrift_isa::multiversion! {
             if thermal.is_some() {
                 add_into(fields, noise);
             }
-            // The noise is consumed: its slot keeps the pre-step spins from here on.
-            noise.copy_from_slice(out);
-            if !correct_block(consts, noise, &predictor[first..first + len], fields, dt, out, ok) {
+            // The spins are corrected in place; the consumed noise slot keeps each
+            // pre-step spin.
+            let old = |k: usize, s: Vec3| {
+                noise[k] = s;
+                s
+            };
+            if !correct_block(consts, old, &predictor[first..first + len], fields, dt, out, ok) {
                 bad = first_bad(bad, first_failed(ok, occupation, first));
             }
         }

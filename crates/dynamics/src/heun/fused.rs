@@ -235,7 +235,8 @@ spindrift_isa::multiversion! {
             if thermal.is_some() {
                 add_into(fields, noise);
             }
-            if !correct_block(consts, &spins[first..first + len], pred, fields, dt, out, ok) {
+            let old = &spins[first..first + len];
+            if !correct_block(consts, |k, _| old[k], pred, fields, dt, out, ok) {
                 bad = first_bad(bad, first_failed(ok, occupation, first));
             }
         }

@@ -45,8 +45,9 @@ pub fn validate(loaded: &Loaded, memory_limit: Option<u64>) -> Result<Validated,
     let mut warnings = sys.warnings;
     let protocol = protocol::build(loaded, &SystemDefaults { dt, field: h.field() }, &mut warnings)?;
     let bonds: u64 = (0..h.cell().basis_len()).map(|b| h.bonds().from_basis(b).len() as u64).sum();
-    // The rings of the fused step (half a MiB per thread) for as many threads as the
-    // machine runs by default: `--threads` is not known here, and the rings are small.
+    // The rings of the fused step (one per thread; 1.4 MiB each for 1000 x 1000 x 10) for
+    // as many threads as the machine runs by default: `--threads` is not known here, and
+    // the rings are small next to the spins.
     let threads = std::thread::available_parallelism().map_or(1, |n| n.get());
     let memory_estimate_bytes = h.len() as u64 * system::BYTES_PER_SPIN_HELD
         + Heun::scratch_bytes(&h, threads) as u64

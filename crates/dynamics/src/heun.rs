@@ -226,8 +226,10 @@ impl Heun {
         }
     }
 
-    /// Bytes of scratch memory this integrator holds.
-    pub fn bytes(&self) -> usize {
+    /// Bytes of scratch memory this integrator holds (what [`Heun::scratch_bytes`]
+    /// predicts; checked by a unit test).
+    #[cfg(test)]
+    fn bytes(&self) -> usize {
         let v = std::mem::size_of::<Vec3>();
         match &self.buffers {
             Buffers::TwoPass { predictor, noise } => (predictor.len() + noise.len()) * v,

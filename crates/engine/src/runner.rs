@@ -108,7 +108,7 @@ pub struct Runner<'a> {
 
 impl<'a> Runner<'a> {
     /// A runner for a fresh run. The initial state must not be
-    /// [`InitialState::FromRun`] (the caller reads the file and passes the spins).
+    /// [`Initial::FromRun`](crate::Initial::FromRun) (the caller reads the file and passes the spins).
     pub fn new(
         h: Hamiltonian,
         protocol: &'a Protocol,
@@ -307,7 +307,12 @@ impl<'a> Runner<'a> {
             .map_err(|e| EngineError::Setup { stage, message: e.to_string() })?;
         // The total alone, by the faster row kernel: samples need no split by term.
         let total = total_energy.unwrap_or_else(|| self.h.energy_total(&self.spins));
-        Ok((self.m_buf.total, total / self.h.spin_count().max(1) as f64))
+        Ok((self.m_buf.total, self.per_spin(total)))
+    }
+
+    /// A total energy (meV) per spin, as samples record it.
+    pub(crate) fn per_spin(&self, total: f64) -> f64 {
+        total / self.h.spin_count().max(1) as f64
     }
 
     /// Writes a snapshot of the spins.

@@ -107,6 +107,7 @@ impl Ring {
     }
 
     /// Sites it holds.
+    #[cfg(test)]
     pub(super) fn len(&self) -> usize {
         self.predictor.len()
     }

@@ -157,7 +157,7 @@ pub(crate) fn run(
                 let (m, e) = match (&mc, moment, energy) {
                     // Per spin, as `Runner::measure` gives it, without a pass over the spins.
                     (Some(mc), Some(units), Some(total)) => {
-                        (mc.tally().magnetization(units), total / r.h.spin_count().max(1) as f64)
+                        (mc.tally().magnetization(units), r.per_spin(total))
                     }
                     _ => r.measure(energy)?,
                 };

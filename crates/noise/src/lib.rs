@@ -55,22 +55,25 @@
 //!   are independent (Box and Muller 1958), and the tests check the flattened sequence for
 //!   correlation.
 //!
-//!   **Accuracy:** each deviate is within `1.5e-10` of the exact transform of its words;
-//!   that moves its distribution function by at most `6e-11`, half of what the `2^-32`
-//!   discreteness of the words already does (see `transform.rs` for the kernels, their
-//!   errors and the tests against the standard library).
+//!   **Accuracy:** the radius, cosine and sine are computed in single precision, so each
+//!   deviate is within `3.5e-7` times its pair's radius of the exact transform of its words
+//!   (`2.4e-6` at most); that moves its distribution function by at most `1e-6` and its
+//!   variance, the temperature of a thermal field, by at most `1e-6` relative (see
+//!   `transform.rs` for the kernels, their errors and the tests against the standard
+//!   library).
 //!
 //!   **Tail cut-off:** the smallest uniform is `2^-33`, so the Box-Muller radius is at most
-//!   `sqrt(66 ln 2) = 6.7637`, and no deviate exceeds 6.7637 in magnitude (the sines and
-//!   cosines never exceed 1). An exact standard normal exceeds that with probability
-//!   `1.3e-11` per deviate; below it the radial law is exact up to the `2^-32` quantisation
-//!   of `u`.
+//!   `sqrt(66 ln 2) = 6.7637056` (6.7637057 as single precision rounds it), and no deviate
+//!   exceeds that in magnitude (the sines and cosines never exceed 1). An exact standard
+//!   normal exceeds it with probability `1.3e-11` per deviate.
 //! * [`NoiseStream::fill_gaussian3_dense`] evaluates many consecutive sites at once, bit for
 //!   bit equal to the per-site calls, with a scale applied to the radii: Philox on groups
-//!   of 32 sites (24 blocks), then branch-free logarithm and sine/cosine kernels (fitted
-//!   polynomials) that the compiler vectorises. The kernels use only correctly rounded
-//!   IEEE operations and Rust never contracts them into fused multiply-adds, so the numbers
-//!   are also the same on every platform and for every `target-cpu`.
+//!   of 64 sites (48 blocks), then branch-free logarithm and sine/cosine kernels (fitted
+//!   polynomials) that the compiler vectorises, the single-precision parts in loops of
+//!   their own so that they run on sixteen lanes per AVX-512 vector. The kernels use only
+//!   correctly rounded IEEE operations and Rust never contracts them into fused
+//!   multiply-adds, so the numbers are also the same on every platform and for every
+//!   `target-cpu`.
 //! * [`NoiseStream::uniform4`] gives four uniforms `w_i / 2^32` on `[0, 1)`, resolution
 //!   `2^-32` (random initial states).
 //! * [`NoiseStream::trial`] and [`NoiseStream::fill_trial_at`] give the random numbers of
@@ -80,15 +83,15 @@
 //!
 //! # Cost
 //!
-//! Measured on an AMD EPYC (Zen 4) with one thread, filling 256-site blocks as the Heun
-//! step does: `fill_gaussian3_dense` takes about 2.3 ns per site (three deviates) on
-//! x86-64-v4 (AVX-512), of which Philox is about 1.2 ns. An earlier layout with one block
-//! per site and a half-turn sine for the third deviate took 2.7 ns in the same criterion
-//! run (4.4 ns on another day; the baseline x86-64 level is about three times slower than
-//! AVX-512, with the same bits). The bulk functions are compiled for every level of
-//! `spindrift_isa` and run on the widest the CPU has, so the default portable build gets
-//! the faster figures. The loops are bound by the number of vector instructions, so every
-//! polynomial term counts: about 0.1 ns per site.
+//! Measured on an AMD EPYC with one thread, filling 256-site blocks as the Heun step does:
+//! `fill_gaussian3_dense` takes about 1.8 ns per site (three deviates) on x86-64-v4
+//! (AVX-512), of which Philox is about 1.07 ns. The same kernels in double precision took
+//! 2.38 ns in the same criterion run, and an earlier layout with one block per site and a
+//! half-turn sine for the third deviate 2.7 ns on another day (the baseline x86-64 level
+//! is about three times slower than AVX-512, with the same bits). The bulk functions are
+//! compiled for every level of `spindrift_isa` and run on the widest the CPU has, so the
+//! default portable build gets the faster figures. The loops are bound by the number of
+//! vector instructions, so every polynomial term counts.
 //!
 //! All deviates are dimensionless; callers scale them (for example by the thermal field's
 //! standard deviation in tesla).
@@ -111,7 +114,9 @@ mod trial;
 pub use philox::philox4x32_10;
 pub use trial::TrialDraw;
 
-use transform::{gaussian4_from_words, uniform4_from_words};
+use transform::{
+    box_muller_radius, cos_sin_turn32, gaussian4_from_words, pair_from_parts, uniform4_from_words,
+};
 
 /// Stream id of the stochastic LLG thermal field.
 pub const STREAM_LLG_THERMAL: u32 = 0;
@@ -126,7 +131,7 @@ const LANES: usize = 16;
 
 /// Sites per group in [`NoiseStream::fill_gaussian3_dense`]: a multiple of four whose
 /// blocks fill whole vectors of eight lanes.
-const DENSE_SITES: usize = 32;
+const DENSE_SITES: usize = 64;
 /// Philox blocks per dense group.
 const DENSE_BLOCKS: usize = DENSE_SITES / 4 * 3;
 
@@ -171,7 +176,8 @@ impl NoiseStream {
     /// Three independent standard normal deviates for `(step, site)` in the dense layout
     /// (see the crate documentation): deviates `3 site .. 3 site + 2` of the step's
     /// sequence, four per Philox block, so that four sites share three blocks. Magnitudes
-    /// never exceed 6.7637 (see the crate documentation for this cut-off and the accuracy).
+    /// never exceed 6.7637057 (see the crate documentation for this cut-off and the
+    /// accuracy).
     #[inline]
     pub fn gaussian3_dense(&self, step: u64, site: u64) -> [f64; 3] {
         self.dense_site(step, site, 1.0)
@@ -225,10 +231,23 @@ impl NoiseStream {
         let mut groups = rest.chunks_exact_mut(DENSE_SITES);
         for group in &mut groups {
             let w = self.words_lanes::<DENSE_BLOCKS>(step, site / 4 * 3);
+            // The single-precision parts in loops of their own, so that they run on twice as
+            // many lanes per vector as the double-precision products after them.
+            let mut r = [[0f32; DENSE_BLOCKS]; 2];
+            let mut cs = [[0f32; DENSE_BLOCKS]; 4];
+            for j in 0..DENSE_BLOCKS {
+                r[0][j] = box_muller_radius(w[0][j]);
+                r[1][j] = box_muller_radius(w[2][j]);
+            }
+            for j in 0..DENSE_BLOCKS {
+                (cs[0][j], cs[1][j]) = cos_sin_turn32(w[1][j]);
+                (cs[2][j], cs[3][j]) = cos_sin_turn32(w[3][j]);
+            }
             let flat = group.as_flattened_mut();
             for j in 0..DENSE_BLOCKS {
-                let g = gaussian4_from_words([w[0][j], w[1][j], w[2][j], w[3][j]], scale);
-                flat[4 * j..4 * j + 4].copy_from_slice(&g);
+                let [a, b] = pair_from_parts(r[0][j], cs[0][j], cs[1][j], scale);
+                let [c, d] = pair_from_parts(r[1][j], cs[2][j], cs[3][j], scale);
+                flat[4 * j..4 * j + 4].copy_from_slice(&[a, b, c, d]);
             }
             site += DENSE_SITES as u64;
         }

@@ -146,7 +146,8 @@ fn normal_moments_and_tails() {
                 let se = (p * (1.0 - p) / n).sqrt();
                 assert!((frac - p).abs() < 5.0 * se, "P(|z| > {k}) = {frac}, expected {p}");
             }
-            assert!(x.iter().all(|v| v.abs() <= 6.763_705_636));
+            // The cut-off sqrt(66 ln 2) = 6.7637056 as the single-precision radius rounds it.
+            assert!(x.iter().all(|v| v.abs() <= 6.763_706));
         }
     }
 }

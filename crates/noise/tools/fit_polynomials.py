@@ -4,11 +4,12 @@ arctangent in crates/observe/src/atan2.rs, the last fit below).
 
 Each kernel is a polynomial in z = x^2 (or z = s^2 for the logarithm) fitted by the Remez
 exchange algorithm to minimise the maximum absolute error of the stated function on the
-stated interval, in 60-digit arithmetic (mpmath), then rounded to double. The Rust tests
+stated interval, in 60-digit arithmetic (mpmath), then rounded to double (or to single
+precision, for the kernels of the thermal noise: `show32`). The Rust tests
 check the resulting kernels against the standard library, so this script only documents
 where the numbers come from; it is not run by the build.
 
-Usage: python3 fit_polynomials.py   (needs mpmath)
+Usage: python3 fit_polynomials.py   (needs mpmath, and numpy for the single-precision fits)
 """
 import mpmath as mp
 
@@ -82,6 +83,16 @@ def show(name, coefs):
     print("];")
 
 
+def show32(name, coefs, factor=1):
+    """Coefficients rounded to single precision (via numpy, which rounds to nearest)."""
+    import numpy as np
+
+    print(f"const {name}: [f32; {len(coefs)}] = [")
+    for c in coefs:
+        print(f"    {str(np.float32(float(factor * c)))},")
+    print("];")
+
+
 # ln m = 2 s (1 + z P(z)), s = (m - 1)/(m + 1), z = s^2, m in [sqrt(1/2), sqrt(2)).
 z_ln = (3 - 2 * mp.sqrt(2)) ** 2
 ln_p, e = remez(at_zero_or(mp.mpf(1) / 3, atanh_series), 0, z_ln, 3)
@@ -102,3 +113,16 @@ z_t = mp.tan(mp.pi / 8) ** 2
 atan_p, e = remez(at_zero_or(-mp.mpf(1) / 3, atan_series), 0, z_t, 9)
 print(f"// (atan(u)/u - 1)/z on |u| <= tan(pi/8): max error {float(e):.3g}")
 show("ATAN_P", atan_p)
+
+# Single precision, for the Gaussian deviates of the thermal noise (transform.rs): one
+# degree less in each kernel; the fits' errors stay far below the rounding of 2^-24.
+# The logarithm's constant is printed as Q = -4 (1 + z P): the leading -4 and then -4 P.
+ln_p32, e = remez(at_zero_or(mp.mpf(1) / 3, atanh_series), 0, z_ln, 2)
+print(f"// (atanh(s)/s - 1)/z, quadratic: max error {float(e):.3g}")
+show32("RADIUS_Q (after the leading -4.0)", ln_p32, -4)
+sin_s32, e = remez(at_zero_or(-mp.mpf(1) / 6, sine_series), 0, z_q, 2)
+print(f"// (sin x - x)/x^3, quadratic: max error {float(e):.3g}")
+show32("SIN_C32", sin_s32)
+cos_c32, e = remez(at_zero_or(-mp.mpf(1) / 2, cosine_series), 0, z_q, 3)
+print(f"// (cos x - 1)/x^2, cubic: max error {float(e):.3g}")
+show32("COS_C32", cos_c32)

@@ -17,7 +17,7 @@ use crate::species::Species;
 use crate::term::Term;
 use crate::zeeman::Zeeman;
 use rayon::prelude::*;
-use spindrift_lattice::{cross, dot, BondList, Supercell, Vec3};
+use spindrift_lattice::{cross, dot, wrap_index, BondList, Supercell, Vec3};
 
 mod trials;
 
@@ -413,7 +413,7 @@ impl Hamiltonian {
                     let n = cells[k + 1] as i64;
                     let x = c23[k] as i64 + bond.offset[k + 1] as i64;
                     if periodic[k + 1] {
-                        t[k] = x.rem_euclid(n) as usize;
+                        t[k] = wrap_index(x, n) as usize;
                     } else if x < 0 || x >= n {
                         cut = true;
                     } else {
@@ -916,7 +916,7 @@ fn add_iso(o: &mut Vec3, s: &Vec3, j: f64) {
 #[inline(always)]
 fn wrap(x: i64, n: i64, periodic: bool) -> Option<i64> {
     if periodic {
-        Some(x.rem_euclid(n))
+        Some(wrap_index(x, n))
     } else if x < 0 || x >= n {
         None
     } else {

@@ -18,6 +18,7 @@ mod hash;
 pub mod shells;
 mod supercell;
 mod vec3;
+mod wrap;
 
 pub use bonds::{Bond, BondList, Coupling};
 pub use crystal::{preset, BasisSite, Crystal, PRESETS};
@@ -25,3 +26,4 @@ pub use error::LatticeError;
 pub use hash::unit_hash;
 pub use supercell::Supercell;
 pub use vec3::{cross, dot, norm, Vec3};
+pub use wrap::wrap_index;

@@ -136,7 +136,7 @@ impl Supercell {
             let n = self.cells[k] as i64;
             let x = c[k] as i64 + offset[k] as i64;
             t[k] = if self.periodic[k] {
-                x.rem_euclid(n) as usize
+                crate::wrap_index(x, n) as usize
             } else if x < 0 || x >= n {
                 return None;
             } else {

@@ -20,7 +20,7 @@
 use super::{add_into, correct_block, first_bad, first_failed, predictor_chunk, StepContext, BLOCK};
 use rayon::prelude::*;
 use spindrift_hamiltonian::{Hamiltonian, SpinRows};
-use spindrift_lattice::Vec3;
+use spindrift_lattice::{wrap_index, Vec3};
 
 /// The geometry of the fused step.
 #[derive(Debug, Clone, Copy)]
@@ -128,8 +128,8 @@ impl RingRows<'_> {
     #[inline(always)]
     fn offset(&self, c2: usize, c3: usize) -> usize {
         // The one unwrapped row in the window `lo .. lo + ring` that is row c2.
-        let u = self.lo + (c2 as i64 - self.lo).rem_euclid(self.ny);
-        (c3 * self.ring + u.rem_euclid(self.ring as i64) as usize) * self.row
+        let u = self.lo + wrap_index(c2 as i64 - self.lo, self.ny);
+        (c3 * self.ring + wrap_index(u, self.ring as i64) as usize) * self.row
     }
 }
 
@@ -158,8 +158,8 @@ pub(super) fn run_task(
         if !periodic_y && !(0..ny_i).contains(&u) {
             return; // No such row: no bond reaches it.
         }
-        let y = u.rem_euclid(ny_i) as usize;
-        let slot = u.rem_euclid(ring_rows as i64) as usize;
+        let y = wrap_index(u, ny_i) as usize;
+        let slot = wrap_index(u, ring_rows as i64) as usize;
         for z in 0..nz {
             let first = (z * ny + y) * row;
             let at = (z * ring_rows + slot) * row;

@@ -30,7 +30,7 @@
 //! own; a Monte Carlo colour class split by basis site needs one pass.
 
 use super::{FusedBond, Hamiltonian};
-use spindrift_lattice::{dot, Vec3};
+use spindrift_lattice::{dot, wrap_index, Vec3};
 
 /// Sites per block: the per-site arrays of a block (about 4 KiB) stay in L1.
 pub(super) const LANES: usize = 64;
@@ -113,7 +113,7 @@ impl AxisStep {
         let n = n as i64;
         let o = i64::from(o);
         if periodic {
-            let add = o.rem_euclid(n);
+            let add = wrap_index(o, n);
             Self { lo: 0, hi: n as u32, add: add as u32, wrap: (n - add) as u32 }
         } else {
             let lo = (-o).clamp(0, n);

@@ -1,6 +1,6 @@
 #!/usr/bin/env python3
 """Regenerates the polynomial coefficients of crates/noise/src/transform.rs (and of the
-arctangent in crates/observe/src/atan2.rs, the last fit below).
+arctangent in crates/observe/src/atan2.rs).
 
 Each kernel is a polynomial in z = x^2 (or z = s^2 for the logarithm) fitted by the Remez
 exchange algorithm to minimise the maximum absolute error of the stated function on the
@@ -93,36 +93,30 @@ def show32(name, coefs, factor=1):
     print("];")
 
 
-# ln m = 2 s (1 + z P(z)), s = (m - 1)/(m + 1), z = s^2, m in [sqrt(1/2), sqrt(2)).
-z_ln = (3 - 2 * mp.sqrt(2)) ** 2
-ln_p, e = remez(at_zero_or(mp.mpf(1) / 3, atanh_series), 0, z_ln, 3)
-print(f"// (atanh(s)/s - 1)/z on [0, {float(z_ln):.6f}]: max error {float(e):.3g}")
-show("LN_P", ln_p)
+def fit(label, at_zero, series, interval, degree):
+    """The minimax polynomial of `series` on [0, interval], its error printed under `label`."""
+    coefs, e = remez(at_zero_or(at_zero, series), 0, interval, degree)
+    print(f"// {label}: max error {float(e):.3g}")
+    return coefs
 
-# sin x = x + x z S(z) and cos x = 1 + z C(z) for |x| <= pi/4.
-z_q = (mp.pi / 4) ** 2
-sin_s, e = remez(at_zero_or(-mp.mpf(1) / 6, sine_series), 0, z_q, 3)
-print(f"// (sin x - x)/x^3 on |x| <= pi/4: max error {float(e):.3g}")
-show("SIN_C", sin_s)
-cos_c, e = remez(at_zero_or(-mp.mpf(1) / 2, cosine_series), 0, z_q, 4)
-print(f"// (cos x - 1)/x^2 on |x| <= pi/4: max error {float(e):.3g}")
-show("COS_C", cos_c)
+
+z_ln = (3 - 2 * mp.sqrt(2)) ** 2  # s^2 at most, for m in [sqrt(1/2), sqrt(2))
+z_q = (mp.pi / 4) ** 2  # x^2 at most, for |x| <= pi/4
+z_t = mp.tan(mp.pi / 8) ** 2  # u^2 at most, for |u| <= tan(pi/8)
+
+# Double precision: sin x = x + x z S(z) and cos x = 1 + z C(z) for |x| <= pi/4 (the
+# Monte Carlo trial directions).
+show("SIN_C", fit("(sin x - x)/x^3 on |x| <= pi/4", -mp.mpf(1) / 6, sine_series, z_q, 3))
+show("COS_C", fit("(cos x - 1)/x^2 on |x| <= pi/4", -mp.mpf(1) / 2, cosine_series, z_q, 4))
 
 # atan u = u + u z P(z) for |u| <= tan(pi/8) (crates/observe/src/atan2.rs).
-z_t = mp.tan(mp.pi / 8) ** 2
-atan_p, e = remez(at_zero_or(-mp.mpf(1) / 3, atan_series), 0, z_t, 9)
-print(f"// (atan(u)/u - 1)/z on |u| <= tan(pi/8): max error {float(e):.3g}")
-show("ATAN_P", atan_p)
+show("ATAN_P", fit("(atan(u)/u - 1)/z on |u| <= tan(pi/8)", -mp.mpf(1) / 3, atan_series, z_t, 9))
 
-# Single precision, for the Gaussian deviates of the thermal noise (transform.rs): one
-# degree less in each kernel; the fits' errors stay far below the rounding of 2^-24.
-# The logarithm's constant is printed as Q = -4 (1 + z P): the leading -4 and then -4 P.
-ln_p32, e = remez(at_zero_or(mp.mpf(1) / 3, atanh_series), 0, z_ln, 2)
-print(f"// (atanh(s)/s - 1)/z, quadratic: max error {float(e):.3g}")
-show32("RADIUS_Q (after the leading -4.0)", ln_p32, -4)
-sin_s32, e = remez(at_zero_or(-mp.mpf(1) / 6, sine_series), 0, z_q, 2)
-print(f"// (sin x - x)/x^3, quadratic: max error {float(e):.3g}")
-show32("SIN_C32", sin_s32)
-cos_c32, e = remez(at_zero_or(-mp.mpf(1) / 2, cosine_series), 0, z_q, 3)
-print(f"// (cos x - 1)/x^2, cubic: max error {float(e):.3g}")
-show32("COS_C32", cos_c32)
+# Single precision, for the Gaussian deviates of the thermal noise: one degree less than
+# double precision would need; the fits' errors stay far below the rounding of 2^-24.
+# ln m = 2 s (1 + z P(z)), s = (m - 1)/(m + 1), z = s^2; the radius kernel uses
+# Q = -4 (1 + z P), printed here after its leading -4.0.
+ln_p = fit("(atanh(s)/s - 1)/z, quadratic", mp.mpf(1) / 3, atanh_series, z_ln, 2)
+show32("RADIUS_Q (after the leading -4.0)", ln_p, -4)
+show32("SIN_C32", fit("(sin x - x)/x^3, quadratic", -mp.mpf(1) / 6, sine_series, z_q, 2))
+show32("COS_C32", fit("(cos x - 1)/x^2, cubic", -mp.mpf(1) / 2, cosine_series, z_q, 3))

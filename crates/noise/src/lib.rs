@@ -86,11 +86,11 @@
 //! Measured on an AMD EPYC with one thread, filling 256-site blocks as the Heun step does:
 //! `fill_gaussian3_dense` takes about 1.8 ns per site (three deviates) on x86-64-v4
 //! (AVX-512), of which Philox is about 1.07 ns. The same kernels in double precision took
-//! 2.38 ns in criterion runs of the same afternoon, and an earlier layout with one block per site and a
-//! half-turn sine for the third deviate 2.7 ns on another day (the baseline x86-64 level
-//! is about three times slower than AVX-512, with the same bits). The bulk functions are
-//! compiled for every level of `spindrift_isa` and run on the widest the CPU has, so the
-//! default portable build gets the faster figures. The loops are bound by the number of
+//! 2.38 ns in criterion runs of the same afternoon, and an earlier layout with one block
+//! per site and a half-turn sine for the third deviate 2.7 ns on another day. The
+//! baseline x86-64 level (SSE2) takes 6.8 ns, 3.7 times as long, with the same bits. The
+//! bulk functions are compiled for every level of `spindrift_isa` and run on the widest
+//! the CPU has, so the default portable build gets the faster figures. The loops are bound by the number of
 //! vector instructions, so every polynomial term counts.
 //!
 //! All deviates are dimensionless; callers scale them (for example by the thermal field's

@@ -17,7 +17,7 @@ use crate::species::Species;
 use crate::term::Term;
 use crate::zeeman::Zeeman;
 use rayon::prelude::*;
-use spindrift_lattice::{cross, dot, wrap_index, BondList, Supercell, Vec3};
+use spindrift_lattice::{cross, dot, wrap_coordinate, BondList, Supercell, Vec3};
 
 mod trials;
 
@@ -309,10 +309,9 @@ impl Hamiltonian {
     ///
     /// The range is cut into rows of cells along `a1` (`n1 * basis` consecutive sites). For
     /// each row and bond the neighbour row is resolved once (a [`SpinRows`] lookup), so the
-    /// inner loop over the row reads `row[(c1 + o1) * basis + to]`, with a modulo only for
-    /// the few sites whose
-    /// neighbour wraps around the row's ends. Each site still adds its bonds in the order of
-    /// the bond list, so the result is bitwise that of a plain per-site loop.
+    /// inner loop over the row reads `row[(c1 + o1) * basis + to]`, with a wrap only for the
+    /// few sites whose neighbour wraps around the row's ends. Each site still adds its bonds
+    /// in the order of the bond list, so the result is bitwise that of a plain per-site loop.
     ///
     /// Compiled for each instruction-set level and run on the widest the CPU has (see
     /// `spindrift_isa`); the bits are the same on every level.
@@ -410,14 +409,10 @@ impl Hamiltonian {
                 let mut t = [0usize; 2];
                 let mut cut = false;
                 for k in 0..2 {
-                    let n = cells[k + 1] as i64;
                     let x = c23[k] as i64 + bond.offset[k + 1] as i64;
-                    if periodic[k + 1] {
-                        t[k] = wrap_index(x, n) as usize;
-                    } else if x < 0 || x >= n {
-                        cut = true;
-                    } else {
-                        t[k] = x as usize;
+                    match wrap_coordinate(x, cells[k + 1] as i64, periodic[k + 1]) {
+                        Some(y) => t[k] = y as usize,
+                        None => cut = true,
                     }
                 }
                 if cut {
@@ -833,7 +828,7 @@ impl RowPass<'_> {
         let k = (c1 * self.nb + self.shift) as usize;
         let mut h = if FRESH { [0.0; 3] } else { out[k] };
         for r in pack {
-            if let Some(t1) = wrap(c1 + r.o1, self.n1, self.periodic) {
+            if let Some(t1) = wrap_coordinate(c1 + r.o1, self.n1, self.periodic) {
                 add_bond::<KIND>(&mut h, &r.row[(t1 * self.nb) as usize], &r.m, r.iso.unwrap_or(0.0));
             }
         }
@@ -908,19 +903,6 @@ fn add_matrix(o: &mut Vec3, s: &Vec3, m: &[Vec3; 3]) {
 fn add_iso(o: &mut Vec3, s: &Vec3, j: f64) {
     for a in 0..3 {
         o[a] += j * s[a];
-    }
-}
-
-/// Cell coordinate `x` along an axis of `n` cells: wrapped when periodic, `None` when an
-/// open face cuts it off.
-#[inline(always)]
-fn wrap(x: i64, n: i64, periodic: bool) -> Option<i64> {
-    if periodic {
-        Some(wrap_index(x, n))
-    } else if x < 0 || x >= n {
-        None
-    } else {
-        Some(x)
     }
 }
 

@@ -26,4 +26,4 @@ pub use error::LatticeError;
 pub use hash::unit_hash;
 pub use supercell::Supercell;
 pub use vec3::{cross, dot, norm, Vec3};
-pub use wrap::wrap_index;
+pub use wrap::{wrap_coordinate, wrap_index};

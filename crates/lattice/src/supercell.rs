@@ -133,15 +133,8 @@ impl Supercell {
     pub fn neighbour(&self, c: [usize; 3], offset: [i32; 3], to: usize) -> Option<usize> {
         let mut t = [0usize; 3];
         for k in 0..3 {
-            let n = self.cells[k] as i64;
             let x = c[k] as i64 + offset[k] as i64;
-            t[k] = if self.periodic[k] {
-                crate::wrap_index(x, n) as usize
-            } else if x < 0 || x >= n {
-                return None;
-            } else {
-                x as usize
-            };
+            t[k] = crate::wrap_coordinate(x, self.cells[k] as i64, self.periodic[k])? as usize;
         }
         Some(self.index(t, to))
     }

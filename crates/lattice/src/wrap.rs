@@ -25,6 +25,19 @@ pub fn wrap_index(x: i64, n: i64) -> i64 {
     }
 }
 
+/// Cell coordinate `x` along an axis of `n` cells: wrapped (by [`wrap_index`]) when the
+/// axis is periodic, `None` when an open face cuts it off.
+#[inline(always)]
+pub fn wrap_coordinate(x: i64, n: i64, periodic: bool) -> Option<i64> {
+    if periodic {
+        Some(wrap_index(x, n))
+    } else if x < 0 || x >= n {
+        None
+    } else {
+        Some(x)
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -41,6 +54,16 @@ mod tests {
             for x in [i64::MIN, i64::MIN + 1, i64::MAX - 1, i64::MAX] {
                 assert_eq!(wrap_index(x, n), x.rem_euclid(n), "{x} mod {n}");
             }
+        }
+    }
+
+    // Open axes keep coordinates inside the box and cut the rest; periodic ones wrap.
+    // (Our own convention, as INTERFACE.md's `periodic` key describes it.)
+    #[test]
+    fn open_axes_cut_and_periodic_axes_wrap() {
+        for x in -9..18 {
+            assert_eq!(wrap_coordinate(x, 7, true), Some(x.rem_euclid(7)));
+            assert_eq!(wrap_coordinate(x, 7, false), (0..7).contains(&x).then_some(x));
         }
     }
 }

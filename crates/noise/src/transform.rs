@@ -55,6 +55,7 @@
 //! tolerances.
 
 use std::f64::consts::{LN_2, PI};
+use std::ops::{Add, Mul};
 
 /// 2^-32.
 const TWO_POW_M32: f64 = 1.0 / 4_294_967_296.0;
@@ -117,7 +118,7 @@ fn minus_two_ln_scaled<const SCALE: i32>(v: f64) -> f32 {
     // accuracy however close m is to 1.
     let f = (m - 1.0) as f32;
     let s = f / (2.0 + f);
-    s * horner32(&RADIUS_Q, s * s) + e * MINUS_TWO_LN_2
+    s * horner(&RADIUS_Q, s * s) + e * MINUS_TWO_LN_2
 }
 
 /// Natural logarithm of a positive, finite, normal `v` (for the tests).
@@ -155,19 +156,10 @@ const COS_C: [f64; 5] = [
     2.47998628572598e-05,
     -2.7237194487682744e-07,
 ];
-/// `c[0] + c[1] z + c[2] z^2 + ...` by Horner's rule.
+/// `c[0] + c[1] z + c[2] z^2 + ...` by Horner's rule, in the precision of `T` (`f64` or
+/// `f32`).
 #[inline(always)]
-fn horner(c: &[f64], z: f64) -> f64 {
-    let mut p = c[c.len() - 1];
-    for k in (0..c.len() - 1).rev() {
-        p = c[k] + z * p;
-    }
-    p
-}
-
-/// `c[0] + c[1] z + c[2] z^2 + ...` by Horner's rule, in single precision.
-#[inline(always)]
-fn horner32(c: &[f32], z: f32) -> f32 {
+fn horner<T: Copy + Add<Output = T> + Mul<Output = T>>(c: &[T], z: T) -> T {
     let mut p = c[c.len() - 1];
     for k in (0..c.len() - 1).rev() {
         p = c[k] + z * p;
@@ -186,7 +178,7 @@ const COS_C32: [f32; 4] = [-0.5, 0.041_666_65, -0.001_388_759, 2.446_388_7e-5];
 #[inline(always)]
 pub(crate) fn cos_sin_reduced32(x: f32) -> (f32, f32) {
     let z = x * x;
-    (1.0 + z * horner32(&COS_C32, z), x + x * (z * horner32(&SIN_C32, z)))
+    (1.0 + z * horner(&COS_C32, z), x + x * (z * horner(&SIN_C32, z)))
 }
 
 /// `pi 2^-32`, rounded to single precision.

@@ -5,7 +5,9 @@
 //! `-dE/dS_i = sum_j M_ij S_j`: `M = J 1 + T + [D]x` where `[D]x S = S x D`. Exchange and
 //! DMI then cost the same nine multiply-adds per bond, with no branch on the kind of
 //! coupling. The matrix is stored already divided by `mu_i muB`, so the sum is the
-//! effective field in tesla.
+//! effective field in tesla. The row kernel of the field takes a bond and its opposite
+//! together where the couplings allow (see [`Entry`]), which saves a third of the work on
+//! exchange-plus-DMI bonds.
 
 use crate::anisotropy::Anisotropy;
 use crate::constants::MU_B;
@@ -90,6 +92,89 @@ struct FusedBond {
     tensor: Option<[Vec3; 3]>,
 }
 
+/// One term of a site's bond sum in the row kernel (see `Hamiltonian::field_row`): a
+/// single bond, or a bond and its opposite taken together.
+///
+/// A bond to `offset` whose matrix is `M = j 1 + A` (isotropic exchange plus DMI: `A`
+/// antisymmetric) and a bond to the same basis site at `-offset` whose matrix is `M^T =
+/// j 1 - A`, as translation symmetry gives every same-sublattice pair, add
+/// `M s+ + M^T s- = j (s+ + s-) + A (s+ - s-)` to the sum: with `A` written as the vector
+/// `e = (A_yz, A_zx, A_xy)`, 9 to 15 products and sums per pair of bonds instead of 12 to
+/// 18 per bond (the same sum, grouped otherwise, so its last bits differ from the
+/// bond-by-bond sum). Bonds with an anisotropic tensor, and bonds without an opposite,
+/// stay single.
+#[derive(Debug, Clone, Copy)]
+struct Entry {
+    /// [`MATRIX`], [`IN_PLANE`] or [`ISO`] for a single bond; [`PAIR`], [`PAIR_PLANAR`] or
+    /// [`PAIR_ISO`] for a pair.
+    kind: u8,
+    /// The bond, an index into the basis site's [`FusedBond`]s ...
+    bond: usize,
+    /// ... and for a pair its opposite (for a single bond, the bond again).
+    opposite: usize,
+    /// Pairs: `j`, T per unit spin (already divided by `mu muB`, as `M`).
+    j: f64,
+    /// Pairs: `e = (A_yz, A_zx, A_xy)`, T per unit spin.
+    e: Vec3,
+}
+
+/// The row kernel's terms for one basis site's bonds `fused`: each bond paired with the
+/// first later bond that is its opposite (see [`Entry`]), the rest single; grouped by kind
+/// (in list order within a kind), so that the kernel's packs of one kind are as long as
+/// they can be.
+fn entries_of(fused: &[FusedBond]) -> Vec<Entry> {
+    let transpose =
+        |m: &[Vec3; 3]| -> [Vec3; 3] { std::array::from_fn(|a| std::array::from_fn(|b| m[b][a])) };
+    // `M = j 1 + A` with `A` antisymmetric, exactly.
+    let split = |m: &[Vec3; 3]| -> Option<(f64, Vec3)> {
+        let j = m[0][0];
+        let ok =
+            m[1][1] == j && m[2][2] == j && (0..3).all(|a| (0..3).all(|b| a == b || m[a][b] == -m[b][a]));
+        ok.then_some((j, [m[1][2], m[2][0], m[0][1]]))
+    };
+    let mut used = vec![false; fused.len()];
+    let mut entries = Vec::with_capacity(fused.len());
+    for (p, bond) in fused.iter().enumerate() {
+        if used[p] {
+            continue;
+        }
+        used[p] = true;
+        let negated = bond.offset.map(|o| -o);
+        let opposite = split(&bond.m).and_then(|je| {
+            let q = (p + 1..fused.len()).find(|&q| {
+                let other = &fused[q];
+                !used[q] && other.to == bond.to && other.offset == negated && other.m == transpose(&bond.m)
+            })?;
+            Some((q, je))
+        });
+        entries.push(match opposite {
+            Some((q, (j, e))) => {
+                used[q] = true;
+                let kind = if e == [0.0; 3] {
+                    PAIR_ISO
+                } else if e[2] == 0.0 {
+                    PAIR_PLANAR
+                } else {
+                    PAIR
+                };
+                Entry { kind, bond: p, opposite: q, j, e }
+            }
+            None => {
+                let kind = if bond.iso.is_some() {
+                    ISO
+                } else if bond.m[0][1] == 0.0 && bond.m[1][0] == 0.0 {
+                    IN_PLANE
+                } else {
+                    MATRIX
+                };
+                Entry { kind, bond: p, opposite: p, j: bond.iso.unwrap_or(0.0), e: [0.0; 3] }
+            }
+        });
+    }
+    entries.sort_by_key(|e| e.kind);
+    entries
+}
+
 /// A spin system: supercell, species, couplings and applied field.
 #[derive(Debug, Clone)]
 pub struct Hamiltonian {
@@ -101,6 +186,12 @@ pub struct Hamiltonian {
     anisotropy: Anisotropy,
     zeeman: Zeeman,
     fused: Vec<Vec<FusedBond>>,
+    /// The terms of each basis site's bond sum in the row kernel: bonds paired with their
+    /// opposites where the couplings allow, grouped by kind.
+    entries: Vec<Vec<Entry>>,
+    /// One row of zero spins (`n1 * nb`): what the row kernel reads for the side of a pair
+    /// that an open face cuts.
+    zeros: Vec<Vec3>,
     /// `mu muB` per basis site, meV/T.
     mu_mev: Vec<f64>,
     /// `2 k / (mu muB)` per basis site, T.
@@ -164,7 +255,7 @@ impl Hamiltonian {
             .collect();
         let k_field: Vec<f64> = (0..nb).map(|b| 2.0 * k[b] / mu_mev[b]).collect();
         let [n1, n2, _] = cell.cells();
-        let fused = (0..nb)
+        let fused: Vec<Vec<FusedBond>> = (0..nb)
             .map(|b| {
                 let mut fused = bonds
                     .from_basis(b)
@@ -203,6 +294,8 @@ impl Hamiltonian {
                 fused
             })
             .collect();
+        let entries = fused.iter().map(|f: &Vec<FusedBond>| entries_of(f)).collect();
+        let zeros = vec![[0.0; 3]; n1 * nb];
         let moments = basis_species.iter().map(|s| s.moment).collect();
         let spin_count = cell.spin_count();
         let flat_onsite = flat_onsite(&k_field, &axis, field);
@@ -215,6 +308,8 @@ impl Hamiltonian {
             species,
             bonds,
             fused,
+            entries,
+            zeros,
             mu_mev,
             k_field,
             k,
@@ -358,15 +453,14 @@ impl Hamiltonian {
     /// `(*, c2, c3)` that starts at site `row_start`: the bond sum, plus the on-site terms
     /// when `ONSITE` (`(h + p e) + B`, the order the per-site sum has always used).
     ///
-    /// For each basis site the row's bonds are resolved once to their neighbour rows, then
-    /// applied in packs of up to [`PACK`] consecutive bonds of one kind (matrix or
-    /// isotropic; a matrix pack whose bonds all have `M_xy = M_yx = 0` skips those two
-    /// products, see [`IN_PLANE`]): one pass over the row per pack, whose loop body adds
-    /// the pack's bonds to the site's sum in list order, so that it vectorises and reads
-    /// and writes `out` once per pack rather than once per bond. Cells whose neighbour
-    /// across a bond of the pack
-    /// wraps around the row's ends go one by one. Every site adds its bonds in list order
-    /// either way, so the result is bitwise that of a plain per-site loop.
+    /// For each basis site the row's entries (single bonds and pairs of opposite bonds,
+    /// see [`Entry`]) are resolved once to their neighbour rows, then applied in packs of
+    /// up to [`PACK`] consecutive entries of one kind (see [`MATRIX`] and what follows):
+    /// one pass over the row per pack, whose loop body adds the pack's entries to the
+    /// site's sum in order, so that it vectorises and reads and writes `out` once per pack
+    /// rather than once per bond. Cells whose neighbour across a bond of the pack wraps
+    /// around the row's ends go one by one. Every site adds its entries in the same order
+    /// either way, so the result is bitwise that of a plain per-site loop over the entries.
     #[inline(always)]
     fn field_row<const ONSITE: bool, R: SpinRows>(
         &self,
@@ -404,27 +498,37 @@ impl Hamiltonian {
                 n1,
                 periodic: periodic[0],
             };
-            for bond in &self.fused[b] {
-                // The neighbour row, or none where an open face cuts the bond.
+            // The neighbour row of a bond, or none where an open face cuts it.
+            let resolve = |bond: &FusedBond| -> Option<&[Vec3]> {
                 let mut t = [0usize; 2];
-                let mut cut = false;
                 for k in 0..2 {
                     let x = c23[k] as i64 + bond.offset[k + 1] as i64;
-                    match wrap_coordinate(x, cells[k + 1] as i64, periodic[k + 1]) {
-                        Some(y) => t[k] = y as usize,
-                        None => cut = true,
+                    t[k] = wrap_coordinate(x, cells[k + 1] as i64, periodic[k + 1])? as usize;
+                }
+                Some(&rows.row(t[0], t[1])[bond.to..])
+            };
+            let bonds = &self.fused[b];
+            for entry in &self.entries[b] {
+                let (bond, opposite) = (&bonds[entry.bond], &bonds[entry.opposite]);
+                let (near, far) = match (resolve(bond), is_pair(entry.kind).then(|| resolve(opposite))) {
+                    (Some(r), None) => (r, r),
+                    (None, None | Some(None)) => continue,
+                    // A pair with one side cut reads zeros there: `M 0` adds nothing.
+                    (r, Some(r2)) => {
+                        (r.unwrap_or(&self.zeros[bond.to..]), r2.unwrap_or(&self.zeros[opposite.to..]))
                     }
-                }
-                if cut {
-                    continue;
-                }
-                let next = RowBond {
-                    row: &rows.row(t[0], t[1])[bond.to..],
-                    o1: bond.offset[0] as i64,
-                    m: bond.m,
-                    iso: bond.iso,
                 };
-                if len == PACK || (len > 0 && pack[0].iso.is_some() != next.iso.is_some()) {
+                let next = RowBond {
+                    row: near,
+                    row2: far,
+                    o1: bond.offset[0] as i64,
+                    o1b: opposite.offset[0] as i64,
+                    m: bond.m,
+                    j: entry.j,
+                    e: entry.e,
+                    kind: entry.kind,
+                };
+                if len == PACK || (len > 0 && pack[0].kind != next.kind) {
                     row.apply(out, &pack[..len], fresh);
                     fresh = false;
                     len = 0;
@@ -632,17 +736,23 @@ spindrift_isa::multiversion! {
 /// Most bonds applied in one pass over a row (see `Hamiltonian::field_row`).
 const PACK: usize = 4;
 
-/// One bond resolved for a row: the neighbour of cell `c1` is `row[(c1 + o1) nb]` (after
-/// wrapping `c1 + o1` at the row's ends).
+/// One [`Entry`] resolved for a row: the neighbour of cell `c1` is `row[(c1 + o1) nb]`
+/// (after wrapping `c1 + o1` at the row's ends), and for a pair the opposite one is
+/// `row2[(c1 + o1b) nb]`.
 #[derive(Debug, Clone, Copy, Default)]
 struct RowBond<'a> {
     /// The neighbour row from the bond's target basis site on.
     row: &'a [Vec3],
+    /// The opposite bond's row (a single bond: `row` again).
+    row2: &'a [Vec3],
     o1: i64,
+    o1b: i64,
     /// `M_ij / (mu_i muB)`, T per unit spin.
     m: [Vec3; 3],
-    /// See [`FusedBond::iso`].
-    iso: Option<f64>,
+    /// See [`Entry`]: `j` (also a single isotropic bond's `J / (mu muB)`) and `e`.
+    j: f64,
+    e: Vec3,
+    kind: u8,
 }
 
 /// The on-site terms of one basis site.
@@ -731,25 +841,24 @@ impl RowPass<'_> {
     /// or with `fresh` starts the sums with them.
     #[inline(always)]
     fn apply(&self, out: &mut [Vec3], pack: &[RowBond], fresh: bool) {
-        let kind = if pack[0].iso.is_some() {
-            ISO
-        } else if pack.iter().all(|r| r.m[0][1] == 0.0 && r.m[1][0] == 0.0) {
-            IN_PLANE
-        } else {
-            MATRIX
-        };
         macro_rules! dispatch {
             ($($k:literal),*) => {
-                match (pack.len(), kind, fresh) {
+                match (pack.len(), pack[0].kind, fresh) {
                     $(
                         ($k, MATRIX, false) => self.pack::<$k, MATRIX, false>(out, pack),
                         ($k, IN_PLANE, false) => self.pack::<$k, IN_PLANE, false>(out, pack),
                         ($k, ISO, false) => self.pack::<$k, ISO, false>(out, pack),
+                        ($k, PAIR, false) => self.pack::<$k, PAIR, false>(out, pack),
+                        ($k, PAIR_PLANAR, false) => self.pack::<$k, PAIR_PLANAR, false>(out, pack),
+                        ($k, PAIR_ISO, false) => self.pack::<$k, PAIR_ISO, false>(out, pack),
                         ($k, MATRIX, true) => self.pack::<$k, MATRIX, true>(out, pack),
                         ($k, IN_PLANE, true) => self.pack::<$k, IN_PLANE, true>(out, pack),
                         ($k, ISO, true) => self.pack::<$k, ISO, true>(out, pack),
+                        ($k, PAIR, true) => self.pack::<$k, PAIR, true>(out, pack),
+                        ($k, PAIR_PLANAR, true) => self.pack::<$k, PAIR_PLANAR, true>(out, pack),
+                        ($k, PAIR_ISO, true) => self.pack::<$k, PAIR_ISO, true>(out, pack),
                     )*
-                    _ => unreachable!("a pack holds 1 to {PACK} bonds of one kind"),
+                    _ => unreachable!("a pack holds 1 to {PACK} entries of one kind"),
                 }
             };
         }
@@ -774,8 +883,8 @@ impl RowPass<'_> {
         let mut inner_lo = first;
         let mut inner_hi = last;
         for r in pack {
-            inner_lo = inner_lo.max(-r.o1);
-            inner_hi = inner_hi.min(n1 - r.o1);
+            inner_lo = inner_lo.max(-r.o1).max(-r.o1b);
+            inner_hi = inner_hi.min(n1 - r.o1).min(n1 - r.o1b);
         }
         let inner_lo = inner_lo.min(last);
         let inner_hi = inner_hi.max(inner_lo);
@@ -786,16 +895,19 @@ impl RowPass<'_> {
             let len = (inner_hi - inner_lo) as usize;
             let k0 = (inner_lo * self.nb + self.shift) as usize;
             let j0 = pack.map(|r| ((inner_lo + r.o1) * self.nb) as usize);
+            let j1 = pack.map(|r| ((inner_lo + r.o1b) * self.nb) as usize);
             let m = pack.map(|r| r.m);
-            let j = pack.map(|r| r.iso.unwrap_or(0.0));
+            let j = pack.map(|r| r.j);
+            let e = pack.map(|r| r.e);
             if self.nb == 1 {
                 // Plain slices, which the compiler vectorises.
                 let out = &mut out[k0..k0 + len];
                 let s: [&[Vec3]; K] = std::array::from_fn(|p| &pack[p].row[j0[p]..j0[p] + len]);
+                let t: [&[Vec3]; K] = std::array::from_fn(|p| &pack[p].row2[j1[p]..j1[p] + len]);
                 for (k, o) in out.iter_mut().enumerate() {
                     let mut h = if FRESH { [0.0; 3] } else { *o };
                     for p in 0..K {
-                        add_bond::<KIND>(&mut h, &s[p][k], &m[p], j[p]);
+                        add_entry::<KIND>(&mut h, &s[p][k], &t[p][k], &m[p], j[p], &e[p]);
                     }
                     *o = h;
                 }
@@ -805,7 +917,8 @@ impl RowPass<'_> {
                     let o = &mut out[k0 + k * nb];
                     let mut h = if FRESH { [0.0; 3] } else { *o };
                     for p in 0..K {
-                        add_bond::<KIND>(&mut h, &pack[p].row[j0[p] + k * nb], &m[p], j[p]);
+                        let (s, t) = (&pack[p].row[j0[p] + k * nb], &pack[p].row2[j1[p] + k * nb]);
+                        add_entry::<KIND>(&mut h, s, t, &m[p], j[p], &e[p]);
                     }
                     *o = h;
                 }
@@ -827,9 +940,19 @@ impl RowPass<'_> {
     ) {
         let k = (c1 * self.nb + self.shift) as usize;
         let mut h = if FRESH { [0.0; 3] } else { out[k] };
+        let zero = [0.0; 3];
         for r in pack {
-            if let Some(t1) = wrap_coordinate(c1 + r.o1, self.n1, self.periodic) {
-                add_bond::<KIND>(&mut h, &r.row[(t1 * self.nb) as usize], &r.m, r.iso.unwrap_or(0.0));
+            let near =
+                wrap_coordinate(c1 + r.o1, self.n1, self.periodic).map(|t1| &r.row[(t1 * self.nb) as usize]);
+            if is_pair(KIND) {
+                let far = wrap_coordinate(c1 + r.o1b, self.n1, self.periodic)
+                    .map(|t1| &r.row2[(t1 * self.nb) as usize]);
+                // A side that an open face cuts reads a zero spin, as in `field_row`.
+                if near.is_some() || far.is_some() {
+                    add_entry::<KIND>(&mut h, near.unwrap_or(&zero), far.unwrap_or(&zero), &r.m, r.j, &r.e);
+                }
+            } else if let Some(s) = near {
+                add_entry::<KIND>(&mut h, s, s, &r.m, r.j, &r.e);
             }
         }
         out[k] = h;
@@ -867,18 +990,33 @@ impl RowPass<'_> {
     }
 }
 
-/// Kinds of pack: general 3x3 matrices, ...
+/// Kinds of [`Entry`], and so of pack: single bonds with general 3x3 matrices, ...
 const MATRIX: u8 = 0;
-/// ... matrices with `M_xy = M_yx = 0`, as exchange plus DMI whose vectors have no `z`
-/// component (interfacial DMI with the normal along `z`, the usual film geometry): the
-/// kernel skips those two products, which changes no bit (see [`FusedBond::iso`]), ...
+/// ... with `M_xy = M_yx = 0`, as exchange plus DMI whose vectors have no `z` component
+/// (interfacial DMI with the normal along `z`, the usual film geometry): the kernel skips
+/// those two products, which changes no bit (see [`FusedBond::iso`]), ...
 const IN_PLANE: u8 = 1;
-/// ... and multiples of the identity.
+/// ... multiples of the identity, ...
 const ISO: u8 = 2;
+/// ... pairs of a bond and its opposite (see [`Entry`]) with DMI, ...
+const PAIR: u8 = 3;
+/// ... with DMI whose vector has no `z` component (`e_z = 0`: two products fewer, no bit
+/// changed, as for [`IN_PLANE`]) ...
+const PAIR_PLANAR: u8 = 4;
+/// ... and without DMI.
+const PAIR_ISO: u8 = 5;
 
-/// `o += M s` for the pack kind `KIND`, or `o += j s` for an isotropic bond.
+/// Whether entries of `kind` are pairs of bonds.
 #[inline(always)]
-fn add_bond<const KIND: u8>(o: &mut Vec3, s: &Vec3, m: &[Vec3; 3], j: f64) {
+const fn is_pair(kind: u8) -> bool {
+    kind >= PAIR
+}
+
+/// Adds an entry of kind `KIND` to the sum `o`: `o += M s` for a single bond (`M`, or `j`
+/// when it is isotropic), `o += j (s + t) + A (s - t)` for a pair whose bonds reach `s`
+/// and `t` (`A` given by `e`, see [`Entry`]).
+#[inline(always)]
+fn add_entry<const KIND: u8>(o: &mut Vec3, s: &Vec3, t: &Vec3, m: &[Vec3; 3], j: f64, e: &Vec3) {
     match KIND {
         ISO => add_iso(o, s, j),
         IN_PLANE => {
@@ -886,7 +1024,25 @@ fn add_bond<const KIND: u8>(o: &mut Vec3, s: &Vec3, m: &[Vec3; 3], j: f64) {
             o[1] += m[1][1] * s[1] + m[1][2] * s[2];
             o[2] += m[2][0] * s[0] + m[2][1] * s[1] + m[2][2] * s[2];
         }
-        _ => add_matrix(o, s, m),
+        MATRIX => add_matrix(o, s, m),
+        _ => {
+            let g = [s[0] + t[0], s[1] + t[1], s[2] + t[2]];
+            let d = [s[0] - t[0], s[1] - t[1], s[2] - t[2]];
+            match KIND {
+                PAIR_ISO => add_iso(o, &g, j),
+                // `A d = (e_z d_y - e_y d_z, e_x d_z - e_z d_x, e_y d_x - e_x d_y)`.
+                PAIR_PLANAR => {
+                    o[0] += j * g[0] - e[1] * d[2];
+                    o[1] += j * g[1] + e[0] * d[2];
+                    o[2] += j * g[2] + (e[1] * d[0] - e[0] * d[1]);
+                }
+                _ => {
+                    o[0] += j * g[0] + (e[2] * d[1] - e[1] * d[2]);
+                    o[1] += j * g[1] + (e[0] * d[2] - e[2] * d[0]);
+                    o[2] += j * g[2] + (e[1] * d[0] - e[0] * d[1]);
+                }
+            }
+        }
     }
 }
 
@@ -913,20 +1069,26 @@ mod tests {
     use spindrift_lattice::{preset, unit_hash, Coupling};
 
     impl Hamiltonian {
-        /// The field as a plain per-site loop over the bond list (the kernel before rows
-        /// were resolved once per bond), for the bitwise comparison below.
+        /// The field as a plain per-site loop over the entries (the kernel before rows
+        /// were resolved once per bond), for the bitwise comparison below: single bonds as
+        /// full matrix products, pairs in the general form (every product, as `PAIR`).
         fn field_per_site(&self, spins: &[Vec3], i: usize) -> Vec3 {
             if !self.cell.is_occupied(i) {
                 return [0.0; 3];
             }
             let (c, b) = self.cell.decompose(i);
             let mut h = [0.0; 3];
-            for bond in &self.fused[b] {
-                if let Some(j) = self.cell.neighbour(c, bond.offset, bond.to) {
-                    let s = spins[j];
-                    for a in 0..3 {
-                        h[a] += bond.m[a][0] * s[0] + bond.m[a][1] * s[1] + bond.m[a][2] * s[2];
+            let spin = |bond: &FusedBond| self.cell.neighbour(c, bond.offset, bond.to).map(|j| spins[j]);
+            for entry in &self.entries[b] {
+                let bond = &self.fused[b][entry.bond];
+                if is_pair(entry.kind) {
+                    let (s, t) = (spin(bond), spin(&self.fused[b][entry.opposite]));
+                    if s.is_some() || t.is_some() {
+                        let (s, t) = (s.unwrap_or([0.0; 3]), t.unwrap_or([0.0; 3]));
+                        add_entry::<PAIR>(&mut h, &s, &t, &bond.m, entry.j, &entry.e);
                     }
+                } else if let Some(s) = spin(bond) {
+                    add_entry::<MATRIX>(&mut h, &s, &s, &bond.m, entry.j, &entry.e);
                 }
             }
             let e = self.axis[b];
@@ -936,6 +1098,21 @@ mod tests {
                 h[1] + p * e[1] + self.field[1],
                 h[2] + p * e[2] + self.field[2],
             ]
+        }
+    }
+
+    impl Hamiltonian {
+        /// The bond sum of site `i` bond by bond over the bond list, `sum_j M_ij S_j`
+        /// (T), with no pairing: what the paired sums must equal up to rounding.
+        fn bond_sum_per_bond(&self, spins: &[Vec3], i: usize) -> Vec3 {
+            let (c, b) = self.cell.decompose(i);
+            let mut h = [0.0; 3];
+            for bond in &self.fused[b] {
+                if let Some(j) = self.cell.neighbour(c, bond.offset, bond.to) {
+                    add_matrix(&mut h, &spins[j], &bond.m);
+                }
+            }
+            h
         }
     }
 
@@ -1007,6 +1184,30 @@ mod tests {
         [r * phi.cos(), r * phi.sin(), z]
     }
 
+    // Same-sublattice bonds pair up with their opposites (translation symmetry gives
+    // `M_ji = M_ij^T`, common practice); tensor bonds and bonds between sublattices stay
+    // single. Fails if the pairing finds nothing (the kernel would then run bond by bond).
+    #[test]
+    fn opposite_bonds_pair_up() {
+        let kinds = |h: &Hamiltonian, b: usize| h.entries[b].iter().map(|e| e.kind).collect::<Vec<_>>();
+        let c = |d, tensor| TestCouplings { seed: 1, d, dmi_shells: 1, tensor, anisotropy: TILTED };
+        // Simple cubic, interfacial DMI with normal z on shell 1: the x and y pairs carry
+        // DMI vectors in the plane, the z pair none.
+        let h = test_system("simple-cubic", [4, 4, 4], [true; 3], 1, 1.0, c(0.7, false));
+        assert_eq!(kinds(&h, 0), vec![PAIR_PLANAR, PAIR_PLANAR, PAIR_ISO]);
+        // Bulk DMI on shell 2 (vectors along the bonds, with z parts): general pairs.
+        let bulk = TestCouplings { dmi_shells: 2, ..c(0.7, false) };
+        let h = test_system("simple-cubic", [4, 4, 4], [true; 3], 2, 1.0, bulk);
+        assert_eq!(kinds(&h, 0).iter().filter(|&&k| k == PAIR).count(), 4, "{:?}", kinds(&h, 0));
+        // The tensor joins the +x bond's coupling: the x bonds stay single, the y and z
+        // pairs remain.
+        let h = test_system("simple-cubic", [4, 4, 4], [true; 3], 1, 1.0, c(0.0, true));
+        assert_eq!(kinds(&h, 0), vec![MATRIX, MATRIX, PAIR_ISO, PAIR_ISO]);
+        // Honeycomb: every first-shell bond joins the two sublattices, so none pairs.
+        let h = test_system("honeycomb", [4, 4, 1], [true, true, false], 1, 1.0, c(0.0, false));
+        assert!(kinds(&h, 0).iter().all(|&k| !is_pair(k)));
+    }
+
     // The row kernel must reproduce the per-site sum bit for bit (common practice for a
     // reordered loop that keeps each site's order of additions), for every boundary
     // combination, several bases and shells, dilution, boxes of one and two cells, rows
@@ -1037,12 +1238,34 @@ mod tests {
         for ((name, cells, periodic, shells, occ), anisotropy) in
             cases.into_iter().flat_map(|case| axes.map(|axis| (case, axis)))
         {
-            let couplings = TestCouplings { seed: 5, d: 0.7, dmi_shells: shells, tensor: false, anisotropy };
+            // A bond with a full tensor in the long simple-cubic rows (single, beside pairs).
+            let tensor = name == "simple-cubic" && cells[0] > 10;
+            let couplings = TestCouplings { seed: 5, d: 0.7, dmi_shells: shells, tensor, anisotropy };
             let h = test_system(name, cells, periodic, shells, occ, couplings);
             let n = h.len();
             let spins: Vec<Vec3> =
                 (0..n).map(|i| if h.cell().is_occupied(i) { unit(9, i) } else { [0.0; 3] }).collect();
             let expected: Vec<Vec3> = (0..n).map(|i| h.field_per_site(&spins, i)).collect();
+            // The pairs' sums are the bond-by-bond sums regrouped (the identity of
+            // `Entry`, plain algebra): equal up to rounding, relative to the sum of the
+            // terms' sizes.
+            let onsite = |i: usize| {
+                let p = h.k_field[0] * dot(spins[i], h.axis[0]);
+                [p * h.axis[0][0] + h.field[0], p * h.axis[0][1] + h.field[1], p * h.axis[0][2] + h.field[2]]
+            };
+            let scale: f64 =
+                h.fused.iter().flatten().map(|b| b.m.iter().flatten().map(|x| x.abs()).sum::<f64>()).sum();
+            for i in (0..n).filter(|&i| h.cell().is_occupied(i)) {
+                let (bonds, on) = (h.bond_sum_per_bond(&spins, i), onsite(i));
+                for a in 0..3 {
+                    let err = (expected[i][a] - (bonds[a] + on[a])).abs();
+                    assert!(
+                        err <= 1e-14 * (scale + 10.0),
+                        "{name} site {i}: {:?} vs {bonds:?} + {on:?}",
+                        expected[i]
+                    );
+                }
+            }
             let total = h.energy(&spins).total();
             assert!((h.energy_total(&spins) - total).abs() <= 1e-12 * (1.0 + total.abs()), "{name}");
             for (start, len) in [(0, n), (1, n - 1), (3, n / 2), (n / 3, n / 3 + 1), (n - 1, 1)] {

@@ -1101,21 +1101,6 @@ mod tests {
         }
     }
 
-    impl Hamiltonian {
-        /// The bond sum of site `i` bond by bond over the bond list, `sum_j M_ij S_j`
-        /// (T), with no pairing: what the paired sums must equal up to rounding.
-        fn bond_sum_per_bond(&self, spins: &[Vec3], i: usize) -> Vec3 {
-            let (c, b) = self.cell.decompose(i);
-            let mut h = [0.0; 3];
-            for bond in &self.fused[b] {
-                if let Some(j) = self.cell.neighbour(c, bond.offset, bond.to) {
-                    add_matrix(&mut h, &spins[j], &bond.m);
-                }
-            }
-            h
-        }
-    }
-
     /// Couplings of a test system beyond lattice and shells (see [`test_system`]).
     pub(super) struct TestCouplings {
         /// Seed of the random occupation.
@@ -1256,7 +1241,10 @@ mod tests {
             let scale: f64 =
                 h.fused.iter().flatten().map(|b| b.m.iter().flatten().map(|x| x.abs()).sum::<f64>()).sum();
             for i in (0..n).filter(|&i| h.cell().is_occupied(i)) {
-                let (bonds, on) = (h.bond_sum_per_bond(&spins, i), onsite(i));
+                // `pair_field_mev` sums bond by bond (meV); back to tesla.
+                let mev = h.pair_field_mev(&spins, i);
+                let bonds = mev.map(|x| x / h.mu_mev[0]);
+                let on = onsite(i);
                 for a in 0..3 {
                     let err = (expected[i][a] - (bonds[a] + on[a])).abs();
                     assert!(

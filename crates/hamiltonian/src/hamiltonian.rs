@@ -575,15 +575,23 @@ impl Hamiltonian {
     pub fn pair_field_mev(&self, spins: &[Vec3], i: usize) -> Vec3 {
         let (c, b) = self.cell.decompose(i);
         let cells = self.cell.cells();
+        let bonds = &self.fused[b];
+        let zero = [0.0; 3];
         let mut h = [0.0; 3];
-        for bond in &self.fused[b] {
-            if let Some(j) = self.neighbour(i, c, bond, cells) {
-                // The operations of the block kernel (`trials.rs`), which must give the
-                // same bits: pure exchange bonds skip their zero products.
-                match bond.iso {
-                    Some(jm) => add_iso(&mut h, &spins[j], jm),
-                    None => add_matrix(&mut h, &spins[j], &bond.m),
+        // The entries of the row kernel, in its order and with its operations; the block
+        // kernel (`trials.rs`) does the same, which must give the same bits.
+        for entry in &self.entries[b] {
+            let bond = &bonds[entry.bond];
+            let s = self.neighbour(i, c, bond, cells).map(|j| &spins[j]);
+            if is_pair(entry.kind) {
+                let t = self.neighbour(i, c, &bonds[entry.opposite], cells).map(|j| &spins[j]);
+                // A side that an open face cuts reads a zero spin.
+                if s.is_some() || t.is_some() {
+                    let (s, t) = (s.unwrap_or(&zero), t.unwrap_or(&zero));
+                    add_entry_of_kind(entry.kind, &mut h, s, t, &bond.m, entry.j, &entry.e);
                 }
+            } else if let Some(s) = s {
+                add_entry_of_kind(entry.kind, &mut h, s, s, &bond.m, entry.j, &entry.e);
             }
         }
         let mu = self.mu_mev[b];
@@ -1017,48 +1025,53 @@ const fn is_pair(kind: u8) -> bool {
 /// and `t` (`A` given by `e`, see [`Entry`]).
 #[inline(always)]
 fn add_entry<const KIND: u8>(o: &mut Vec3, s: &Vec3, t: &Vec3, m: &[Vec3; 3], j: f64, e: &Vec3) {
+    let add = entry_term::<KIND>(s, t, m, j, e);
+    o[0] += add[0];
+    o[1] += add[1];
+    o[2] += add[2];
+}
+
+/// What [`add_entry`] adds, component by component (so `o[a] += term[a]` are the same
+/// operations, for kernels that keep their sums elsewhere).
+#[inline(always)]
+fn entry_term<const KIND: u8>(s: &Vec3, t: &Vec3, m: &[Vec3; 3], j: f64, e: &Vec3) -> Vec3 {
     match KIND {
-        ISO => add_iso(o, s, j),
-        IN_PLANE => {
-            o[0] += m[0][0] * s[0] + m[0][2] * s[2];
-            o[1] += m[1][1] * s[1] + m[1][2] * s[2];
-            o[2] += m[2][0] * s[0] + m[2][1] * s[1] + m[2][2] * s[2];
-        }
-        MATRIX => add_matrix(o, s, m),
+        ISO => [j * s[0], j * s[1], j * s[2]],
+        IN_PLANE => [
+            m[0][0] * s[0] + m[0][2] * s[2],
+            m[1][1] * s[1] + m[1][2] * s[2],
+            m[2][0] * s[0] + m[2][1] * s[1] + m[2][2] * s[2],
+        ],
+        MATRIX => std::array::from_fn(|a| m[a][0] * s[0] + m[a][1] * s[1] + m[a][2] * s[2]),
         _ => {
             let g = [s[0] + t[0], s[1] + t[1], s[2] + t[2]];
             let d = [s[0] - t[0], s[1] - t[1], s[2] - t[2]];
             match KIND {
-                PAIR_ISO => add_iso(o, &g, j),
+                PAIR_ISO => [j * g[0], j * g[1], j * g[2]],
                 // `A d = (e_z d_y - e_y d_z, e_x d_z - e_z d_x, e_y d_x - e_x d_y)`.
                 PAIR_PLANAR => {
-                    o[0] += j * g[0] - e[1] * d[2];
-                    o[1] += j * g[1] + e[0] * d[2];
-                    o[2] += j * g[2] + (e[1] * d[0] - e[0] * d[1]);
+                    [j * g[0] - e[1] * d[2], j * g[1] + e[0] * d[2], j * g[2] + (e[1] * d[0] - e[0] * d[1])]
                 }
-                _ => {
-                    o[0] += j * g[0] + (e[2] * d[1] - e[1] * d[2]);
-                    o[1] += j * g[1] + (e[0] * d[2] - e[2] * d[0]);
-                    o[2] += j * g[2] + (e[1] * d[0] - e[0] * d[1]);
-                }
+                _ => [
+                    j * g[0] + (e[2] * d[1] - e[1] * d[2]),
+                    j * g[1] + (e[0] * d[2] - e[2] * d[0]),
+                    j * g[2] + (e[1] * d[0] - e[0] * d[1]),
+                ],
             }
         }
     }
 }
 
-/// `o += M s`, in the order of the per-site sum.
+/// [`add_entry`] for a kind known only at run time.
 #[inline(always)]
-fn add_matrix(o: &mut Vec3, s: &Vec3, m: &[Vec3; 3]) {
-    for a in 0..3 {
-        o[a] += m[a][0] * s[0] + m[a][1] * s[1] + m[a][2] * s[2];
-    }
-}
-
-/// `o += j s` for an isotropic bond.
-#[inline(always)]
-fn add_iso(o: &mut Vec3, s: &Vec3, j: f64) {
-    for a in 0..3 {
-        o[a] += j * s[a];
+fn add_entry_of_kind(kind: u8, o: &mut Vec3, s: &Vec3, t: &Vec3, m: &[Vec3; 3], j: f64, e: &Vec3) {
+    match kind {
+        ISO => add_entry::<ISO>(o, s, t, m, j, e),
+        IN_PLANE => add_entry::<IN_PLANE>(o, s, t, m, j, e),
+        MATRIX => add_entry::<MATRIX>(o, s, t, m, j, e),
+        PAIR => add_entry::<PAIR>(o, s, t, m, j, e),
+        PAIR_PLANAR => add_entry::<PAIR_PLANAR>(o, s, t, m, j, e),
+        _ => add_entry::<PAIR_ISO>(o, s, t, m, j, e),
     }
 }
 

@@ -10,7 +10,8 @@
 //!    one sublattice of a two-site basis too). Along a run every bond's neighbours step
 //!    alike, so for each bond the neighbour row is found once and the neighbours' spins
 //!    are read with strided contiguous loads (wide loads and shuffles, no gathers), in at
-//!    most two stretches, before and after a periodic wrap.
+//!    most two stretches, before and after a periodic wrap (for a pair of bonds, at most
+//!    seven segments where each side is one stretch or cut).
 //! 2. Sites in no run take the per-site path: cell coordinates without integer division
 //!    (which does not vectorise): for integers `0 <= x < 2^32` and `1 <= n < 2^32`, with
 //!    `x = q n + r`, the product `x * (1/n)` of rounded numbers is `x/n` within a relative
@@ -21,15 +22,19 @@
 //!    [`AxisStep`], the linear index, and a masked load of the neighbour's spin.
 //! 3. The energy change from the pair field and the on-site terms.
 //!
-//! Bonds that are pure exchange add `J s` (no zero products). Each site adds its bonds in
-//! bond-list order with the same operations as the one-site
-//! [`Hamiltonian::pair_field_mev`], skipping bonds an open face cuts, so the result is that
-//! of [`Hamiltonian::energy_change`] bit for bit whichever path a site takes (tested
-//! below). When the sites of a block have different basis sites, all take the per-site
-//! path, and phases 2 and 3 run once per basis site, each site keeping the result of its
-//! own; a Monte Carlo colour class split by basis site needs one pass.
+//! Each site adds the entries of the row kernel (single bonds, and bonds paired with their
+//! opposites, `j (s+ + s-) + A (s+ - s-)`: see `Entry`) in their order and with the same
+//! operations as the one-site [`Hamiltonian::pair_field_mev`]: a single bond that an open
+//! face cuts is skipped, a pair reads a zero spin for a cut side (and is skipped when both
+//! are). So the result is that of [`Hamiltonian::energy_change`] bit for bit whichever
+//! path a site takes (tested below). When the sites of a block have different basis sites,
+//! all take the per-site path, and phases 2 and 3 run once per basis site, each site
+//! keeping the result of its own; a Monte Carlo colour class split by basis site needs one
+//! pass.
 
-use super::{FusedBond, Hamiltonian};
+use super::{
+    entry_term, is_pair, Entry, FusedBond, Hamiltonian, IN_PLANE, ISO, MATRIX, PAIR, PAIR_ISO, PAIR_PLANAR,
+};
 use spindrift_lattice::{dot, wrap_index, Vec3};
 
 /// Sites per block: the per-site arrays of a block (about 4 KiB) stay in L1.
@@ -45,16 +50,6 @@ struct Run {
     len: usize,
     c: [u32; 3],
     dc: u32,
-}
-
-/// `M s`, in the order of the one-site sum.
-#[inline(always)]
-fn mat_vec(m: &[Vec3; 3], s: Vec3) -> Vec3 {
-    [
-        m[0][0] * s[0] + m[0][1] * s[1] + m[0][2] * s[2],
-        m[1][0] * s[0] + m[1][1] * s[1] + m[1][2] * s[2],
-        m[2][0] * s[0] + m[2][1] * s[1] + m[2][2] * s[2],
-    ]
 }
 
 /// `h[k] += product(spins[j0 + D (k - k0)])` for `k0 <= k < k0 + n`: contiguous loads of
@@ -82,6 +77,39 @@ fn add_strided<const D: usize>(
     }
     for k in full..n {
         let add = product(spins[j0 + D * k]);
+        h0[k0 + k] += add[0];
+        h1[k0 + k] += add[1];
+        h2[k0 + k] += add[2];
+    }
+}
+
+/// `h[k] += product(spins[js + D (k - k0)], spins[jt + D (k - k0)])` for
+/// `k0 <= k < k0 + n`: [`add_strided`] for the two sides of a pair.
+#[inline(always)]
+fn add_strided_pair<const D: usize>(
+    spins: &[Vec3],
+    js: usize,
+    jt: usize,
+    h: &mut Fields,
+    k0: usize,
+    n: usize,
+    product: impl Fn(Vec3, Vec3) -> Vec3,
+) {
+    let flat = spins.as_flattened();
+    let fits = |j0: usize| 3 * (j0 + D * n) <= flat.len();
+    let full = if fits(js) && fits(jt) { n } else { n - 1 };
+    let [h0, h1, h2] = h;
+    let near = flat[3 * js..3 * (js + D * full)].chunks_exact(3 * D);
+    let far = flat[3 * jt..3 * (jt + D * full)].chunks_exact(3 * D);
+    let rows = h0[k0..k0 + full].iter_mut().zip(&mut h1[k0..k0 + full]).zip(&mut h2[k0..k0 + full]);
+    for ((((x, y), z), g), f) in rows.zip(near).zip(far) {
+        let add = product([g[0], g[1], g[2]], [f[0], f[1], f[2]]);
+        *x += add[0];
+        *y += add[1];
+        *z += add[2];
+    }
+    for k in full..n {
+        let add = product(spins[js + D * k], spins[jt + D * k]);
         h0[k0 + k] += add[0];
         h1[k0 + k] += add[1];
         h2[k0 + k] += add[2];
@@ -227,8 +255,8 @@ impl Hamiltonian {
             }
             if generic[..len].iter().fold(false, |any, &g| any | g) {
                 let c = c.get_or_insert_with(coordinates);
-                for bond in &self.fused[bu] {
-                    self.add_bond(spins, bond, c, &generic, &mut h, len);
+                for entry in &self.entries[bu] {
+                    self.add_entry(spins, bu, entry, c, &generic, &mut h, len);
                 }
             }
             // Phase 3: the energy change, as in `energy_change`.
@@ -299,11 +327,11 @@ impl Hamiltonian {
             if k1 - k0 >= MIN_RUN && d % nb == 0 {
                 let c = [(i0 - row * row_len) / nb, row % n2, row / n2];
                 let run = Run { k0, len: k1 - k0, c, dc: d / nb };
-                for bond in &self.fused[b] {
+                for entry in &self.entries[b] {
                     if d == 1 {
-                        self.add_bond_run::<1>(spins, bond, &run, h);
+                        self.add_entry_run::<1>(spins, b, entry, &run, h);
                     } else {
-                        self.add_bond_run::<2>(spins, bond, &run, h);
+                        self.add_entry_run::<2>(spins, b, entry, &run, h);
                     }
                 }
             } else {
@@ -313,23 +341,22 @@ impl Hamiltonian {
         }
     }
 
-    /// Adds `M s_j` over one bond to the pair fields of a run whose indices step by `D`.
-    /// The neighbour row is found once; along the row the neighbour's coordinate is linear
-    /// in the site's on at most two stretches (before and after a periodic wrap), each read
-    /// by [`add_strided`].
+    /// Where `bond`'s neighbours of the sites of `run` lie (see [`Side`]).
     #[inline(always)]
-    fn add_bond_run<const D: usize>(&self, spins: &[Vec3], bond: &FusedBond, run: &Run, h: &mut Fields) {
+    fn side(&self, bond: &FusedBond, run: &Run) -> Side {
         let cells = self.cell.cells();
         let periodic = self.cell.periodic();
         let steps: [AxisStep; 3] =
             std::array::from_fn(|a| AxisStep::new(bond.offset[a], cells[a], periodic[a]));
+        let x = steps[0];
         let (t2, v2) = steps[1].step(run.c[1]);
         let (t3, v3) = steps[2].step(run.c[2]);
-        if !(v2 && v3) {
-            return;
-        }
-        let nb = self.cell.basis_len();
         let row = (t3 as usize * cells[1] + t2 as usize) * cells[0];
+        let nb = self.cell.basis_len();
+        let at = Side { lo: 0, split: 0, hi: 0, x, row, c0: run.c[0], dc: run.dc, nb, to: bond.to };
+        if !(v2 && v3) {
+            return at;
+        }
         // The number of sites of the run whose coordinate along a1 is below `limit`.
         let below = |limit: u32| -> usize {
             if limit <= run.c[0] {
@@ -338,87 +365,210 @@ impl Hamiltonian {
                 ((limit - run.c[0]) as usize).div_ceil(run.dc as usize).min(run.len)
             }
         };
-        let x = &steps[0];
-        let (lo, hi, split) = (below(x.lo), below(x.hi), below(x.wrap));
-        let c_at = |k: usize| run.c[0] + run.dc * k as u32;
-        // Before the wrap the neighbour is at c + add, after it at c - wrap.
-        let stretches = [
-            (lo, hi.min(split), c_at(lo).wrapping_add(x.add)),
-            (lo.max(split), hi, c_at(lo.max(split)).wrapping_sub(x.wrap)),
-        ];
-        for (ka, kb, t) in stretches {
-            if ka < kb {
-                let j0 = (row + t as usize) * nb + bond.to;
-                let (k0, n) = (run.k0 + ka, kb - ka);
-                match bond.iso {
-                    Some(jm) => add_strided::<D>(spins, j0, h, k0, n, |s| [jm * s[0], jm * s[1], jm * s[2]]),
-                    None => add_strided::<D>(spins, j0, h, k0, n, |s| mat_vec(&bond.m, s)),
+        let (lo, hi) = (below(x.lo), below(x.hi));
+        Side { lo, split: below(x.wrap).clamp(lo, hi), hi, ..at }
+    }
+
+    /// Adds one entry (a bond, or a pair of opposite bonds) to the pair fields of a run
+    /// whose indices step by `D`.
+    #[inline(always)]
+    fn add_entry_run<const D: usize>(
+        &self,
+        spins: &[Vec3],
+        b: usize,
+        entry: &Entry,
+        run: &Run,
+        h: &mut Fields,
+    ) {
+        match entry.kind {
+            ISO => self.add_entry_run_of::<D, ISO>(spins, b, entry, run, h),
+            IN_PLANE => self.add_entry_run_of::<D, IN_PLANE>(spins, b, entry, run, h),
+            MATRIX => self.add_entry_run_of::<D, MATRIX>(spins, b, entry, run, h),
+            PAIR => self.add_entry_run_of::<D, PAIR>(spins, b, entry, run, h),
+            PAIR_PLANAR => self.add_entry_run_of::<D, PAIR_PLANAR>(spins, b, entry, run, h),
+            _ => self.add_entry_run_of::<D, PAIR_ISO>(spins, b, entry, run, h),
+        }
+    }
+
+    /// [`Hamiltonian::add_entry_run`] for entries of kind `KIND`. Along the run each
+    /// bond's neighbours are linear in the site on at most two stretches (before and after
+    /// a periodic wrap), read by [`add_strided`]; for a pair the two bonds' stretches and
+    /// cuts split the run into at most seven segments, on each of which every side is
+    /// linear or cut (reading zero spins, as [`Hamiltonian::pair_field_mev`] does).
+    #[inline(always)]
+    fn add_entry_run_of<const D: usize, const KIND: u8>(
+        &self,
+        spins: &[Vec3],
+        b: usize,
+        entry: &Entry,
+        run: &Run,
+        h: &mut Fields,
+    ) {
+        let bonds = &self.fused[b];
+        let near = self.side(&bonds[entry.bond], run);
+        let (m, j, e) = (&bonds[entry.bond].m, entry.j, &entry.e);
+        let zero = [0.0; 3];
+        if !is_pair(KIND) {
+            for (ka, kb) in [(near.lo, near.split), (near.split, near.hi)] {
+                if let (true, Some(j0)) = (ka < kb, near.at(ka)) {
+                    add_strided::<D>(spins, j0, h, run.k0 + ka, kb - ka, |s| {
+                        entry_term::<KIND>(&s, &s, m, j, e)
+                    });
                 }
             }
+            return;
         }
-    }
-
-    /// Adds `M s_j` over one bond to the pair fields of the sites of a block marked in
-    /// `lanes`, from their cell coordinates `c`, skipping sites whose neighbour an open
-    /// face cuts off.
-    #[inline(always)]
-    fn add_bond(
-        &self,
-        spins: &[Vec3],
-        bond: &FusedBond,
-        c: &Coords,
-        lanes: &[bool; LANES],
-        h: &mut Fields,
-        len: usize,
-    ) {
-        match bond.iso {
-            Some(jm) => {
-                self.add_bond_with(spins, bond, c, lanes, h, len, |s| [jm * s[0], jm * s[1], jm * s[2]])
+        let far = self.side(&bonds[entry.opposite], run);
+        let mut cuts = [0, near.lo, near.split, near.hi, far.lo, far.split, far.hi, run.len];
+        cuts.sort_unstable();
+        for w in cuts.windows(2) {
+            let (ka, kb) = (w[0], w[1]);
+            if ka == kb {
+                continue;
             }
-            None => self.add_bond_with(spins, bond, c, lanes, h, len, |s| mat_vec(&bond.m, s)),
+            let (k0, n) = (run.k0 + ka, kb - ka);
+            match (near.at(ka), far.at(ka)) {
+                (Some(js), Some(jt)) => {
+                    add_strided_pair::<D>(spins, js, jt, h, k0, n, |s, t| entry_term::<KIND>(&s, &t, m, j, e))
+                }
+                (Some(js), None) => {
+                    add_strided::<D>(spins, js, h, k0, n, |s| entry_term::<KIND>(&s, &zero, m, j, e))
+                }
+                (None, Some(jt)) => {
+                    add_strided::<D>(spins, jt, h, k0, n, |t| entry_term::<KIND>(&zero, &t, m, j, e))
+                }
+                (None, None) => {}
+            }
         }
     }
 
-    /// [`Hamiltonian::add_bond`] with the bond's `M s` given as `product`, so that the loop
-    /// holds no test of the kind of bond.
+    /// Adds one entry to the pair fields of the sites of a block marked in `lanes`, from
+    /// their cell coordinates `c`: a single bond skips sites whose neighbour an open face
+    /// cuts off; a pair reads a zero spin for a cut side and skips sites where both are.
     #[inline(always)]
-    fn add_bond_with(
+    #[allow(clippy::too_many_arguments)]
+    fn add_entry(
         &self,
         spins: &[Vec3],
-        bond: &FusedBond,
+        b: usize,
+        entry: &Entry,
         c: &Coords,
         lanes: &[bool; LANES],
         h: &mut Fields,
         len: usize,
-        product: impl Fn(Vec3) -> Vec3,
     ) {
-        let cells = self.cell.cells();
-        let periodic = self.cell.periodic();
-        let steps: [AxisStep; 3] =
-            std::array::from_fn(|a| AxisStep::new(bond.offset[a], cells[a], periodic[a]));
-        let (n1, n2) = (cells[0] as u32, cells[1] as u32);
-        let (nb, to) = (self.cell.basis_len() as u32, bond.to as u32);
+        match entry.kind {
+            ISO => self.add_entry_of::<ISO>(spins, b, entry, c, lanes, h, len),
+            IN_PLANE => self.add_entry_of::<IN_PLANE>(spins, b, entry, c, lanes, h, len),
+            MATRIX => self.add_entry_of::<MATRIX>(spins, b, entry, c, lanes, h, len),
+            PAIR => self.add_entry_of::<PAIR>(spins, b, entry, c, lanes, h, len),
+            PAIR_PLANAR => self.add_entry_of::<PAIR_PLANAR>(spins, b, entry, c, lanes, h, len),
+            _ => self.add_entry_of::<PAIR_ISO>(spins, b, entry, c, lanes, h, len),
+        }
+    }
+
+    /// [`Hamiltonian::add_entry`] for entries of kind `KIND`, so that the loop holds no
+    /// test of the kind.
+    #[inline(always)]
+    #[allow(clippy::too_many_arguments)]
+    fn add_entry_of<const KIND: u8>(
+        &self,
+        spins: &[Vec3],
+        b: usize,
+        entry: &Entry,
+        c: &Coords,
+        lanes: &[bool; LANES],
+        h: &mut Fields,
+        len: usize,
+    ) {
+        let bonds = &self.fused[b];
+        let near = Lookup::new(self, &bonds[entry.bond]);
+        let far = Lookup::new(self, &bonds[entry.opposite]);
+        let (m, j, e) = (&bonds[entry.bond].m, entry.j, &entry.e);
         let [h0, h1, h2] = h;
         let (h0, h1, h2) = (&mut h0[..len], &mut h1[..len], &mut h2[..len]);
         let (c0, c1, c2) = (&c[0][..len], &c[1][..len], &c[2][..len]);
         for k in 0..len {
-            let (t0, v0) = steps[0].step(c0[k]);
-            let (t1, v1) = steps[1].step(c1[k]);
-            let (t2, v2) = steps[2].step(c2[k]);
-            let valid = v0 & v1 & v2 & lanes[k];
-            let j = ((t2.wrapping_mul(n2).wrapping_add(t1)).wrapping_mul(n1).wrapping_add(t0))
-                .wrapping_mul(nb)
-                .wrapping_add(to);
-            // Where the bond is cut, `j` may be any value; the load is masked.
-            let s = match spins.get(j as usize) {
-                Some(s) if valid => *s,
-                _ => [0.0; 3],
-            };
-            let add = product(s);
+            let cell = [c0[k], c1[k], c2[k]];
+            let (s, vs) = near.spin(spins, cell);
+            let (t, vt) = if is_pair(KIND) { far.spin(spins, cell) } else { (s, vs) };
+            let valid = (vs | vt) & lanes[k];
+            let add = entry_term::<KIND>(&s, &t, m, j, e);
             // Skipping (rather than adding a zero) keeps the bits of the one-site sum.
             h0[k] = if valid { h0[k] + add[0] } else { h0[k] };
             h1[k] = if valid { h1[k] + add[1] } else { h1[k] };
             h2[k] = if valid { h2[k] + add[2] } else { h2[k] };
+        }
+    }
+}
+
+/// Where one bond's neighbours of the sites `0 .. len` of a run lie: sites `k < lo` and
+/// `k >= hi` have none (an open face cuts the bond, or the whole run's row is cut along
+/// a2 or a3: then `lo = hi = 0`); for the others the neighbour's coordinate along a1 is
+/// the site's plus `x.add` before `split` and minus `x.wrap` from it (a periodic wrap), so
+/// its index steps by `D` from site to site on `lo .. split` and on `split .. hi`.
+#[derive(Clone, Copy)]
+struct Side {
+    lo: usize,
+    split: usize,
+    hi: usize,
+    x: AxisStep,
+    /// First site index of the neighbours' row of cells.
+    row: usize,
+    c0: u32,
+    dc: u32,
+    nb: usize,
+    to: usize,
+}
+
+impl Side {
+    /// The neighbour's index of site `k` of the run, if it has one.
+    #[inline(always)]
+    fn at(&self, k: usize) -> Option<usize> {
+        (self.lo <= k && k < self.hi).then(|| {
+            let (t, _) = self.x.step(self.c0 + self.dc * k as u32);
+            (self.row + t as usize) * self.nb + self.to
+        })
+    }
+}
+
+/// One bond's neighbour of a site given its cell coordinates, without integer division.
+struct Lookup {
+    steps: [AxisStep; 3],
+    n1: u32,
+    n2: u32,
+    nb: u32,
+    to: u32,
+}
+
+impl Lookup {
+    #[inline(always)]
+    fn new(h: &Hamiltonian, bond: &FusedBond) -> Self {
+        let cells = h.cell.cells();
+        let periodic = h.cell.periodic();
+        Self {
+            steps: std::array::from_fn(|a| AxisStep::new(bond.offset[a], cells[a], periodic[a])),
+            n1: cells[0] as u32,
+            n2: cells[1] as u32,
+            nb: h.cell.basis_len() as u32,
+            to: bond.to as u32,
+        }
+    }
+
+    /// The neighbour's spin (zero where an open face cuts the bond) and whether it exists.
+    #[inline(always)]
+    fn spin(&self, spins: &[Vec3], c: [u32; 3]) -> (Vec3, bool) {
+        let (t0, v0) = self.steps[0].step(c[0]);
+        let (t1, v1) = self.steps[1].step(c[1]);
+        let (t2, v2) = self.steps[2].step(c[2]);
+        let valid = v0 & v1 & v2;
+        let j = ((t2.wrapping_mul(self.n2).wrapping_add(t1)).wrapping_mul(self.n1).wrapping_add(t0))
+            .wrapping_mul(self.nb)
+            .wrapping_add(self.to);
+        // Where the bond is cut, `j` may be any value; the load is masked.
+        match spins.get(j as usize) {
+            Some(s) if valid => (*s, true),
+            _ => ([0.0; 3], false),
         }
     }
 }

@@ -588,10 +588,10 @@ impl Hamiltonian {
                 // A side that an open face cuts reads a zero spin.
                 if s.is_some() || t.is_some() {
                     let (s, t) = (s.unwrap_or(&zero), t.unwrap_or(&zero));
-                    add_entry_of_kind(entry.kind, &mut h, s, t, &bond.m, entry.j, &entry.e);
+                    with_kind!(entry.kind, K => add_entry::<K>(&mut h, s, t, &bond.m, entry.j, &entry.e));
                 }
             } else if let Some(s) = s {
-                add_entry_of_kind(entry.kind, &mut h, s, s, &bond.m, entry.j, &entry.e);
+                with_kind!(entry.kind, K => add_entry::<K>(&mut h, s, s, &bond.m, entry.j, &entry.e));
             }
         }
         let mu = self.mu_mev[b];
@@ -1062,18 +1062,39 @@ fn entry_term<const KIND: u8>(s: &Vec3, t: &Vec3, m: &[Vec3; 3], j: f64, e: &Vec
     }
 }
 
-/// [`add_entry`] for a kind known only at run time.
-#[inline(always)]
-fn add_entry_of_kind(kind: u8, o: &mut Vec3, s: &Vec3, t: &Vec3, m: &[Vec3; 3], j: f64, e: &Vec3) {
-    match kind {
-        ISO => add_entry::<ISO>(o, s, t, m, j, e),
-        IN_PLANE => add_entry::<IN_PLANE>(o, s, t, m, j, e),
-        MATRIX => add_entry::<MATRIX>(o, s, t, m, j, e),
-        PAIR => add_entry::<PAIR>(o, s, t, m, j, e),
-        PAIR_PLANAR => add_entry::<PAIR_PLANAR>(o, s, t, m, j, e),
-        _ => add_entry::<PAIR_ISO>(o, s, t, m, j, e),
-    }
+/// `$body` with `$k` a `const` of the entry kind `$kind`, known only at run time: one
+/// compiled copy of `$body` per kind, so that its loops hold no test of the kind.
+macro_rules! with_kind {
+    ($kind:expr, $k:ident => $body:expr) => {
+        match $kind {
+            ISO => {
+                const $k: u8 = ISO;
+                $body
+            }
+            IN_PLANE => {
+                const $k: u8 = IN_PLANE;
+                $body
+            }
+            MATRIX => {
+                const $k: u8 = MATRIX;
+                $body
+            }
+            PAIR => {
+                const $k: u8 = PAIR;
+                $body
+            }
+            PAIR_PLANAR => {
+                const $k: u8 = PAIR_PLANAR;
+                $body
+            }
+            _ => {
+                const $k: u8 = PAIR_ISO;
+                $body
+            }
+        }
+    };
 }
+use with_kind;
 
 #[cfg(test)]
 mod tests {

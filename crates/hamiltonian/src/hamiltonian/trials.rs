@@ -33,7 +33,8 @@
 //! pass.
 
 use super::{
-    entry_term, is_pair, Entry, FusedBond, Hamiltonian, IN_PLANE, ISO, MATRIX, PAIR, PAIR_ISO, PAIR_PLANAR,
+    entry_term, is_pair, with_kind, Entry, FusedBond, Hamiltonian, IN_PLANE, ISO, MATRIX, PAIR, PAIR_ISO,
+    PAIR_PLANAR,
 };
 use spindrift_lattice::{dot, wrap_index, Vec3};
 
@@ -256,7 +257,7 @@ impl Hamiltonian {
             if generic[..len].iter().fold(false, |any, &g| any | g) {
                 let c = c.get_or_insert_with(coordinates);
                 for entry in &self.entries[bu] {
-                    self.add_entry(spins, bu, entry, c, &generic, &mut h, len);
+                    with_kind!(entry.kind, K => self.add_entry::<K>(spins, bu, entry, c, &generic, &mut h, len));
                 }
             }
             // Phase 3: the energy change, as in `energy_change`.
@@ -329,9 +330,9 @@ impl Hamiltonian {
                 let run = Run { k0, len: k1 - k0, c, dc: d / nb };
                 for entry in &self.entries[b] {
                     if d == 1 {
-                        self.add_entry_run::<1>(spins, b, entry, &run, h);
+                        with_kind!(entry.kind, K => self.add_entry_run::<1, K>(spins, b, entry, &run, h));
                     } else {
-                        self.add_entry_run::<2>(spins, b, entry, &run, h);
+                        with_kind!(entry.kind, K => self.add_entry_run::<2, K>(spins, b, entry, &run, h));
                     }
                 }
             } else {
@@ -369,34 +370,14 @@ impl Hamiltonian {
         Side { lo, split: below(x.wrap).clamp(lo, hi), hi, ..at }
     }
 
-    /// Adds one entry (a bond, or a pair of opposite bonds) to the pair fields of a run
-    /// whose indices step by `D`.
-    #[inline(always)]
-    fn add_entry_run<const D: usize>(
-        &self,
-        spins: &[Vec3],
-        b: usize,
-        entry: &Entry,
-        run: &Run,
-        h: &mut Fields,
-    ) {
-        match entry.kind {
-            ISO => self.add_entry_run_of::<D, ISO>(spins, b, entry, run, h),
-            IN_PLANE => self.add_entry_run_of::<D, IN_PLANE>(spins, b, entry, run, h),
-            MATRIX => self.add_entry_run_of::<D, MATRIX>(spins, b, entry, run, h),
-            PAIR => self.add_entry_run_of::<D, PAIR>(spins, b, entry, run, h),
-            PAIR_PLANAR => self.add_entry_run_of::<D, PAIR_PLANAR>(spins, b, entry, run, h),
-            _ => self.add_entry_run_of::<D, PAIR_ISO>(spins, b, entry, run, h),
-        }
-    }
-
-    /// [`Hamiltonian::add_entry_run`] for entries of kind `KIND`. Along the run each
+    /// Adds one entry (a bond, or a pair of opposite bonds) of kind `KIND` to the pair
+    /// fields of a run whose indices step by `D`. Along the run each
     /// bond's neighbours are linear in the site on at most two stretches (before and after
     /// a periodic wrap), read by [`add_strided`]; for a pair the two bonds' stretches and
     /// cuts split the run into at most seven segments, on each of which every side is
     /// linear or cut (reading zero spins, as [`Hamiltonian::pair_field_mev`] does).
     #[inline(always)]
-    fn add_entry_run_of<const D: usize, const KIND: u8>(
+    fn add_entry_run<const D: usize, const KIND: u8>(
         &self,
         spins: &[Vec3],
         b: usize,
@@ -442,36 +423,13 @@ impl Hamiltonian {
         }
     }
 
-    /// Adds one entry to the pair fields of the sites of a block marked in `lanes`, from
-    /// their cell coordinates `c`: a single bond skips sites whose neighbour an open face
-    /// cuts off; a pair reads a zero spin for a cut side and skips sites where both are.
+    /// Adds one entry of kind `KIND` to the pair fields of the sites of a block marked in
+    /// `lanes`, from their cell coordinates `c`: a single bond skips sites whose neighbour
+    /// an open face cuts off; a pair reads a zero spin for a cut side and skips sites where
+    /// both are.
     #[inline(always)]
     #[allow(clippy::too_many_arguments)]
-    fn add_entry(
-        &self,
-        spins: &[Vec3],
-        b: usize,
-        entry: &Entry,
-        c: &Coords,
-        lanes: &[bool; LANES],
-        h: &mut Fields,
-        len: usize,
-    ) {
-        match entry.kind {
-            ISO => self.add_entry_of::<ISO>(spins, b, entry, c, lanes, h, len),
-            IN_PLANE => self.add_entry_of::<IN_PLANE>(spins, b, entry, c, lanes, h, len),
-            MATRIX => self.add_entry_of::<MATRIX>(spins, b, entry, c, lanes, h, len),
-            PAIR => self.add_entry_of::<PAIR>(spins, b, entry, c, lanes, h, len),
-            PAIR_PLANAR => self.add_entry_of::<PAIR_PLANAR>(spins, b, entry, c, lanes, h, len),
-            _ => self.add_entry_of::<PAIR_ISO>(spins, b, entry, c, lanes, h, len),
-        }
-    }
-
-    /// [`Hamiltonian::add_entry`] for entries of kind `KIND`, so that the loop holds no
-    /// test of the kind.
-    #[inline(always)]
-    #[allow(clippy::too_many_arguments)]
-    fn add_entry_of<const KIND: u8>(
+    fn add_entry<const KIND: u8>(
         &self,
         spins: &[Vec3],
         b: usize,

@@ -277,8 +277,9 @@ impl Metropolis {
                 let write = |k: usize, chunk: &mut [Vec3]| {
                     let lo = colouring.offset(c, k).max(block_start);
                     let hi = colouring.offset(c, k + 1).min(block_end);
-                    for e in lo..hi {
-                        chunk[class[e] as usize - k * CHUNK] = buffer[e - block_start];
+                    let base = k * CHUNK;
+                    for (&i, &s) in class[lo..hi].iter().zip(&buffer[lo - block_start..hi - block_start]) {
+                        chunk[i as usize - base] = s;
                     }
                 };
                 let region = &mut spins[first_chunk * CHUNK..((last_chunk + 1) * CHUNK).min(n)];
@@ -338,6 +339,11 @@ spindrift_isa::multiversion! {
         let mut trials = [[0.0; 3]; DRAWS];
         let mut de = [0.0; DRAWS];
         let mut units = [0.0; DRAWS];
+        // Acceptance masks, all ones for an accepted move; and the same once per component,
+        // so that the selection runs over flat arrays of numbers, which vectorises (over
+        // `[f64; 3]` it did not).
+        let mut keep = [0u64; DRAWS];
+        let mut keep3 = [0u64; 3 * DRAWS];
         for (out, sites) in out.chunks_mut(DRAWS).zip(sites.chunks(DRAWS)) {
             let n = sites.len();
             let (kick, pick, accept) = (&mut kick[..n], &mut pick[..n], &mut accept[..n]);
@@ -353,17 +359,19 @@ spindrift_isa::multiversion! {
             // `|` rather than `||`: the factor is computed for every site, so the loop has
             // no branch. A NaN change (a move of zero length) fails both tests. The mask is
             // all ones for an accepted move.
-            let mut keep = [0u64; DRAWS];
+            let (keep, keep3) = (&mut keep[..n], &mut keep3[..3 * n]);
             for k in 0..n {
                 let d = de[k];
                 let p = (d <= 0.0) | (accept[k] < boltzmann_factor(-d * beta));
-                keep[k] = u64::from(p).wrapping_neg();
+                let m = u64::from(p).wrapping_neg();
+                keep[k] = m;
+                keep3[3 * k..3 * k + 3].fill(m);
+                units[k] = f64::from_bits((d * ENERGY_SCALE).round().to_bits() & m);
             }
             // Selects by bit masks, which the compiler keeps free of branches.
-            for k in 0..n {
-                let (t, s, m) = (trials[k], old[k], keep[k]);
-                out[k] = std::array::from_fn(|a| f64::from_bits((t[a].to_bits() & m) | (s[a].to_bits() & !m)));
-                units[k] = f64::from_bits((de[k] * ENERGY_SCALE).round().to_bits() & m);
+            let (t, s) = (trials.as_flattened(), old.as_flattened());
+            for (((o, t), s), m) in out.as_flattened_mut().iter_mut().zip(t).zip(s).zip(keep3.iter()) {
+                *o = f64::from_bits((t.to_bits() & m) | (s.to_bits() & !m));
             }
             let (mut accepted, mut cone_attempted, mut cone_accepted) = (0u64, 0u64, 0u64);
             for k in 0..n {

@@ -357,8 +357,7 @@ spindrift_isa::multiversion! {
             }
             h.energy_changes_from(spins, sites, old, trials, de);
             // `|` rather than `||`: the factor is computed for every site, so the loop has
-            // no branch. A NaN change (a move of zero length) fails both tests. The mask is
-            // all ones for an accepted move.
+            // no branch. A NaN change (a move of zero length) fails both tests.
             let (keep, keep3) = (&mut keep[..n], &mut keep3[..3 * n]);
             for k in 0..n {
                 let d = de[k];

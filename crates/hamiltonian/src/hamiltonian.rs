@@ -80,6 +80,9 @@ struct FusedBond {
     offset: [i32; 3],
     /// Linear index difference to the neighbour when no boundary is crossed.
     delta: isize,
+    /// How the offset moves a cell coordinate along each axis of this supercell (for the
+    /// Monte Carlo block kernel).
+    steps: [trials::AxisStep; 3],
     /// `M_ij / (mu_i muB)`, T per unit spin.
     m: [Vec3; 3],
     /// `Some(J / (mu_i muB))` when `M_ij` is that multiple of the identity (no DMI, no
@@ -255,6 +258,7 @@ impl Hamiltonian {
             .collect();
         let k_field: Vec<f64> = (0..nb).map(|b| 2.0 * k[b] / mu_mev[b]).collect();
         let [n1, n2, _] = cell.cells();
+        let (cells, periodic) = (cell.cells(), cell.periodic());
         let fused: Vec<Vec<FusedBond>> = (0..nb)
             .map(|b| {
                 let mut fused = bonds
@@ -285,7 +289,9 @@ impl Hamiltonian {
                         }
                         let diagonal = (0..3).all(|p| (0..3).all(|q| p == q || m[p][q] == 0.0));
                         let iso = (diagonal && m[1][1] == m[0][0] && m[2][2] == m[0][0]).then_some(m[0][0]);
-                        FusedBond { to: x.to, offset: o, delta, m, iso, j: c.j, d, tensor: c.tensor }
+                        let steps =
+                            std::array::from_fn(|a| trials::AxisStep::new(o[a], cells[a], periodic[a]));
+                        FusedBond { to: x.to, offset: o, delta, steps, m, iso, j: c.j, d, tensor: c.tensor }
                     })
                     .collect::<Vec<_>>();
                 // Matrix bonds before isotropic ones (otherwise in list order): the row

@@ -45,7 +45,8 @@ pub(super) const LANES: usize = 64;
 const MIN_RUN: usize = 4;
 
 /// Sites `k0 .. k0 + len` of a block: one row of cells, the first in cell `c`, each the
-/// next `dc` cells along a1.
+/// next `dc` cells along a1 (1 or 2: a run steps by one or two sites, and by a multiple of
+/// the basis).
 struct Run {
     k0: usize,
     len: usize,
@@ -123,9 +124,10 @@ type Coords = [[u32; LANES]; 3];
 type Fields = [[f64; LANES]; 3];
 
 /// How a bond moves a cell coordinate along one axis (all `u32`, from the bond's offset
-/// `o` and the box length `n`).
-#[derive(Clone, Copy)]
-struct AxisStep {
+/// `o` and the box length `n`). Kept with each bond ([`FusedBond::steps`]): made once per
+/// Hamiltonian, since `o mod n` is an integer division.
+#[derive(Debug, Clone, Copy)]
+pub(super) struct AxisStep {
     /// The coordinates `c` with `lo <= c < hi` have a neighbour along this axis.
     lo: u32,
     hi: u32,
@@ -137,8 +139,7 @@ struct AxisStep {
 }
 
 impl AxisStep {
-    #[inline(always)]
-    fn new(o: i32, n: usize, periodic: bool) -> Self {
+    pub(super) fn new(o: i32, n: usize, periodic: bool) -> Self {
         let n = n as i64;
         let o = i64::from(o);
         if periodic {
@@ -346,9 +347,7 @@ impl Hamiltonian {
     #[inline(always)]
     fn side(&self, bond: &FusedBond, run: &Run) -> Side {
         let cells = self.cell.cells();
-        let periodic = self.cell.periodic();
-        let steps: [AxisStep; 3] =
-            std::array::from_fn(|a| AxisStep::new(bond.offset[a], cells[a], periodic[a]));
+        let steps = &bond.steps;
         let x = steps[0];
         let (t2, v2) = steps[1].step(run.c[1]);
         let (t3, v3) = steps[2].step(run.c[2]);
@@ -358,13 +357,13 @@ impl Hamiltonian {
         if !(v2 && v3) {
             return at;
         }
-        // The number of sites of the run whose coordinate along a1 is below `limit`.
+        // The number of sites of the run whose coordinate along a1 is below `limit`. A run
+        // steps by one or two sites, so by one or two cells: a shift, not a division.
+        debug_assert!(run.dc == 1 || run.dc == 2);
         let below = |limit: u32| -> usize {
-            if limit <= run.c[0] {
-                0
-            } else {
-                ((limit - run.c[0]) as usize).div_ceil(run.dc as usize).min(run.len)
-            }
+            let cells = limit.saturating_sub(run.c[0]) as usize;
+            let sites = if run.dc == 1 { cells } else { cells.div_ceil(2) };
+            sites.min(run.len)
         };
         let (lo, hi) = (below(x.lo), below(x.hi));
         Side { lo, split: below(x.wrap).clamp(lo, hi), hi, ..at }
@@ -503,9 +502,8 @@ impl Lookup {
     #[inline(always)]
     fn new(h: &Hamiltonian, bond: &FusedBond) -> Self {
         let cells = h.cell.cells();
-        let periodic = h.cell.periodic();
         Self {
-            steps: std::array::from_fn(|a| AxisStep::new(bond.offset[a], cells[a], periodic[a])),
+            steps: bond.steps,
             n1: cells[0] as u32,
             n2: cells[1] as u32,
             nb: h.cell.basis_len() as u32,

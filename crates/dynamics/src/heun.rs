@@ -589,7 +589,7 @@ spindrift_isa::multiversion! {
 }
 
 #[cfg(test)]
-mod tests {
+pub(crate) mod tests {
     use super::*;
     use spindrift_hamiltonian::{add_shell, DmiKind, ShellCoupling, ShellRef, Species};
     use spindrift_lattice::{preset, BondList, Supercell};
@@ -602,7 +602,7 @@ mod tests {
     }
 
     /// [`system_with`] of another lattice and other dimensions.
-    fn system_of(
+    pub(crate) fn system_of(
         lattice: &str,
         cells: [usize; 3],
         shells: usize,

@@ -71,10 +71,14 @@
 //!
 //! Each class is processed in blocks of at most [`BLOCK`] sites: the trials of a block
 //! are decided in parallel into a buffer, then written back in parallel over chunks of the
-//! spin array. Deciding runs 64 sites at a time in phases without branches, so that they
-//! vectorise: random numbers in bulk, trial spins (every move computed, one selected),
-//! energy changes ([`Hamiltonian::energy_changes_from`]), acceptance. Memory: 4 bytes per
-//! site for the class lists, plus a buffer of `24 * min(largest class, BLOCK)` bytes.
+//! spin array. With one thread, blocks are [`CACHE_BLOCK`] sites instead: a block has no
+//! barrier to pay for then, and a small one is written back while its spins are still in
+//! the cache (a block's size changes no result: the decisions of a class read only spins
+//! of other classes, and the sums are integers). Deciding runs 64 sites at a time in
+//! phases without branches, so that they vectorise: random numbers in bulk, trial spins
+//! (every move computed, one selected), energy changes
+//! ([`Hamiltonian::energy_changes_from`]), acceptance. Memory: 4 bytes per site for the
+//! class lists, plus a buffer of `24 * min(largest class, BLOCK)` bytes.
 
 use crate::acceptance::boltzmann_factor;
 use crate::colouring::Colouring;
@@ -102,6 +106,13 @@ pub const SIGMA_MAX: f64 = 100.0;
 pub const SIGMA_START: f64 = 0.5;
 /// Sites per block of a colour.
 pub const BLOCK: usize = 64 * CHUNK;
+/// Sites per block of a colour when the sweep runs on one thread: a block's spins, its
+/// neighbours' and the buffer (for nearest neighbours on a layer of 128 x 128 cells,
+/// about 1 MB) stay in a core's L2 cache between being decided and written back. In
+/// callgrind's cache model with a 2 MB L2, a sweep of 128 x 128 x 8 spins (3 MB) in
+/// blocks of [`BLOCK`] missed the L2 2.3 times per site, 0.75 of them in the write-back;
+/// in blocks of this size 0.7 times, none in the write-back.
+pub const CACHE_BLOCK: usize = 2 * CHUNK;
 
 /// Units per meV of the integer energy sum (see "Energy bookkeeping" in the module
 /// documentation): `2^32`, so a rounding costs at most `2^-33` meV per accepted move.
@@ -237,6 +248,22 @@ impl Metropolis {
                 expected: "finite and >= 0 K",
             });
         }
+        let block = if rayon::current_num_threads() == 1 { CACHE_BLOCK } else { BLOCK };
+        self.sweep_in_blocks(h, spins, temperature, sweep_index, adapt, block)
+    }
+
+    /// [`Metropolis::sweep`] with colour blocks of `block_len` sites (at least one, at most
+    /// [`BLOCK`]), for arguments already checked.
+    fn sweep_in_blocks(
+        &mut self,
+        h: &Hamiltonian,
+        spins: &mut [Vec3],
+        temperature: f64,
+        sweep_index: u64,
+        adapt: bool,
+        block_len: usize,
+    ) -> Result<SweepStats, StepError> {
+        debug_assert!((1..=BLOCK).contains(&block_len));
         // At T = 0 this is infinite and only downhill moves pass.
         let beta = 1.0 / (K_B * temperature);
         let stream = self.stream;
@@ -251,7 +278,7 @@ impl Metropolis {
             let weight = class.first().map_or(0.0, |&i| self.tally.weight(i as usize % nb));
             let mut block_start = 0;
             while block_start < class.len() {
-                let block = &class[block_start..(block_start + BLOCK).min(class.len())];
+                let block = &class[block_start..(block_start + block_len).min(class.len())];
                 let buffer = &mut self.buffer[..block.len()];
                 // Decide every trial of the block; the spins of this colour do not change
                 // until all are decided, and no trial reads another spin of its colour.
@@ -424,5 +451,44 @@ fn integer_sum(units: &[f64]) -> i128 {
         i128::from(sum.wrapping_sub((units.len() as i64).wrapping_mul(MAGIC.to_bits() as i64)))
     } else {
         units.iter().map(|&u| u as i128).sum()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::heun::tests::system_of;
+
+    // A block's size changes no bit (see the module documentation): sweeps in blocks of
+    // one site, of a few sites, of sizes that split the runs of a class and its chunks,
+    // and of `BLOCK`, on one and two threads, give the same spins and the same counts, on
+    // a diluted simple cubic lattice with two shells (four colours) and on bcc (two basis
+    // sites, so classes of two sublattices). Common practice for a reordering.
+    #[test]
+    fn block_size_changes_no_bit() {
+        for h in [
+            system_of("simple-cubic", [24, 20, 6], 2, [true, true, false], 0.9),
+            system_of("bcc", [10, 12, 8], 2, [true, false, true], 1.0),
+        ] {
+            let mut start = vec![[0.0; 3]; h.len()];
+            crate::initial::random(&h, &mut start, 5).unwrap();
+            let run = |block: usize, threads: usize| {
+                let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+                let mut mc = Metropolis::new(&h, 3).unwrap();
+                let mut s = start.clone();
+                let stats: Vec<SweepStats> = pool.install(|| {
+                    (0..6).map(|n| mc.sweep_in_blocks(&h, &mut s, 120.0, n, n < 3, block).unwrap()).collect()
+                });
+                let bits: Vec<[u64; 3]> = s.iter().map(|v| v.map(f64::to_bits)).collect();
+                (bits, stats, mc.sigma().to_bits())
+            };
+            let reference = run(BLOCK, 1);
+            assert!(reference.1.iter().all(|st| st.accepted > 0 && st.accepted < st.attempted));
+            for threads in [1, 2] {
+                for block in [1, 7, 64, 100, 1000, BLOCK] {
+                    assert!(run(block, threads) == reference, "blocks of {block}, {threads} threads");
+                }
+            }
+        }
     }
 }

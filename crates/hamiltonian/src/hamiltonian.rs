@@ -257,8 +257,8 @@ impl Hamiltonian {
             })
             .collect();
         let k_field: Vec<f64> = (0..nb).map(|b| 2.0 * k[b] / mu_mev[b]).collect();
-        let [n1, n2, _] = cell.cells();
         let (cells, periodic) = (cell.cells(), cell.periodic());
+        let [n1, n2, _] = cells;
         let fused: Vec<Vec<FusedBond>> = (0..nb)
             .map(|b| {
                 let mut fused = bonds

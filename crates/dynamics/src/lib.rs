@@ -35,6 +35,7 @@ pub mod initial;
 pub mod metropolis;
 mod moment;
 pub mod relax;
+mod slabs;
 
 pub use colouring::Colouring;
 pub use error::{InitError, StepError};

@@ -69,26 +69,39 @@
 //! Gaussians for `g` and four uniforms); the same seed therefore gives a different, equally
 //! valid chain than runs of earlier versions.
 //!
-//! Each class is processed in blocks of at most [`BLOCK`] sites: the trials of a block
-//! are decided in parallel into a buffer, then written back in parallel over chunks of the
-//! spin array. With one thread, blocks are [`CACHE_BLOCK`] sites instead: a block has no
-//! barrier to pay for then, and a small one is written back while its spins are still in
-//! the cache (a block's size changes no result: the decisions of a class read only spins
-//! of other classes, and the sums are integers). Deciding runs 64 sites at a time in
-//! phases without branches, so that they vectorise: random numbers in bulk, trial spins
-//! (every move computed, one selected), energy changes
-//! ([`Hamiltonian::energy_changes_from`]), acceptance. Memory: 4 bytes per site for the
-//! class lists, plus a buffer of `24 * min(largest class, BLOCK)` bytes.
+//! Since the trials of a class read only spins of other classes, a decided spin can
+//! replace its old one at once. Deciding runs 64 sites at a time in phases without
+//! branches, so that they vectorise: random numbers in bulk, trial spins (every move
+//! computed, one selected), energy changes ([`Hamiltonian::energy_changes_in`]),
+//! acceptance; then the 64 decided spins are written back while their cache lines are
+//! still in L1. How a class is shared among threads:
+//!
+//! * One thread: each class is decided in place, in site order.
+//! * Several threads, where the lattice has enough rows of cells: each thread takes a slab
+//!   of rows (`slabs.rs`). Per class, the trials of the sites next to another slab are
+//!   decided first, by all threads from the whole array into a buffer; then each thread
+//!   writes back those of its slab and decides the rest of its slab in place, with no
+//!   barrier until the class is done.
+//! * Otherwise: blocks of at most [`BLOCK`] sites, decided in parallel into a buffer, then
+//!   written back in parallel over chunks of the spin array.
+//!
+//! None of this changes a result (tested): which thread decides a trial and when it is
+//! written back do not matter, and the sums are integers. Memory: 4 bytes per site for
+//! the class lists; with several threads, a buffer of 24 bytes per site of the largest
+//! class's boundary (or of `min(largest class, BLOCK)` sites) and the slabs' lists (at
+//! most 4 bytes per boundary site).
 
 use crate::acceptance::boltzmann_factor;
 use crate::colouring::Colouring;
 use crate::error::{check_len, StepError};
 use crate::moment::{moment_units, MomentTally};
+use crate::slabs::Slabs;
 use rayon::prelude::*;
 use spindrift_hamiltonian::constants::K_B;
 use spindrift_hamiltonian::{Hamiltonian, CHUNK};
 use spindrift_lattice::{dot, Vec3};
 use spindrift_noise::{NoiseStream, STREAM_METROPOLIS};
+use std::ops::Range;
 
 /// Probability of the random-walk move (a multiple of 1/8, see the module documentation).
 pub const P_CONE: f64 = 0.75;
@@ -104,15 +117,8 @@ pub const SIGMA_MIN: f64 = 1e-6;
 pub const SIGMA_MAX: f64 = 100.0;
 /// Initial random-walk width.
 pub const SIGMA_START: f64 = 0.5;
-/// Sites per block of a colour.
+/// Sites per block of a colour where several threads share a class without slabs.
 pub const BLOCK: usize = 64 * CHUNK;
-/// Sites per block of a colour when the sweep runs on one thread: a block's spins, its
-/// neighbours' and the buffer (for nearest neighbours on a layer of 128 x 128 cells,
-/// about 1 MB) stay in a core's L2 cache between being decided and written back. In
-/// callgrind's cache model with a 2 MB L2, a sweep of 128 x 128 x 8 spins (3 MB) in
-/// blocks of [`BLOCK`] missed the L2 2.3 times per site, 0.75 of them in the write-back;
-/// in blocks of this size 0.7 times, none in the write-back.
-pub const CACHE_BLOCK: usize = 2 * CHUNK;
 
 /// Units per meV of the integer energy sum (see "Energy bookkeeping" in the module
 /// documentation): `2^32`, so a rounding costs at most `2^-33` meV per accepted move.
@@ -182,6 +188,10 @@ pub struct Metropolis {
     buffer: Vec<Vec3>,
     sigma: f64,
     len: usize,
+    /// The split among threads for the thread count `slab_threads` (0: none made yet),
+    /// `None` where it does not pay (see [`Slabs::new`]).
+    slabs: Option<Slabs>,
+    slab_threads: usize,
 }
 
 impl Metropolis {
@@ -189,14 +199,16 @@ impl Metropolis {
     /// bond graph once.
     pub fn new(h: &Hamiltonian, seed: u64) -> Result<Self, StepError> {
         let colouring = Colouring::new(h)?;
-        let buffer = vec![[0.0; 3]; colouring.largest_class().min(BLOCK)];
         Ok(Self {
             stream: NoiseStream::new(seed, STREAM_METROPOLIS),
             colouring,
             tally: MomentTally::new(h),
-            buffer,
+            // Sized by the first sweep that needs it (one thread needs none).
+            buffer: Vec::new(),
             sigma: SIGMA_START,
             len: h.len(),
+            slabs: None,
+            slab_threads: 0,
         })
     }
 
@@ -221,10 +233,12 @@ impl Metropolis {
         self.sigma = if sigma.is_nan() { SIGMA_START } else { sigma.clamp(SIGMA_MIN, SIGMA_MAX) };
     }
 
-    /// Bytes held per site of the supercell (colour lists and buffer).
+    /// Bytes held per site of the supercell (colour lists and, once a sweep has run on
+    /// several threads, the buffer and the split of the lattice).
     pub fn bytes_per_site(&self) -> f64 {
-        self.colouring.bytes_per_site(self.len)
-            + (self.buffer.len() * std::mem::size_of::<Vec3>()) as f64 / self.len.max(1) as f64
+        let buffers = self.buffer.len() * std::mem::size_of::<Vec3>();
+        let slabs = self.slabs.as_ref().map_or(0, Slabs::bytes);
+        self.colouring.bytes_per_site(self.len) + (buffers + slabs) as f64 / self.len.max(1) as f64
     }
 
     /// One sweep: one trial move per occupied site, at `temperature` (K). `sweep_index`
@@ -248,8 +262,46 @@ impl Metropolis {
                 expected: "finite and >= 0 K",
             });
         }
-        let block = if rayon::current_num_threads() == 1 { CACHE_BLOCK } else { BLOCK };
-        self.sweep_in_blocks(h, spins, temperature, sweep_index, adapt, block)
+        let threads = rayon::current_num_threads();
+        if threads == 1 {
+            return Ok(self.sweep_in_place(h, spins, temperature, sweep_index, adapt));
+        }
+        if self.slab_threads != threads {
+            // Once per run (or when the thread count changes), not per sweep.
+            self.slabs = Slabs::new(h, &self.colouring, threads);
+            self.slab_threads = threads;
+        }
+        match self.slabs.take() {
+            Some(slabs) => {
+                let stats = self.sweep_in_slabs(&slabs, h, spins, temperature, sweep_index, adapt);
+                self.slabs = Some(slabs);
+                Ok(stats)
+            }
+            None => self.sweep_in_blocks(h, spins, temperature, sweep_index, adapt, BLOCK),
+        }
+    }
+
+    /// [`Metropolis::sweep`] on one thread, for arguments already checked: each class
+    /// decided and written back in place, 64 sites at a time.
+    fn sweep_in_place(
+        &mut self,
+        h: &Hamiltonian,
+        spins: &mut [Vec3],
+        temperature: f64,
+        sweep_index: u64,
+        adapt: bool,
+    ) -> SweepStats {
+        let beta = 1.0 / (K_B * temperature);
+        let nb = h.cell().basis_len();
+        let mut total = Counts::default();
+        for c in 0..self.colouring.len() {
+            let class = self.colouring.class(c);
+            let weight = class.first().map_or(0.0, |&i| self.tally.weight(i as usize % nb));
+            let ctx =
+                TrialContext { h, stream: self.stream, sigma: self.sigma, beta, step: sweep_index, weight };
+            total = total.add(decide_in_place(&ctx, spins, 0, class));
+        }
+        self.finish(total, adapt)
     }
 
     /// [`Metropolis::sweep`] with colour blocks of `block_len` sites (at least one, at most
@@ -264,6 +316,10 @@ impl Metropolis {
         block_len: usize,
     ) -> Result<SweepStats, StepError> {
         debug_assert!((1..=BLOCK).contains(&block_len));
+        let need = self.colouring.largest_class().min(block_len);
+        if self.buffer.len() < need {
+            self.buffer.resize(need, [0.0; 3]);
+        }
         // At T = 0 this is infinite and only downhill moves pass.
         let beta = 1.0 / (K_B * temperature);
         let stream = self.stream;
@@ -282,17 +338,8 @@ impl Metropolis {
                 let buffer = &mut self.buffer[..block.len()];
                 // Decide every trial of the block; the spins of this colour do not change
                 // until all are decided, and no trial reads another spin of its colour.
-                let ctx = TrialContext { h, spins: &*spins, stream, sigma, beta, step: sweep_index, weight };
-                let counts = if block.len() <= CHUNK {
-                    decide(&ctx, buffer, block)
-                } else {
-                    buffer
-                        .par_chunks_mut(CHUNK)
-                        .zip(block.par_chunks(CHUNK))
-                        .map(|(o, s)| decide(&ctx, o, s))
-                        .reduce(Counts::default, Counts::add)
-                };
-                total = total.add(counts);
+                let ctx = TrialContext { h, stream, sigma, beta, step: sweep_index, weight };
+                total = total.add(decide_in_chunks(&ctx, spins, buffer, block));
 
                 // Write back, in parallel over the chunks of the spin array that hold
                 // sites of this block.
@@ -321,25 +368,113 @@ impl Metropolis {
                 block_start = block_end;
             }
         }
+        Ok(self.finish(total, adapt))
+    }
 
+    /// [`Metropolis::sweep`] split among threads by `slabs` (made for the current thread
+    /// count), for arguments already checked. Per class: the boundary trials are decided
+    /// by all threads from the whole array, then each thread writes back the boundary
+    /// results of its slab and decides and writes back its interior in cache-sized blocks,
+    /// with no barrier between blocks.
+    fn sweep_in_slabs(
+        &mut self,
+        slabs: &Slabs,
+        h: &Hamiltonian,
+        spins: &mut [Vec3],
+        temperature: f64,
+        sweep_index: u64,
+        adapt: bool,
+    ) -> SweepStats {
+        if self.buffer.len() < slabs.largest_boundary() {
+            self.buffer.resize(slabs.largest_boundary(), [0.0; 3]);
+        }
+        let Self { stream, colouring, tally, buffer, sigma, .. } = self;
+        let beta = 1.0 / (K_B * temperature);
+        let nb = h.cell().basis_len();
+        let mut total = Counts::default();
+        for c in 0..colouring.len() {
+            let class = colouring.class(c);
+            let weight = class.first().map_or(0.0, |&i| tally.weight(i as usize % nb));
+            let ctx = TrialContext { h, stream: *stream, sigma: *sigma, beta, step: sweep_index, weight };
+            let boundary = slabs.boundary(c);
+            let decided = &mut buffer[..boundary.len()];
+            total = total.add(decide_in_chunks(&ctx, spins, decided, boundary));
+            let pass = SlabPass { slabs, c, class, boundary, decided: &buffer[..boundary.len()] };
+            total = total.add(slab_pass(&pass, &ctx, 0..slabs.len(), spins));
+        }
+        self.finish(total, adapt)
+    }
+
+    /// The statistics of a sweep from its counts; adapts the random-walk width if asked.
+    fn finish(&mut self, total: Counts, adapt: bool) -> SweepStats {
         if adapt && total.cone_attempted > 0 {
             let r = total.cone_accepted as f64 / total.cone_attempted as f64;
             self.set_sigma(self.sigma * (0.5 + r) / (1.5 - r));
         }
-        Ok(SweepStats {
+        SweepStats {
             accepted: total.accepted,
             attempted: total.attempted,
             energy_change: total.energy_change as f64 / ENERGY_SCALE,
             moment: total.moment,
-        })
+        }
     }
 }
 
-/// What every trial of one colour block shares.
+/// What the slabs share in the pass of one class (see [`Metropolis::sweep_in_slabs`]).
+struct SlabPass<'a> {
+    slabs: &'a Slabs,
+    /// The class and its sites.
+    c: usize,
+    class: &'a [u32],
+    /// The class's boundary sites and their decided spins.
+    boundary: &'a [u32],
+    decided: &'a [Vec3],
+}
+
+/// The pass of slabs `range` over `spins`, their sites (from the first slab's first);
+/// halves run in parallel.
+fn slab_pass(pass: &SlabPass<'_>, ctx: &TrialContext<'_>, range: Range<usize>, spins: &mut [Vec3]) -> Counts {
+    if range.len() == 1 {
+        return slab_class(pass, ctx, range.start, spins);
+    }
+    let mid = (range.start + range.end) / 2;
+    let (a, b) = spins.split_at_mut(pass.slabs.start(mid) - pass.slabs.start(range.start));
+    let (x, y) =
+        rayon::join(|| slab_pass(pass, ctx, range.start..mid, a), || slab_pass(pass, ctx, mid..range.end, b));
+    x.add(y)
+}
+
+/// Slab `p`'s part of a class: writes back its boundary results, then decides its
+/// interior trials in place. `slab` holds the slab's sites.
+fn slab_class(pass: &SlabPass<'_>, ctx: &TrialContext<'_>, p: usize, slab: &mut [Vec3]) -> Counts {
+    let origin = pass.slabs.sites(p).start;
+    for k in pass.slabs.boundary_in(pass.c, p) {
+        slab[pass.boundary[k] as usize - origin] = pass.decided[k];
+    }
+    let mut counts = Counts::default();
+    for r in pass.slabs.interior(pass.c, p) {
+        counts =
+            counts.add(decide_in_place(ctx, slab, origin, &pass.class[r.start as usize..r.end as usize]));
+    }
+    counts
+}
+
+/// Decides the trials of `sites` into `out`, in parallel chunks of [`CHUNK`] sites.
+fn decide_in_chunks(ctx: &TrialContext<'_>, spins: &[Vec3], out: &mut [Vec3], sites: &[u32]) -> Counts {
+    if sites.len() <= CHUNK {
+        decide(ctx, spins, out, sites)
+    } else {
+        out.par_chunks_mut(CHUNK)
+            .zip(sites.par_chunks(CHUNK))
+            .map(|(o, s)| decide(ctx, spins, o, s))
+            .reduce(Counts::default, Counts::add)
+    }
+}
+
+/// What every trial of one class shares.
 #[derive(Clone, Copy)]
 struct TrialContext<'a> {
     h: &'a Hamiltonian,
-    spins: &'a [Vec3],
     stream: NoiseStream,
     sigma: f64,
     /// `1 / kB T`, 1/meV (infinite at 0 K).
@@ -350,72 +485,148 @@ struct TrialContext<'a> {
     weight: f64,
 }
 
+/// Where the decided spins of a group of trials go: the spins they are decided from,
+/// and a store for the decisions.
+trait Decisions {
+    /// The spins of sites `origin() ..`.
+    fn spins(&self) -> &[Vec3];
+    fn origin(&self) -> usize;
+    /// Keeps the decided spins `new` of `sites`, the group of trials from position `k0`
+    /// of the call's site list.
+    fn store(&mut self, k0: usize, sites: &[u32], new: &[Vec3]);
+}
+
+/// Decisions into a buffer, the spins unchanged (the trials of one class may then be
+/// decided by several threads from one array).
+struct IntoBuffer<'a> {
+    spins: &'a [Vec3],
+    out: &'a mut [Vec3],
+}
+
+impl Decisions for IntoBuffer<'_> {
+    #[inline(always)]
+    fn spins(&self) -> &[Vec3] {
+        self.spins
+    }
+    #[inline(always)]
+    fn origin(&self) -> usize {
+        0
+    }
+    #[inline(always)]
+    fn store(&mut self, k0: usize, _: &[u32], new: &[Vec3]) {
+        self.out[k0..k0 + new.len()].copy_from_slice(new);
+    }
+}
+
+/// Decisions written straight into the spins, `spins[j]` being site `origin + j`: the
+/// trials of a class read only spins of other classes, so a decided spin can replace
+/// its old one at once, while its cache line is still at hand.
+struct InPlace<'a> {
+    spins: &'a mut [Vec3],
+    origin: usize,
+}
+
+impl Decisions for InPlace<'_> {
+    #[inline(always)]
+    fn spins(&self) -> &[Vec3] {
+        self.spins
+    }
+    #[inline(always)]
+    fn origin(&self) -> usize {
+        self.origin
+    }
+    #[inline(always)]
+    fn store(&mut self, _: usize, sites: &[u32], new: &[Vec3]) {
+        for (&i, &s) in sites.iter().zip(new) {
+            self.spins[i as usize - self.origin] = s;
+        }
+    }
+}
+
 spindrift_isa::multiversion! {
     /// Decides the trials of `sites` (one colour class, so no trial reads another's spin)
-    /// into `out`; the spins do not change until every trial of the block is decided.
-    /// Compiled per instruction-set level (same bits on each).
-    fn decide(ctx: &TrialContext<'_>, out: &mut [Vec3], sites: &[u32]) -> Counts {
-        let TrialContext { h, spins, stream, sigma, beta, step, weight } = *ctx;
-        let mut counts = Counts::default();
-        // A few sites at a time, in phases without branches: random numbers in bulk (bitwise
-        // the per-site values), trial spins, energy changes, acceptance. On the stack.
-        let mut kick = [[0.0; 3]; DRAWS];
-        let mut pick = [0.0; DRAWS];
-        let mut accept = [0.0; DRAWS];
-        let mut old = [[0.0; 3]; DRAWS];
-        let mut trials = [[0.0; 3]; DRAWS];
-        let mut de = [0.0; DRAWS];
-        let mut units = [0.0; DRAWS];
-        // Acceptance masks, all ones for an accepted move; and the same once per component,
-        // so that the selection runs over flat arrays of numbers, which vectorises (over
-        // `[f64; 3]` it did not).
-        let mut keep = [0u64; DRAWS];
-        let mut keep3 = [0u64; 3 * DRAWS];
-        for (out, sites) in out.chunks_mut(DRAWS).zip(sites.chunks(DRAWS)) {
-            let n = sites.len();
-            let (kick, pick, accept) = (&mut kick[..n], &mut pick[..n], &mut accept[..n]);
-            let (old, trials, de, units) = (&mut old[..n], &mut trials[..n], &mut de[..n], &mut units[..n]);
-            stream.fill_trial_at(step, sites, kick, pick, accept);
-            for (o, &i) in old.iter_mut().zip(sites) {
-                *o = spins[i as usize];
-            }
-            for k in 0..n {
-                trials[k] = trial_spin(old[k], pick[k], kick[k], sigma);
-            }
-            h.energy_changes_from(spins, sites, old, trials, de);
-            // `|` rather than `||`: the factor is computed for every site, so the loop has
-            // no branch. A NaN change (a move of zero length) fails both tests.
-            let (keep, keep3) = (&mut keep[..n], &mut keep3[..3 * n]);
-            for k in 0..n {
-                let d = de[k];
-                let p = (d <= 0.0) | (accept[k] < boltzmann_factor(-d * beta));
-                let m = u64::from(p).wrapping_neg();
-                keep[k] = m;
-                keep3[3 * k..3 * k + 3].fill(m);
-                units[k] = f64::from_bits((d * ENERGY_SCALE).round().to_bits() & m);
-            }
-            // Selects by bit masks, which the compiler keeps free of branches.
-            let (t, s) = (trials.as_flattened(), old.as_flattened());
-            for (((o, t), s), m) in out.as_flattened_mut().iter_mut().zip(t).zip(s).zip(keep3.iter()) {
-                *o = f64::from_bits((t.to_bits() & m) | (s.to_bits() & !m));
-            }
-            let (mut accepted, mut cone_attempted, mut cone_accepted) = (0u64, 0u64, 0u64);
-            for k in 0..n {
-                let cone = u64::from(pick[k] < P_CONE);
-                let p = keep[k] & 1;
-                accepted += p;
-                cone_attempted += cone;
-                cone_accepted += cone & p;
-            }
-            counts.attempted += n as u64;
-            counts.accepted += accepted;
-            counts.cone_attempted += cone_attempted;
-            counts.cone_accepted += cone_accepted;
-            counts.energy_change += integer_sum(units);
-            counts.moment = crate::moment::add(counts.moment, moment_units(weight, out));
-        }
-        counts
+    /// from `spins` into `out`. Compiled per instruction-set level (same bits on each).
+    fn decide(ctx: &TrialContext<'_>, spins: &[Vec3], out: &mut [Vec3], sites: &[u32]) -> Counts {
+        decide_into(ctx, IntoBuffer { spins, out }, sites)
     }
+}
+
+spindrift_isa::multiversion! {
+    /// Decides the trials of `sites` (one colour class) and writes each decided spin into
+    /// `spins`, which holds sites `origin ..` and every neighbour of `sites`. Compiled per
+    /// instruction-set level (same bits on each).
+    fn decide_in_place(ctx: &TrialContext<'_>, spins: &mut [Vec3], origin: usize, sites: &[u32]) -> Counts {
+        decide_into(ctx, InPlace { spins, origin }, sites)
+    }
+}
+
+/// The body of [`decide`] and [`decide_in_place`].
+#[inline(always)]
+fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) -> Counts {
+    let TrialContext { h, stream, sigma, beta, step, weight } = *ctx;
+    let mut counts = Counts::default();
+    // A few sites at a time, in phases without branches: random numbers in bulk (bitwise
+    // the per-site values), trial spins, energy changes, acceptance. On the stack.
+    let mut kick = [[0.0; 3]; DRAWS];
+    let mut pick = [0.0; DRAWS];
+    let mut accept = [0.0; DRAWS];
+    let mut old = [[0.0; 3]; DRAWS];
+    let mut trials = [[0.0; 3]; DRAWS];
+    let mut chosen = [[0.0; 3]; DRAWS];
+    let mut de = [0.0; DRAWS];
+    let mut units = [0.0; DRAWS];
+    // Acceptance masks, all ones for an accepted move; and the same once per component,
+    // so that the selection runs over flat arrays of numbers, which vectorises (over
+    // `[f64; 3]` it did not).
+    let mut keep = [0u64; DRAWS];
+    let mut keep3 = [0u64; 3 * DRAWS];
+    for (g, sites) in sites.chunks(DRAWS).enumerate() {
+        let n = sites.len();
+        let (kick, pick, accept) = (&mut kick[..n], &mut pick[..n], &mut accept[..n]);
+        let (old, trials, de, units) = (&mut old[..n], &mut trials[..n], &mut de[..n], &mut units[..n]);
+        let chosen = &mut chosen[..n];
+        stream.fill_trial_at(step, sites, kick, pick, accept);
+        let (spins, origin) = (to.spins(), to.origin());
+        for (o, &i) in old.iter_mut().zip(sites) {
+            *o = spins[i as usize - origin];
+        }
+        for k in 0..n {
+            trials[k] = trial_spin(old[k], pick[k], kick[k], sigma);
+        }
+        h.energy_changes_in(spins, origin, sites, old, trials, de);
+        // `|` rather than `||`: the factor is computed for every site, so the loop has
+        // no branch. A NaN change (a move of zero length) fails both tests.
+        let (keep, keep3) = (&mut keep[..n], &mut keep3[..3 * n]);
+        for k in 0..n {
+            let d = de[k];
+            let p = (d <= 0.0) | (accept[k] < boltzmann_factor(-d * beta));
+            let m = u64::from(p).wrapping_neg();
+            keep[k] = m;
+            keep3[3 * k..3 * k + 3].fill(m);
+            units[k] = f64::from_bits((d * ENERGY_SCALE).round().to_bits() & m);
+        }
+        // Selects by bit masks, which the compiler keeps free of branches.
+        let (t, s) = (trials.as_flattened(), old.as_flattened());
+        for (((o, t), s), m) in chosen.as_flattened_mut().iter_mut().zip(t).zip(s).zip(keep3.iter()) {
+            *o = f64::from_bits((t.to_bits() & m) | (s.to_bits() & !m));
+        }
+        let (mut accepted, mut cone_attempted, mut cone_accepted) = (0u64, 0u64, 0u64);
+        for k in 0..n {
+            let cone = u64::from(pick[k] < P_CONE);
+            let p = keep[k] & 1;
+            accepted += p;
+            cone_attempted += cone;
+            cone_accepted += cone & p;
+        }
+        counts.attempted += n as u64;
+        counts.accepted += accepted;
+        counts.cone_attempted += cone_attempted;
+        counts.cone_accepted += cone_accepted;
+        counts.energy_change += integer_sum(units);
+        counts.moment = crate::moment::add(counts.moment, moment_units(weight, chosen));
+        to.store(g * DRAWS, sites, chosen);
+    }
+    counts
 }
 
 /// The trial spin for spin `s` (see "Moves" in the module documentation): `choice`
@@ -463,7 +674,8 @@ mod tests {
     // one site, of a few sites, of sizes that split the runs of a class and its chunks,
     // and of `BLOCK`, on one and two threads, give the same spins and the same counts, on
     // a diluted simple cubic lattice with two shells (four colours) and on bcc (two basis
-    // sites, so classes of two sublattices). Common practice for a reordering.
+    // sites, so classes of two sublattices); and so does the one-thread sweep, which
+    // writes each decided spin back at once. Common practice for a reordering.
     #[test]
     fn block_size_changes_no_bit() {
         for h in [
@@ -484,10 +696,52 @@ mod tests {
             };
             let reference = run(BLOCK, 1);
             assert!(reference.1.iter().all(|st| st.accepted > 0 && st.accepted < st.attempted));
+            let mut mc = Metropolis::new(&h, 3).unwrap();
+            let mut s = start.clone();
+            let pool = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+            let stats: Vec<SweepStats> =
+                pool.install(|| (0..6).map(|n| mc.sweep(&h, &mut s, 120.0, n, n < 3).unwrap()).collect());
+            let bits: Vec<[u64; 3]> = s.iter().map(|v| v.map(f64::to_bits)).collect();
+            assert!((bits, stats, mc.sigma().to_bits()) == reference, "in place, one thread");
             for threads in [1, 2] {
                 for block in [1, 7, 64, 100, 1000, BLOCK] {
                     assert!(run(block, threads) == reference, "blocks of {block}, {threads} threads");
                 }
+            }
+        }
+    }
+
+    // Splitting a sweep among threads by slabs changes no bit (see the module
+    // documentation and `slabs.rs`): sweeps on 2, 3 and 4 threads, which split the lattice,
+    // give the spins, counts and width of one thread, on a diluted simple cubic lattice with
+    // two shells, a periodic one with three, a film of one layer (split along a2) and bcc
+    // (two basis sites). Common practice for a reordering.
+    #[test]
+    fn slabs_change_no_bit() {
+        for h in [
+            system_of("simple-cubic", [24, 20, 12], 2, [true, true, false], 0.9),
+            system_of("simple-cubic", [12, 10, 16], 3, [true, true, true], 1.0),
+            system_of("simple-cubic", [32, 48, 1], 1, [true, true, false], 1.0),
+            system_of("bcc", [10, 12, 16], 2, [true, false, true], 1.0),
+        ] {
+            let mut start = vec![[0.0; 3]; h.len()];
+            crate::initial::random(&h, &mut start, 5).unwrap();
+            let run = |threads: usize| {
+                let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+                let mut mc = Metropolis::new(&h, 3).unwrap();
+                let mut s = start.clone();
+                let stats: Vec<SweepStats> =
+                    pool.install(|| (0..6).map(|n| mc.sweep(&h, &mut s, 120.0, n, n < 3).unwrap()).collect());
+                let bits: Vec<[u64; 3]> = s.iter().map(|v| v.map(f64::to_bits)).collect();
+                ((bits, stats, mc.sigma().to_bits()), mc.slabs.is_some())
+            };
+            let (reference, split) = run(1);
+            assert!(!split);
+            assert!(reference.1.iter().all(|st| st.accepted > 0 && st.accepted < st.attempted));
+            for threads in [2, 3, 4] {
+                let (result, split) = run(threads);
+                assert!(split, "{threads} threads did not split the lattice");
+                assert!(result == reference, "{threads} threads");
             }
         }
     }

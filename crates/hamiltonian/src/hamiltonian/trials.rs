@@ -123,6 +123,22 @@ type Coords = [[u32; LANES]; 3];
 /// Pair fields of the sites of a block, component-major, T per unit spin.
 type Fields = [[f64; LANES]; 3];
 
+/// The spins of sites `origin .. origin + spins.len()` (see
+/// [`Hamiltonian::energy_changes_in`]); the kernel indexes it by site.
+#[derive(Clone, Copy)]
+struct Window<'a> {
+    spins: &'a [Vec3],
+    origin: usize,
+}
+
+impl Window<'_> {
+    /// Position in the window of site `j`, which must not lie before it.
+    #[inline(always)]
+    fn at(&self, j: usize) -> usize {
+        j - self.origin
+    }
+}
+
 /// How a bond moves a cell coordinate along one axis (all `u32`, from the bond's offset
 /// `o` and the box length `n`). Kept with each bond ([`FusedBond::steps`]): made once per
 /// Hamiltonian, since `o mod n` is an integer division.
@@ -189,15 +205,36 @@ impl Hamiltonian {
         new: &[Vec3],
         out: &mut [f64],
     ) {
+        self.energy_changes_in(spins, 0, sites, old, new, out);
+    }
+
+    /// [`Hamiltonian::energy_changes_from`] given a window of the spins: `window[j]` is the
+    /// spin of site `origin + j`. Every neighbour that a bond of a listed site reaches
+    /// must lie in the window (sites and results are as for the whole array); this lets
+    /// a thread decide the trials of its own part of the lattice while it writes that part,
+    /// without a view of the spins other threads write. Panics if the four lengths differ
+    /// or a site or a neighbour lies outside the window; `old` is not checked.
+    #[inline(always)]
+    pub fn energy_changes_in(
+        &self,
+        window: &[Vec3],
+        origin: usize,
+        sites: &[u32],
+        old: &[Vec3],
+        new: &[Vec3],
+        out: &mut [f64],
+    ) {
         let n = sites.len();
         assert!(old.len() == n && new.len() == n && out.len() == n, "one trial and one output per site");
         if self.len() > u32::MAX as usize {
             // Beyond the block kernel's 32-bit cell arithmetic: one site at a time.
+            assert!(origin == 0, "a window of the spins needs fewer than 2^32 sites");
             for ((&i, &t), o) in sites.iter().zip(new).zip(out.iter_mut()) {
-                *o = self.energy_change(spins, i as usize, t);
+                *o = self.energy_change(window, i as usize, t);
             }
             return;
         }
+        let spins = Window { spins: window, origin };
         for (((s, o), t), d) in
             sites.chunks(LANES).zip(old.chunks(LANES)).zip(new.chunks(LANES)).zip(out.chunks_mut(LANES))
         {
@@ -210,7 +247,7 @@ impl Hamiltonian {
     #[inline(always)]
     fn energy_changes_block_from(
         &self,
-        spins: &[Vec3],
+        spins: Window<'_>,
         sites: &[u32],
         old: &[Vec3],
         new: &[Vec3],
@@ -288,7 +325,7 @@ impl Hamiltonian {
     #[inline(always)]
     fn add_bonds_by_runs(
         &self,
-        spins: &[Vec3],
+        spins: Window<'_>,
         sites: &[u32],
         b: usize,
         h: &mut Fields,
@@ -378,7 +415,7 @@ impl Hamiltonian {
     #[inline(always)]
     fn add_entry_run<const D: usize, const KIND: u8>(
         &self,
-        spins: &[Vec3],
+        spins: Window<'_>,
         b: usize,
         entry: &Entry,
         run: &Run,
@@ -388,10 +425,11 @@ impl Hamiltonian {
         let near = self.side(&bonds[entry.bond], run);
         let (m, j, e) = (&bonds[entry.bond].m, entry.j, &entry.e);
         let zero = [0.0; 3];
+        let window = spins.spins;
         if !is_pair(KIND) {
             for (ka, kb) in [(near.lo, near.split), (near.split, near.hi)] {
                 if let (true, Some(j0)) = (ka < kb, near.at(ka)) {
-                    add_strided::<D>(spins, j0, h, run.k0 + ka, kb - ka, |s| {
+                    add_strided::<D>(window, spins.at(j0), h, run.k0 + ka, kb - ka, |s| {
                         entry_term::<KIND>(&s, &s, m, j, e)
                     });
                 }
@@ -409,14 +447,16 @@ impl Hamiltonian {
             let (k0, n) = (run.k0 + ka, kb - ka);
             match (near.at(ka), far.at(ka)) {
                 (Some(js), Some(jt)) => {
-                    add_strided_pair::<D>(spins, js, jt, h, k0, n, |s, t| entry_term::<KIND>(&s, &t, m, j, e))
+                    add_strided_pair::<D>(window, spins.at(js), spins.at(jt), h, k0, n, |s, t| {
+                        entry_term::<KIND>(&s, &t, m, j, e)
+                    })
                 }
-                (Some(js), None) => {
-                    add_strided::<D>(spins, js, h, k0, n, |s| entry_term::<KIND>(&s, &zero, m, j, e))
-                }
-                (None, Some(jt)) => {
-                    add_strided::<D>(spins, jt, h, k0, n, |t| entry_term::<KIND>(&zero, &t, m, j, e))
-                }
+                (Some(js), None) => add_strided::<D>(window, spins.at(js), h, k0, n, |s| {
+                    entry_term::<KIND>(&s, &zero, m, j, e)
+                }),
+                (None, Some(jt)) => add_strided::<D>(window, spins.at(jt), h, k0, n, |t| {
+                    entry_term::<KIND>(&zero, &t, m, j, e)
+                }),
                 (None, None) => {}
             }
         }
@@ -430,7 +470,7 @@ impl Hamiltonian {
     #[allow(clippy::too_many_arguments)]
     fn add_entry<const KIND: u8>(
         &self,
-        spins: &[Vec3],
+        spins: Window<'_>,
         b: usize,
         entry: &Entry,
         c: &Coords,
@@ -445,10 +485,12 @@ impl Hamiltonian {
         let [h0, h1, h2] = h;
         let (h0, h1, h2) = (&mut h0[..len], &mut h1[..len], &mut h2[..len]);
         let (c0, c1, c2) = (&c[0][..len], &c[1][..len], &c[2][..len]);
+        let mut outside = false;
         for k in 0..len {
             let cell = [c0[k], c1[k], c2[k]];
-            let (s, vs) = near.spin(spins, cell);
-            let (t, vt) = if is_pair(KIND) { far.spin(spins, cell) } else { (s, vs) };
+            let (s, vs, os) = near.spin(spins, cell);
+            let (t, vt, ot) = if is_pair(KIND) { far.spin(spins, cell) } else { (s, vs, os) };
+            outside |= (os | ot) & lanes[k];
             let valid = (vs | vt) & lanes[k];
             let add = entry_term::<KIND>(&s, &t, m, j, e);
             // Skipping (rather than adding a zero) keeps the bits of the one-site sum.
@@ -456,6 +498,7 @@ impl Hamiltonian {
             h1[k] = if valid { h1[k] + add[1] } else { h1[k] };
             h2[k] = if valid { h2[k] + add[2] } else { h2[k] };
         }
+        assert!(!outside, "a neighbour outside the window of spins");
     }
 }
 
@@ -511,9 +554,10 @@ impl Lookup {
         }
     }
 
-    /// The neighbour's spin (zero where an open face cuts the bond) and whether it exists.
+    /// The neighbour's spin (zero where an open face cuts the bond), whether it exists, and
+    /// whether it exists but lies outside the window.
     #[inline(always)]
-    fn spin(&self, spins: &[Vec3], c: [u32; 3]) -> (Vec3, bool) {
+    fn spin(&self, spins: Window<'_>, c: [u32; 3]) -> (Vec3, bool, bool) {
         let (t0, v0) = self.steps[0].step(c[0]);
         let (t1, v1) = self.steps[1].step(c[1]);
         let (t2, v2) = self.steps[2].step(c[2]);
@@ -521,10 +565,14 @@ impl Lookup {
         let j = ((t2.wrapping_mul(self.n2).wrapping_add(t1)).wrapping_mul(self.n1).wrapping_add(t0))
             .wrapping_mul(self.nb)
             .wrapping_add(self.to);
-        // Where the bond is cut, `j` may be any value; the load is masked.
-        match spins.get(j as usize) {
-            Some(s) if valid => (*s, true),
-            _ => ([0.0; 3], false),
+        // Where the bond is cut, `j` may be any value; the load is masked. A neighbour
+        // outside the window (below the origin too, by wrapping) is the caller's error,
+        // reported as the third value rather than by a branch here, which would keep the
+        // loop from vectorising.
+        match spins.spins.get((j as usize).wrapping_sub(spins.origin)) {
+            Some(s) if valid => (*s, true, false),
+            None => ([0.0; 3], false, valid),
+            _ => ([0.0; 3], false, false),
         }
     }
 }
@@ -606,6 +654,67 @@ mod tests {
                     assert_eq!(o.to_bits(), e.to_bits(), "{name} {cells:?} site {i}: {o} != {e}");
                 }
             }
+        }
+    }
+
+    // A window of the spins gives the bits of the whole array (our own behaviour) when it
+    // holds every neighbour: layers of cells cut out of open and periodic boxes, runs of
+    // step 1 and 2 and the per-site path, one and two basis sites, three shells.
+    #[test]
+    fn window_gives_the_bits_of_the_whole_array() {
+        let cases = [
+            ("simple-cubic", [8, 6, 10], [true, true, false], 1),
+            ("simple-cubic", [7, 5, 12], [false, true, true], 3),
+            ("bcc", [4, 3, 9], [true, false, true], 2),
+        ];
+        for (name, cells, periodic, shells) in cases {
+            let couplings =
+                TestCouplings { seed: 3, d: 0.6, dmi_shells: 2, tensor: false, anisotropy: TILTED };
+            let h = test_system(name, cells, periodic, shells, 1.0, couplings);
+            let layer = h.len() / cells[2];
+            let spins: Vec<Vec3> = (0..h.len()).map(|i| unit(4, i)).collect();
+            // Sites of layers 3 .. 5; every bond here reaches one layer at most (the third
+            // shell of simple cubic, (1, 1, 1), too), so layers 2 .. 6 hold the neighbours.
+            let (first, last) = (3 * layer as u32, 6 * layer as u32);
+            let lists: [Vec<u32>; 3] = [
+                (first..last).collect(),
+                (first..last).step_by(2).collect(),
+                (first..last).filter(|&i| unit_hash(9, 0, u64::from(i)) < 0.5).collect(),
+            ];
+            let window = &spins[2 * layer..7 * layer];
+            for sites in lists {
+                let new: Vec<Vec3> = sites.iter().map(|&i| unit(8, i as usize)).collect();
+                let old: Vec<Vec3> = sites.iter().map(|&i| spins[i as usize]).collect();
+                let (mut whole, mut part) = (vec![f64::NAN; sites.len()], vec![f64::NAN; sites.len()]);
+                h.energy_changes_from(&spins, &sites, &old, &new, &mut whole);
+                h.energy_changes_in(window, 2 * layer, &sites, &old, &new, &mut part);
+                for ((&i, a), b) in sites.iter().zip(&whole).zip(&part) {
+                    assert_eq!(a.to_bits(), b.to_bits(), "{name} site {i}");
+                }
+            }
+        }
+    }
+
+    // A window that lacks a neighbour panics rather than reading a zero spin, on the
+    // strided path and on the per-site path (our own behaviour).
+    #[test]
+    fn window_without_a_neighbour_panics() {
+        let couplings = TestCouplings { seed: 3, d: 0.6, dmi_shells: 2, tensor: false, anisotropy: TILTED };
+        let h = test_system("simple-cubic", [8, 6, 10], [true, true, false], 1, 1.0, couplings);
+        let layer = h.len() / 10;
+        let spins: Vec<Vec3> = (0..h.len()).map(|i| unit(4, i)).collect();
+        let window = &spins[3 * layer..7 * layer];
+        // Layer 3's sites reach layer 2, outside the window.
+        let strided: Vec<u32> = (3 * layer as u32..4 * layer as u32).collect();
+        let scattered: Vec<u32> = vec![3 * layer as u32 + 5, 3 * layer as u32 + 1, 4 * layer as u32 + 7];
+        for sites in [strided, scattered] {
+            let new: Vec<Vec3> = sites.iter().map(|&i| unit(8, i as usize)).collect();
+            let old: Vec<Vec3> = sites.iter().map(|&i| spins[i as usize]).collect();
+            let mut out = vec![0.0; sites.len()];
+            let call = std::panic::AssertUnwindSafe(|| {
+                h.energy_changes_in(window, 3 * layer, &sites, &old, &new, &mut out)
+            });
+            assert!(std::panic::catch_unwind(call).is_err(), "sites {sites:?}");
         }
     }
 }

@@ -1,0 +1,250 @@
+//! A split of the supercell among threads for Monte Carlo sweeps.
+//!
+//! The sites of a row of cells (the cells along `a1` at given coordinates along `a2` and
+//! `a3`) are contiguous in the spin array, and rows follow one another, so a range of rows
+//! is a range of the array. Each thread takes one such slab of rows. A site is *interior*
+//! when every neighbour its bonds can reach lies in its own slab: its thread can decide its
+//! trial from the slab alone and write the result back at once, in blocks small enough to
+//! stay in the core's cache, with no other thread involved. The other sites of a slab
+//! (the *boundary*: the rows next to another slab, through a periodic wrap too) are
+//! decided from the whole array by all threads together first, and each thread then writes
+//! back the boundary results of its own slab.
+//!
+//! Whether a row is interior follows from how far the bonds reach across rows
+//! ([`Hamiltonian::row_reach`]): every row within that reach along `a2` and `a3` (wrapped
+//! on a periodic axis, dropped past an open face, where no bond is read) must be in the
+//! slab. This is conservative for a bond set that reaches less far in some directions.
+//!
+//! A split never changes a result: the trials of a colour class read only spins of other
+//! classes, so it does not matter which thread decides a trial, when it is written back,
+//! or in which order; the counts are integer sums.
+
+use crate::colouring::Colouring;
+use spindrift_hamiltonian::Hamiltonian;
+use spindrift_lattice::wrap_coordinate;
+use std::ops::Range;
+
+/// The split of one supercell and colouring among a number of threads.
+#[derive(Debug, Clone)]
+pub(crate) struct Slabs {
+    /// `starts[p] .. starts[p + 1]` are the sites of slab `p`.
+    starts: Vec<usize>,
+    /// The boundary sites, class by class, ascending within a class.
+    boundary: Vec<u32>,
+    /// For class `c` and slab `p`, the position in `boundary` of the slab's first boundary
+    /// site of the class: `boundary_at[c * (slabs + 1) + p]`; the class's are
+    /// `boundary_at[c * (slabs + 1)] .. boundary_at[c * (slabs + 1) + slabs]`.
+    boundary_at: Vec<usize>,
+    /// Ranges of positions in a class's site list that are interior, by class and slab:
+    /// those of class `c` and slab `p` are `interior[interior_at[c * slabs + p] ..
+    /// interior_at[c * slabs + p + 1]]`.
+    interior: Vec<Range<u32>>,
+    interior_at: Vec<usize>,
+    /// The largest number of boundary sites of one class.
+    largest_boundary: usize,
+}
+
+impl Slabs {
+    /// The split of `h`'s supercell into `threads` slabs of whole rows, or `None` when it
+    /// would not pay: fewer than two threads, fewer rows than twice the threads, or fewer
+    /// than half of the occupied sites interior.
+    pub(crate) fn new(h: &Hamiltonian, colouring: &Colouring, threads: usize) -> Option<Self> {
+        let cell = h.cell();
+        let [n1, n2, n3] = cell.cells();
+        let periodic = cell.periodic();
+        let rows = n2 * n3;
+        if threads < 2 || rows < 2 * threads {
+            return None;
+        }
+        let row_len = n1 * cell.basis_len();
+        // Slab p holds rows first_row(p) .. first_row(p + 1).
+        let first_row = |p: usize| p * rows / threads;
+        let slab_of_row = |r: usize| {
+            // The largest p with first_row(p) <= r, near r * threads / rows.
+            let mut p = (r * threads / rows).min(threads - 1);
+            while first_row(p) > r {
+                p -= 1;
+            }
+            while p + 1 < threads && first_row(p + 1) <= r {
+                p += 1;
+            }
+            p
+        };
+        let [reach2, reach3] = h.row_reach().map(|r| r as i64);
+        let interior_row: Vec<bool> = (0..rows)
+            .map(|r| {
+                let p = slab_of_row(r);
+                let (c2, c3) = ((r % n2) as i64, (r / n2) as i64);
+                (-reach3..=reach3).all(|d3| {
+                    (-reach2..=reach2).all(|d2| {
+                        let t2 = wrap_coordinate(c2 + d2, n2 as i64, periodic[1]);
+                        let t3 = wrap_coordinate(c3 + d3, n3 as i64, periodic[2]);
+                        match (t2, t3) {
+                            (Some(t2), Some(t3)) => slab_of_row(t3 as usize * n2 + t2 as usize) == p,
+                            _ => true,
+                        }
+                    })
+                })
+            })
+            .collect();
+
+        let slabs = threads;
+        let mut boundary = Vec::new();
+        let mut boundary_at = Vec::with_capacity(colouring.len() * (slabs + 1));
+        let mut interior: Vec<Range<u32>> = Vec::new();
+        let mut interior_at = vec![0];
+        let mut interior_sites = 0;
+        let mut largest_boundary = 0;
+        for c in 0..colouring.len() {
+            let class = colouring.class(c);
+            let mut pos = 0;
+            let class_boundary = boundary.len();
+            for p in 0..slabs {
+                boundary_at.push(boundary.len());
+                let end_row = first_row(p + 1);
+                while pos < class.len() && (class[pos] as usize) / row_len < end_row {
+                    let i = class[pos] as usize;
+                    if interior_row[i / row_len] {
+                        // Consecutive interior positions of a class and slab make one range.
+                        let open = interior.len() > interior_at[interior_at.len() - 1];
+                        match interior.last_mut() {
+                            Some(last) if open && last.end as usize == pos => last.end += 1,
+                            _ => interior.push(pos as u32..pos as u32 + 1),
+                        }
+                        interior_sites += 1;
+                    } else {
+                        boundary.push(i as u32);
+                    }
+                    pos += 1;
+                }
+                interior_at.push(interior.len());
+            }
+            boundary_at.push(boundary.len());
+            largest_boundary = largest_boundary.max(boundary.len() - class_boundary);
+        }
+        let occupied = boundary.len() + interior_sites;
+        if 2 * interior_sites < occupied {
+            return None;
+        }
+        let starts = (0..=slabs).map(|p| first_row(p) * row_len).collect();
+        Some(Self { starts, boundary, boundary_at, interior, interior_at, largest_boundary })
+    }
+
+    /// Number of slabs (the threads it was made for).
+    pub(crate) fn len(&self) -> usize {
+        self.starts.len() - 1
+    }
+
+    /// The sites of slab `p`, a range of the spin array.
+    pub(crate) fn sites(&self, p: usize) -> Range<usize> {
+        self.starts[p]..self.starts[p + 1]
+    }
+
+    /// The first site of slabs `p ..`, for splitting the spin array.
+    pub(crate) fn start(&self, p: usize) -> usize {
+        self.starts[p]
+    }
+
+    /// The boundary sites of class `c`, ascending.
+    pub(crate) fn boundary(&self, c: usize) -> &[u32] {
+        let at = c * (self.len() + 1);
+        &self.boundary[self.boundary_at[at]..self.boundary_at[at + self.len()]]
+    }
+
+    /// Positions within [`Slabs::boundary`]`(c)` of the boundary sites of class `c` in slab
+    /// `p`.
+    pub(crate) fn boundary_in(&self, c: usize, p: usize) -> Range<usize> {
+        let at = c * (self.len() + 1);
+        let first = self.boundary_at[at];
+        self.boundary_at[at + p] - first..self.boundary_at[at + p + 1] - first
+    }
+
+    /// Ranges of positions within class `c`'s site list ([`Colouring::class`]) of the
+    /// interior sites of slab `p`.
+    pub(crate) fn interior(&self, c: usize, p: usize) -> &[Range<u32>] {
+        let at = c * self.len() + p;
+        &self.interior[self.interior_at[at]..self.interior_at[at + 1]]
+    }
+
+    /// The largest number of boundary sites of one class.
+    pub(crate) fn largest_boundary(&self) -> usize {
+        self.largest_boundary
+    }
+
+    /// Bytes held.
+    pub(crate) fn bytes(&self) -> usize {
+        self.starts.len() * 8
+            + self.boundary.len() * 4
+            + self.boundary_at.len() * 8
+            + self.interior.len() * 8
+            + self.interior_at.len() * 8
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::heun::tests::system_of;
+
+    // Every neighbour of an interior site lies in its slab, every occupied site is listed
+    // once (interior or boundary, in its own slab), on lattices with one and two basis
+    // sites, one to three shells, open and periodic axes, 2 to 5 slabs, films of one layer
+    // (split along a2) included. The neighbours come from the bond list and the supercell's
+    // own wrapping (`Supercell::neighbour`), not from the plan's row arithmetic. Our own
+    // behaviour.
+    #[test]
+    fn interior_sites_reach_only_their_slab() {
+        let systems = [
+            system_of("simple-cubic", [16, 12, 12], 1, [true, true, false], 1.0),
+            system_of("simple-cubic", [10, 12, 16], 3, [true, true, true], 0.8),
+            system_of("simple-cubic", [24, 40, 1], 2, [true, true, false], 1.0),
+            system_of("bcc", [6, 8, 16], 2, [false, true, true], 1.0),
+        ];
+        let mut made = 0;
+        for h in &systems {
+            let colouring = Colouring::new(h).unwrap();
+            let cell = h.cell();
+            for threads in 2..=5 {
+                let Some(slabs) = Slabs::new(h, &colouring, threads) else { continue };
+                made += 1;
+                assert_eq!(slabs.sites(threads - 1).end, h.len());
+                let slab_of = |i: usize| (0..threads).find(|&p| slabs.sites(p).contains(&i)).unwrap();
+                let mut seen = vec![0u8; h.len()];
+                for c in 0..colouring.len() {
+                    let class = colouring.class(c);
+                    for p in 0..threads {
+                        for r in slabs.interior(c, p) {
+                            for &i in &class[r.start as usize..r.end as usize] {
+                                let i = i as usize;
+                                seen[i] += 1;
+                                assert_eq!(slab_of(i), p, "interior site {i} listed in the wrong slab");
+                                let (cl, b) = cell.decompose(i);
+                                for bond in h.bonds().from_basis(b) {
+                                    if let Some(j) = cell.neighbour(cl, bond.offset, bond.to) {
+                                        assert_eq!(
+                                            slab_of(j),
+                                            p,
+                                            "site {i}'s neighbour {j}, {threads} slabs"
+                                        );
+                                    }
+                                }
+                            }
+                        }
+                        let boundary = slabs.boundary(c);
+                        for &i in &boundary[slabs.boundary_in(c, p)] {
+                            seen[i as usize] += 1;
+                            assert_eq!(slab_of(i as usize), p, "boundary site {i} listed in the wrong slab");
+                        }
+                    }
+                }
+                for (i, &n) in seen.iter().enumerate() {
+                    assert_eq!(n, u8::from(cell.is_occupied(i)), "site {i} listed {n} times");
+                }
+            }
+        }
+        assert!(made >= 10, "only {made} splits made");
+        // Too few rows for the threads: no split.
+        let chain = system_of("simple-cubic", [64, 2, 1], 1, [true, true, false], 1.0);
+        assert!(Slabs::new(&chain, &Colouring::new(&chain).unwrap(), 2).is_none());
+    }
+}

@@ -76,13 +76,12 @@
 //! acceptance; then the 64 decided spins are written back while their cache lines are
 //! still in L1. How a class is shared among threads:
 //!
-//! * One thread: each class is decided in place, in site order.
-//! * Several threads, where the lattice has enough rows of cells: each thread takes a slab
-//!   of rows (`slabs.rs`). Per class, the trials of the sites next to another slab are
-//!   decided first, by all threads from the whole array into a buffer; then each thread
-//!   writes back those of its slab and decides the rest of its slab in place, with no
-//!   barrier until the class is done.
-//! * Otherwise: blocks of at most [`BLOCK`] sites, decided in parallel into a buffer, then
+//! * Each thread takes a slab of rows of cells (`slabs.rs`; one thread, the whole
+//!   lattice). Per class, the trials of the sites next to another slab are decided first,
+//!   by all threads from the whole array into a buffer; then each thread writes back those
+//!   of its slab and decides the rest of its slab in place, in tiles that keep the
+//!   neighbours in the cache, with no barrier until the class is done.
+//! * Where slabs do not pay (too few rows for the threads): blocks of at most [`BLOCK`] sites, decided in parallel into a buffer, then
 //!   written back in parallel over chunks of the spin array.
 //!
 //! None of this changes a result (tested): which thread decides a trial and when it is
@@ -203,7 +202,7 @@ impl Metropolis {
             stream: NoiseStream::new(seed, STREAM_METROPOLIS),
             colouring,
             tally: MomentTally::new(h),
-            // Sized by the first sweep that needs it (one thread needs none).
+            // Sized by the first sweep that needs it (one thread, with no slab boundary, none).
             buffer: Vec::new(),
             sigma: SIGMA_START,
             len: h.len(),
@@ -263,9 +262,6 @@ impl Metropolis {
             });
         }
         let threads = rayon::current_num_threads();
-        if threads == 1 {
-            return Ok(self.sweep_in_place(h, spins, temperature, sweep_index, adapt));
-        }
         if self.slab_threads != threads {
             // Once per run (or when the thread count changes), not per sweep.
             self.slabs = Slabs::new(h, &self.colouring, threads);
@@ -279,29 +275,6 @@ impl Metropolis {
             }
             None => self.sweep_in_blocks(h, spins, temperature, sweep_index, adapt, BLOCK),
         }
-    }
-
-    /// [`Metropolis::sweep`] on one thread, for arguments already checked: each class
-    /// decided and written back in place, 64 sites at a time.
-    fn sweep_in_place(
-        &mut self,
-        h: &Hamiltonian,
-        spins: &mut [Vec3],
-        temperature: f64,
-        sweep_index: u64,
-        adapt: bool,
-    ) -> SweepStats {
-        let beta = 1.0 / (K_B * temperature);
-        let nb = h.cell().basis_len();
-        let mut total = Counts::default();
-        for c in 0..self.colouring.len() {
-            let class = self.colouring.class(c);
-            let weight = class.first().map_or(0.0, |&i| self.tally.weight(i as usize % nb));
-            let ctx =
-                TrialContext { h, stream: self.stream, sigma: self.sigma, beta, step: sweep_index, weight };
-            total = total.add(decide_in_place(&ctx, spins, 0, class));
-        }
-        self.finish(total, adapt)
     }
 
     /// [`Metropolis::sweep`] with colour blocks of `block_len` sites (at least one, at most
@@ -712,8 +685,9 @@ mod tests {
     }
 
     // Splitting a sweep among threads by slabs changes no bit (see the module
-    // documentation and `slabs.rs`): sweeps on 2, 3 and 4 threads, which split the lattice,
-    // give the spins, counts and width of one thread, on a diluted simple cubic lattice with
+    // documentation and `slabs.rs`): sweeps on 1 to 4 threads, which split the lattice
+    // (one thread: one slab, visited in tiles), give the spins, counts and width of
+    // blocks on one thread, on a diluted simple cubic lattice with
     // two shells, a periodic one with three, a film of one layer (split along a2) and bcc
     // (two basis sites). Common practice for a reordering.
     #[test]
@@ -726,20 +700,32 @@ mod tests {
         ] {
             let mut start = vec![[0.0; 3]; h.len()];
             crate::initial::random(&h, &mut start, 5).unwrap();
-            let run = |threads: usize| {
+            // Tiles of two rows along a2, so that the order differs from the index order.
+            let tile = 2 * 3 * 24 * h.cell().cells()[0] * h.cell().basis_len();
+            let run = |threads: usize, slabs: bool| {
                 let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
                 let mut mc = Metropolis::new(&h, 3).unwrap();
+                if slabs {
+                    mc.slabs = Slabs::with_tiles(&h, &mc.colouring, threads, tile);
+                    mc.slab_threads = threads;
+                }
                 let mut s = start.clone();
+                let sweep = |mc: &mut Metropolis, s: &mut [Vec3], n: u64| {
+                    if slabs {
+                        mc.sweep(&h, s, 120.0, n, n < 3).unwrap()
+                    } else {
+                        mc.sweep_in_blocks(&h, s, 120.0, n, n < 3, BLOCK).unwrap()
+                    }
+                };
                 let stats: Vec<SweepStats> =
-                    pool.install(|| (0..6).map(|n| mc.sweep(&h, &mut s, 120.0, n, n < 3).unwrap()).collect());
+                    pool.install(|| (0..6).map(|n| sweep(&mut mc, &mut s, n)).collect());
                 let bits: Vec<[u64; 3]> = s.iter().map(|v| v.map(f64::to_bits)).collect();
                 ((bits, stats, mc.sigma().to_bits()), mc.slabs.is_some())
             };
-            let (reference, split) = run(1);
-            assert!(!split);
+            let (reference, _) = run(1, false);
             assert!(reference.1.iter().all(|st| st.accepted > 0 && st.accepted < st.attempted));
-            for threads in [2, 3, 4] {
-                let (result, split) = run(threads);
+            for threads in [1, 2, 3, 4] {
+                let (result, split) = run(threads, true);
                 assert!(split, "{threads} threads did not split the lattice");
                 assert!(result == reference, "{threads} threads");
             }

@@ -15,6 +15,14 @@
 //! on a periodic axis, dropped past an open face, where no bond is read) must be in the
 //! slab. This is conservative for a bond set that reaches less far in some directions.
 //!
+//! # Order
+//!
+//! A slab's interior is visited in tiles: a few rows along `a2` (the tile), in each layer
+//! along `a3` in turn, then the next tile. The layers a bond reaches above and below then
+//! hold rows of the same tile, read a moment ago and still in the cache, where in index
+//! order a whole layer (6 MB for 512 x 512 cells) passes between a row's reads as a
+//! neighbour from above and from below. On a film of one layer this is index order.
+//!
 //! A split never changes a result: the trials of a colour class read only spins of other
 //! classes, so it does not matter which thread decides a trial, when it is written back,
 //! or in which order; the counts are integer sums.
@@ -23,6 +31,11 @@ use crate::colouring::Colouring;
 use spindrift_hamiltonian::Hamiltonian;
 use spindrift_lattice::wrap_coordinate;
 use std::ops::Range;
+
+/// Bytes of spins in the rows of one tile (see "Order" in the module documentation): a
+/// quarter of a 2 MB L2 cache, so that the spins a tile reads stay in it with room for
+/// the rest.
+const TILE_BYTES: usize = 512 * 1024;
 
 /// The split of one supercell and colouring among a number of threads.
 #[derive(Debug, Clone)]
@@ -46,14 +59,24 @@ pub(crate) struct Slabs {
 
 impl Slabs {
     /// The split of `h`'s supercell into `threads` slabs of whole rows, or `None` when it
-    /// would not pay: fewer than two threads, fewer rows than twice the threads, or fewer
-    /// than half of the occupied sites interior.
+    /// would not pay: fewer rows than twice the threads, or fewer than half of the occupied
+    /// sites interior. One thread has one slab, all interior.
     pub(crate) fn new(h: &Hamiltonian, colouring: &Colouring, threads: usize) -> Option<Self> {
+        Self::with_tiles(h, colouring, threads, TILE_BYTES)
+    }
+
+    /// [`Slabs::new`] with tiles of `tile_bytes` (tests use small ones).
+    pub(crate) fn with_tiles(
+        h: &Hamiltonian,
+        colouring: &Colouring,
+        threads: usize,
+        tile_bytes: usize,
+    ) -> Option<Self> {
         let cell = h.cell();
         let [n1, n2, n3] = cell.cells();
         let periodic = cell.periodic();
         let rows = n2 * n3;
-        if threads < 2 || rows < 2 * threads {
+        if threads == 0 || (threads > 1 && rows < 2 * threads) {
             return None;
         }
         let row_len = n1 * cell.basis_len();
@@ -88,6 +111,11 @@ impl Slabs {
             })
             .collect();
 
+        // Rows along a2 per tile: the tile's rows in the layers a bond reaches take at most
+        // `tile_bytes` of spins.
+        let layers = 2 * reach3 as usize + 1;
+        let tile = (tile_bytes / (layers * row_len * std::mem::size_of::<[f64; 3]>())).clamp(1, n2);
+
         let slabs = threads;
         let mut boundary = Vec::new();
         let mut boundary_at = Vec::with_capacity(colouring.len() * (slabs + 1));
@@ -97,25 +125,45 @@ impl Slabs {
         let mut largest_boundary = 0;
         for c in 0..colouring.len() {
             let class = colouring.class(c);
-            let mut pos = 0;
             let class_boundary = boundary.len();
+            // The position in the class of its first site at or after row r.
+            let at_row = |r: usize| class.partition_point(|&i| (i as usize) < r * row_len);
             for p in 0..slabs {
                 boundary_at.push(boundary.len());
-                let end_row = first_row(p + 1);
-                while pos < class.len() && (class[pos] as usize) / row_len < end_row {
-                    let i = class[pos] as usize;
-                    if interior_row[i / row_len] {
-                        // Consecutive interior positions of a class and slab make one range.
-                        let open = interior.len() > interior_at[interior_at.len() - 1];
-                        match interior.last_mut() {
-                            Some(last) if open && last.end as usize == pos => last.end += 1,
-                            _ => interior.push(pos as u32..pos as u32 + 1),
-                        }
-                        interior_sites += 1;
+                let (r_lo, r_hi) = (first_row(p), first_row(p + 1));
+                // Row by row (a search per row, not a division per site).
+                let mut first = at_row(r_lo);
+                for r in r_lo..r_hi {
+                    let end = at_row(r + 1);
+                    if interior_row[r] {
+                        interior_sites += end - first;
                     } else {
-                        boundary.push(i as u32);
+                        boundary.extend_from_slice(&class[first..end]);
                     }
-                    pos += 1;
+                    first = end;
+                }
+                // The interior tile by tile: rows y0 .. y1 of each layer of the slab in turn.
+                let open = interior.len();
+                for y0 in (0..n2).step_by(tile) {
+                    let y1 = (y0 + tile).min(n2);
+                    for c3 in r_lo / n2..r_hi.div_ceil(n2) {
+                        let (mut r, end) = ((c3 * n2 + y0).max(r_lo), (c3 * n2 + y1).min(r_hi));
+                        while r < end {
+                            let mut e = r;
+                            while e < end && interior_row[e] {
+                                e += 1;
+                            }
+                            let (a, b) = (at_row(r) as u32, at_row(e) as u32);
+                            let fresh = interior.len() == open;
+                            match interior.last_mut() {
+                                // Adjacent ranges of a class and slab make one.
+                                Some(last) if !fresh && last.end == a => last.end = b,
+                                _ if a < b => interior.push(a..b),
+                                _ => {}
+                            }
+                            r = e + 1;
+                        }
+                    }
                 }
                 interior_at.push(interior.len());
             }
@@ -188,8 +236,8 @@ mod tests {
 
     // Every neighbour of an interior site lies in its slab, every occupied site is listed
     // once (interior or boundary, in its own slab), on lattices with one and two basis
-    // sites, one to three shells, open and periodic axes, 2 to 5 slabs, films of one layer
-    // (split along a2) included. The neighbours come from the bond list and the supercell's
+    // sites, one to three shells, open and periodic axes, 1 to 5 slabs, films of one layer
+    // (split along a2) included, with tiles of whole layers and of a few rows. The neighbours come from the bond list and the supercell's
     // own wrapping (`Supercell::neighbour`), not from the plan's row arithmetic. Our own
     // behaviour.
     #[test]
@@ -204,8 +252,11 @@ mod tests {
         for h in &systems {
             let colouring = Colouring::new(h).unwrap();
             let cell = h.cell();
-            for threads in 2..=5 {
-                let Some(slabs) = Slabs::new(h, &colouring, threads) else { continue };
+            let row_bytes = 24 * cell.cells()[0] * cell.basis_len();
+            for (threads, tile) in
+                (1..=5).flat_map(|t| [(t, TILE_BYTES), (t, 3 * row_bytes), (t, 7 * row_bytes)])
+            {
+                let Some(slabs) = Slabs::with_tiles(h, &colouring, threads, tile) else { continue };
                 made += 1;
                 assert_eq!(slabs.sites(threads - 1).end, h.len());
                 let slab_of = |i: usize| (0..threads).find(|&p| slabs.sites(p).contains(&i)).unwrap();
@@ -242,7 +293,7 @@ mod tests {
                 }
             }
         }
-        assert!(made >= 10, "only {made} splits made");
+        assert!(made >= 42, "only {made} splits made");
         // Too few rows for the threads: no split.
         let chain = system_of("simple-cubic", [64, 2, 1], 1, [true, true, false], 1.0);
         assert!(Slabs::new(&chain, &Colouring::new(&chain).unwrap(), 2).is_none());

@@ -81,8 +81,9 @@
 //!   by all threads from the whole array into a buffer; then each thread writes back those
 //!   of its slab and decides the rest of its slab in place, in tiles that keep the
 //!   neighbours in the cache, with no barrier until the class is done.
-//! * Where slabs do not pay (too few rows for the threads): blocks of at most [`BLOCK`] sites, decided in parallel into a buffer, then
-//!   written back in parallel over chunks of the spin array.
+//! * Where slabs do not pay (too few rows for the threads): blocks of at most [`BLOCK`]
+//!   sites, decided in parallel into a buffer, then written back in parallel over chunks
+//!   of the spin array.
 //!
 //! None of this changes a result (tested): which thread decides a trial and when it is
 //! written back do not matter, and the sums are integers. Memory: 4 bytes per site for
@@ -347,8 +348,8 @@ impl Metropolis {
     /// [`Metropolis::sweep`] split among threads by `slabs` (made for the current thread
     /// count), for arguments already checked. Per class: the boundary trials are decided
     /// by all threads from the whole array, then each thread writes back the boundary
-    /// results of its slab and decides and writes back its interior in cache-sized blocks,
-    /// with no barrier between blocks.
+    /// results of its slab and decides its interior in place, tile by tile, with no
+    /// barrier until the class is done.
     fn sweep_in_slabs(
         &mut self,
         slabs: &Slabs,
@@ -463,6 +464,7 @@ struct TrialContext<'a> {
 trait Decisions {
     /// The spins of sites `origin() ..`.
     fn spins(&self) -> &[Vec3];
+    /// The site of `spins()[0]`.
     fn origin(&self) -> usize;
     /// Keeps the decided spins `new` of `sites`, the group of trials from position `k0`
     /// of the call's site list.

@@ -4,8 +4,8 @@
 //! `a3`) are contiguous in the spin array, and rows follow one another, so a range of rows
 //! is a range of the array. Each thread takes one such slab of rows. A site is *interior*
 //! when every neighbour its bonds can reach lies in its own slab: its thread can decide its
-//! trial from the slab alone and write the result back at once, in blocks small enough to
-//! stay in the core's cache, with no other thread involved. The other sites of a slab
+//! trial from the slab alone and write the result back at once, with no other thread
+//! involved. The other sites of a slab
 //! (the *boundary*: the rows next to another slab, through a periodic wrap too) are
 //! decided from the whole array by all threads together first, and each thread then writes
 //! back the boundary results of its own slab.

@@ -82,28 +82,19 @@ impl Slabs {
         let row_len = n1 * cell.basis_len();
         // Slab p holds rows first_row(p) .. first_row(p + 1).
         let first_row = |p: usize| p * rows / threads;
-        let slab_of_row = |r: usize| {
-            // The largest p with first_row(p) <= r, near r * threads / rows.
-            let mut p = (r * threads / rows).min(threads - 1);
-            while first_row(p) > r {
-                p -= 1;
-            }
-            while p + 1 < threads && first_row(p + 1) <= r {
-                p += 1;
-            }
-            p
-        };
+        let slab_of_row: Vec<usize> =
+            (0..threads).flat_map(|p| std::iter::repeat_n(p, first_row(p + 1) - first_row(p))).collect();
         let [reach2, reach3] = h.row_reach().map(|r| r as i64);
         let interior_row: Vec<bool> = (0..rows)
             .map(|r| {
-                let p = slab_of_row(r);
+                let p = slab_of_row[r];
                 let (c2, c3) = ((r % n2) as i64, (r / n2) as i64);
                 (-reach3..=reach3).all(|d3| {
                     (-reach2..=reach2).all(|d2| {
                         let t2 = wrap_coordinate(c2 + d2, n2 as i64, periodic[1]);
                         let t3 = wrap_coordinate(c3 + d3, n3 as i64, periodic[2]);
                         match (t2, t3) {
-                            (Some(t2), Some(t3)) => slab_of_row(t3 as usize * n2 + t2 as usize) == p,
+                            (Some(t2), Some(t3)) => slab_of_row[t3 as usize * n2 + t2 as usize] == p,
                             _ => true,
                         }
                     })

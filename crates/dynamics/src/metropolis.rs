@@ -467,8 +467,8 @@ trait Decisions {
     /// The site of `spins()[0]`.
     fn origin(&self) -> usize;
     /// Keeps the decided spins `new` of `sites`, the group of trials from position `k0`
-    /// of the call's site list.
-    fn store(&mut self, k0: usize, sites: &[u32], new: &[Vec3]);
+    /// of the call's site list; `pairs` is [`pair_step_start`]`(sites)`.
+    fn store(&mut self, k0: usize, sites: &[u32], pairs: Option<usize>, new: &[Vec3]);
 }
 
 /// Decisions into a buffer, the spins unchanged (the trials of one class may then be
@@ -488,7 +488,7 @@ impl Decisions for IntoBuffer<'_> {
         0
     }
     #[inline(always)]
-    fn store(&mut self, k0: usize, _: &[u32], new: &[Vec3]) {
+    fn store(&mut self, k0: usize, _: &[u32], _: Option<usize>, new: &[Vec3]) {
         self.out[k0..k0 + new.len()].copy_from_slice(new);
     }
 }
@@ -511,11 +511,41 @@ impl Decisions for InPlace<'_> {
         self.origin
     }
     #[inline(always)]
-    fn store(&mut self, _: usize, sites: &[u32], new: &[Vec3]) {
+    fn store(&mut self, _: usize, sites: &[u32], pairs: Option<usize>, new: &[Vec3]) {
+        if let Some(stretch) = pairs.and_then(|i0| pair_stretch(i0, self.origin, new.len(), self.spins.len()))
+        {
+            // Every other spin of a stretch: no index per site.
+            let (last, rest) = new.split_last().expect("a group has a site");
+            let flat = self.spins[stretch.clone()].as_flattened_mut();
+            for (c, s) in flat.chunks_exact_mut(6).zip(rest) {
+                c[..3].copy_from_slice(s);
+            }
+            self.spins[stretch.end - 1] = *last;
+            return;
+        }
         for (&i, &s) in sites.iter().zip(new) {
             self.spins[i as usize - self.origin] = s;
         }
     }
+}
+
+/// The first site of `sites` if they step by two (`sites[k] = sites[0] + 2 k`), as a
+/// checkerboard class does along a row of cells; tested without branches, so that it
+/// vectorises.
+#[inline(always)]
+fn pair_step_start(sites: &[u32]) -> Option<usize> {
+    let i0 = *sites.first()?;
+    let step = sites.iter().enumerate().fold(true, |ok, (k, &i)| ok & (i == i0.wrapping_add(2 * k as u32)));
+    step.then_some(i0 as usize)
+}
+
+/// The positions in a window of `len` spins from site `origin` of the `n` sites from `i0`
+/// on that step by two (their spins and those between), if the window holds them all.
+#[inline(always)]
+fn pair_stretch(i0: usize, origin: usize, n: usize, len: usize) -> Option<Range<usize>> {
+    let start = i0.checked_sub(origin)?;
+    let end = (start + 2 * n).checked_sub(1)?;
+    (n > 0 && end <= len).then_some(start..end)
 }
 
 spindrift_isa::multiversion! {
@@ -562,8 +592,21 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
         let chosen = &mut chosen[..n];
         stream.fill_trial_at(step, sites, kick, pick, accept);
         let (spins, origin) = (to.spins(), to.origin());
-        for (o, &i) in old.iter_mut().zip(sites) {
-            *o = spins[i as usize - origin];
+        let pairs = pair_step_start(sites);
+        match pairs.and_then(|i0| pair_stretch(i0, origin, n, spins.len())) {
+            // Every other spin of a stretch: no index per site.
+            Some(stretch) => {
+                let flat = spins[stretch.clone()].as_flattened();
+                for (o, c) in old.iter_mut().zip(flat.chunks_exact(6)) {
+                    *o = [c[0], c[1], c[2]];
+                }
+                old[n - 1] = spins[stretch.end - 1];
+            }
+            None => {
+                for (o, &i) in old.iter_mut().zip(sites) {
+                    *o = spins[i as usize - origin];
+                }
+            }
         }
         for k in 0..n {
             trials[k] = trial_spin(old[k], pick[k], kick[k], sigma);
@@ -599,7 +642,7 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
         counts.cone_accepted += cone_accepted;
         counts.energy_change += integer_sum(units);
         counts.moment = crate::moment::add(counts.moment, moment_units(weight, chosen));
-        to.store(g * DRAWS, sites, chosen);
+        to.store(g * DRAWS, sites, pairs, chosen);
     }
     counts
 }

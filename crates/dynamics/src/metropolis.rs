@@ -94,7 +94,7 @@
 use crate::acceptance::boltzmann_factor;
 use crate::colouring::Colouring;
 use crate::error::{check_len, StepError};
-use crate::moment::{moment_units, MomentTally};
+use crate::moment::{component_units, MomentTally};
 use crate::slabs::Slabs;
 use rayon::prelude::*;
 use spindrift_hamiltonian::constants::K_B;
@@ -466,9 +466,9 @@ trait Decisions {
     fn spins(&self) -> &[Vec3];
     /// The site of `spins()[0]`.
     fn origin(&self) -> usize;
-    /// Keeps the decided spins `new` of `sites`, the group of trials from position `k0`
-    /// of the call's site list; `pairs` is [`pair_step_start`]`(sites)`.
-    fn store(&mut self, k0: usize, sites: &[u32], pairs: Option<usize>, new: &[Vec3]);
+    /// Keeps the decided spins of `sites`, components `new` (x, y, z), the group of trials
+    /// from position `k0` of the call's site list; `pairs` is [`pair_step_start`]`(sites)`.
+    fn store(&mut self, k0: usize, sites: &[u32], pairs: Option<usize>, new: [&[f64]; 3]);
 }
 
 /// Decisions into a buffer, the spins unchanged (the trials of one class may then be
@@ -488,8 +488,11 @@ impl Decisions for IntoBuffer<'_> {
         0
     }
     #[inline(always)]
-    fn store(&mut self, k0: usize, _: &[u32], _: Option<usize>, new: &[Vec3]) {
-        self.out[k0..k0 + new.len()].copy_from_slice(new);
+    fn store(&mut self, k0: usize, _: &[u32], _: Option<usize>, new: [&[f64]; 3]) {
+        let [x, y, z] = new;
+        for (k, o) in self.out[k0..k0 + x.len()].iter_mut().enumerate() {
+            *o = [x[k], y[k], z[k]];
+        }
     }
 }
 
@@ -511,20 +514,20 @@ impl Decisions for InPlace<'_> {
         self.origin
     }
     #[inline(always)]
-    fn store(&mut self, _: usize, sites: &[u32], pairs: Option<usize>, new: &[Vec3]) {
-        if let Some(stretch) = pairs.and_then(|i0| pair_stretch(i0, self.origin, new.len(), self.spins.len()))
-        {
+    fn store(&mut self, _: usize, sites: &[u32], pairs: Option<usize>, new: [&[f64]; 3]) {
+        let [x, y, z] = new;
+        let n = x.len();
+        if let Some(stretch) = pairs.and_then(|i0| pair_stretch(i0, self.origin, n, self.spins.len())) {
             // Every other spin of a stretch: no index per site.
-            let (last, rest) = new.split_last().expect("a group has a site");
             let flat = self.spins[stretch.clone()].as_flattened_mut();
-            for (c, s) in flat.chunks_exact_mut(6).zip(rest) {
-                c[..3].copy_from_slice(s);
+            for (k, c) in flat.chunks_exact_mut(6).enumerate() {
+                (c[0], c[1], c[2]) = (x[k], y[k], z[k]);
             }
-            self.spins[stretch.end - 1] = *last;
+            self.spins[stretch.end - 1] = [x[n - 1], y[n - 1], z[n - 1]];
             return;
         }
-        for (&i, &s) in sites.iter().zip(new) {
-            self.spins[i as usize - self.origin] = s;
+        for (k, &i) in sites.iter().enumerate() {
+            self.spins[i as usize - self.origin] = [x[k], y[k], z[k]];
         }
     }
 }
@@ -571,62 +574,70 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
     let TrialContext { h, stream, sigma, beta, step, weight } = *ctx;
     let mut counts = Counts::default();
     // A few sites at a time, in phases without branches: random numbers in bulk (bitwise
-    // the per-site values), trial spins, energy changes, acceptance. On the stack.
-    let mut kick = [[0.0; 3]; DRAWS];
+    // the per-site values), trial spins, energy changes, acceptance. On the stack. Old,
+    // trial and chosen spins are kept as three arrays of components (x, y, z), which the
+    // loops read and write without regrouping 3-vectors.
+    let mut kick = [[0.0; DRAWS]; 3];
     let mut pick = [0.0; DRAWS];
     let mut accept = [0.0; DRAWS];
-    let mut old = [[0.0; 3]; DRAWS];
-    let mut trials = [[0.0; 3]; DRAWS];
-    let mut chosen = [[0.0; 3]; DRAWS];
+    let mut old = [[0.0; DRAWS]; 3];
+    let mut trials = [[0.0; DRAWS]; 3];
+    let mut chosen = [[0.0; DRAWS]; 3];
     let mut de = [0.0; DRAWS];
     let mut units = [0.0; DRAWS];
-    // Acceptance masks, all ones for an accepted move; and the same once per component,
-    // so that the selection runs over flat arrays of numbers, which vectorises (over
-    // `[f64; 3]` it did not).
+    // Acceptance masks, all ones for an accepted move.
     let mut keep = [0u64; DRAWS];
-    let mut keep3 = [0u64; 3 * DRAWS];
     for (g, sites) in sites.chunks(DRAWS).enumerate() {
         let n = sites.len();
-        let (kick, pick, accept) = (&mut kick[..n], &mut pick[..n], &mut accept[..n]);
-        let (old, trials, de, units) = (&mut old[..n], &mut trials[..n], &mut de[..n], &mut units[..n]);
-        let chosen = &mut chosen[..n];
-        stream.fill_trial_at(step, sites, kick, pick, accept);
+        let (pick, accept) = (&mut pick[..n], &mut accept[..n]);
+        let (de, units, keep) = (&mut de[..n], &mut units[..n], &mut keep[..n]);
+        stream.fill_trial_at(step, sites, kick.each_mut().map(|c| &mut c[..n]), pick, accept);
         let (spins, origin) = (to.spins(), to.origin());
         let pairs = pair_step_start(sites);
-        match pairs.and_then(|i0| pair_stretch(i0, origin, n, spins.len())) {
-            // Every other spin of a stretch: no index per site.
-            Some(stretch) => {
-                let flat = spins[stretch.clone()].as_flattened();
-                for (o, c) in old.iter_mut().zip(flat.chunks_exact(6)) {
-                    *o = [c[0], c[1], c[2]];
+        {
+            let [ox, oy, oz] = old.each_mut().map(|c| &mut c[..n]);
+            match pairs.and_then(|i0| pair_stretch(i0, origin, n, spins.len())) {
+                // Every other spin of a stretch: no index per site.
+                Some(stretch) => {
+                    let flat = spins[stretch.clone()].as_flattened();
+                    let rows = ox.iter_mut().zip(oy.iter_mut()).zip(oz.iter_mut());
+                    for (((x, y), z), c) in rows.zip(flat.chunks_exact(6)) {
+                        (*x, *y, *z) = (c[0], c[1], c[2]);
+                    }
+                    [ox[n - 1], oy[n - 1], oz[n - 1]] = spins[stretch.end - 1];
                 }
-                old[n - 1] = spins[stretch.end - 1];
-            }
-            None => {
-                for (o, &i) in old.iter_mut().zip(sites) {
-                    *o = spins[i as usize - origin];
+                None => {
+                    for (k, &i) in sites.iter().enumerate() {
+                        [ox[k], oy[k], oz[k]] = spins[i as usize - origin];
+                    }
                 }
             }
         }
-        for k in 0..n {
-            trials[k] = trial_spin(old[k], pick[k], kick[k], sigma);
+        {
+            let [ox, oy, oz] = old.each_ref().map(|c| &c[..n]);
+            let [kx, ky, kz] = kick.each_ref().map(|c| &c[..n]);
+            let [tx, ty, tz] = trials.each_mut().map(|c| &mut c[..n]);
+            for k in 0..n {
+                let (s, g) = ([ox[k], oy[k], oz[k]], [kx[k], ky[k], kz[k]]);
+                [tx[k], ty[k], tz[k]] = trial_spin(s, pick[k], g, sigma);
+            }
         }
-        h.energy_changes_in(spins, origin, sites, old, trials, de);
+        let (o, t) = (old.each_ref().map(|c| &c[..n]), trials.each_ref().map(|c| &c[..n]));
+        h.energy_changes_in(spins, origin, sites, o, t, de);
         // `|` rather than `||`: the factor is computed for every site, so the loop has
         // no branch. A NaN change (a move of zero length) fails both tests.
-        let (keep, keep3) = (&mut keep[..n], &mut keep3[..3 * n]);
         for k in 0..n {
             let d = de[k];
             let p = (d <= 0.0) | (accept[k] < boltzmann_factor(-d * beta));
             let m = u64::from(p).wrapping_neg();
             keep[k] = m;
-            keep3[3 * k..3 * k + 3].fill(m);
             units[k] = f64::from_bits((d * ENERGY_SCALE).round().to_bits() & m);
         }
         // Selects by bit masks, which the compiler keeps free of branches.
-        let (t, s) = (trials.as_flattened(), old.as_flattened());
-        for (((o, t), s), m) in chosen.as_flattened_mut().iter_mut().zip(t).zip(s).zip(keep3.iter()) {
-            *o = f64::from_bits((t.to_bits() & m) | (s.to_bits() & !m));
+        for ((c, t), s) in chosen.iter_mut().zip(&t).zip(&o) {
+            for (((c, t), s), m) in c[..n].iter_mut().zip(*t).zip(*s).zip(keep.iter()) {
+                *c = f64::from_bits((t.to_bits() & m) | (s.to_bits() & !m));
+            }
         }
         let (mut accepted, mut cone_attempted, mut cone_accepted) = (0u64, 0u64, 0u64);
         for k in 0..n {
@@ -636,12 +647,13 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
             cone_attempted += cone;
             cone_accepted += cone & p;
         }
+        let chosen = chosen.each_ref().map(|c| &c[..n]);
         counts.attempted += n as u64;
         counts.accepted += accepted;
         counts.cone_attempted += cone_attempted;
         counts.cone_accepted += cone_accepted;
         counts.energy_change += integer_sum(units);
-        counts.moment = crate::moment::add(counts.moment, moment_units(weight, chosen));
+        counts.moment = crate::moment::add(counts.moment, component_units(weight, chosen));
         to.store(g * DRAWS, sites, pairs, chosen);
     }
     counts

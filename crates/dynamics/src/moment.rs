@@ -58,6 +58,19 @@ pub(crate) fn moment_units(w: f64, spins: &[Vec3]) -> [i128; 3] {
     sum.map(|x| i128::from(x.wrapping_sub(bias)))
 }
 
+/// [`moment_units`] of spins given as three arrays of components (x, y, z) of one length:
+/// the same integers.
+#[inline(always)]
+pub(crate) fn component_units(w: f64, spins: [&[f64]; 3]) -> [i128; 3] {
+    let n = spins[0].len();
+    debug_assert!(n <= SPAN && spins.iter().all(|c| c.len() == n));
+    let bias = (n as i64).wrapping_mul(MAGIC_BITS);
+    spins.map(|c| {
+        let sum = c.iter().fold(0i64, |acc, &x| acc.wrapping_add((x * w + MAGIC).to_bits() as i64));
+        i128::from(sum.wrapping_sub(bias))
+    })
+}
+
 /// The per-site weights of the fixed-point moment sum of one system.
 #[derive(Debug, Clone)]
 pub struct MomentTally {

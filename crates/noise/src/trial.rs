@@ -79,15 +79,16 @@ impl NoiseStream {
         TrialDraw { kick, pick, accept }
     }
 
-    /// `(kick[k], pick[k], accept[k])` are the fields of `self.trial(step, sites[k])` for
-    /// every `k`, bit for bit: the bulk evaluation for a list of scattered sites, as three
-    /// arrays so that their consumers vectorise. Panics if the lengths differ. Allocates
-    /// nothing.
+    /// `([kick[0][k], kick[1][k], kick[2][k]], pick[k], accept[k])` are the fields of
+    /// `self.trial(step, sites[k])` for every `k`, bit for bit: the bulk evaluation for a
+    /// list of scattered sites, as arrays of numbers (the kick as three arrays of
+    /// components) so that their consumers vectorise. Panics if the lengths differ.
+    /// Allocates nothing.
     pub fn fill_trial_at(
         &self,
         step: u64,
         sites: &[u32],
-        kick: &mut [[f64; 3]],
+        kick: [&mut [f64]; 3],
         pick: &mut [f64],
         accept: &mut [f64],
     ) {
@@ -99,23 +100,31 @@ impl NoiseStream {
         &self,
         step: u64,
         sites: &[u32],
-        kick: &mut [[f64; 3]],
+        kick: [&mut [f64]; 3],
         pick: &mut [f64],
         accept: &mut [f64],
     ) {
         let n = sites.len();
-        assert!(kick.len() == n && pick.len() == n && accept.len() == n, "one output per site");
+        let [kx, ky, kz] = kick;
+        assert!(
+            kx.len() == n && ky.len() == n && kz.len() == n && pick.len() == n && accept.len() == n,
+            "one output per site"
+        );
         let whole = n - n % LANES;
         for b in (0..whole).step_by(LANES) {
             let w = self.words_lanes_at::<LANES>(step, &sites[b..b + LANES]);
-            let (kick, pick, accept) =
-                (&mut kick[b..b + LANES], &mut pick[b..b + LANES], &mut accept[b..b + LANES]);
+            let (kx, ky, kz) = (&mut kx[b..b + LANES], &mut ky[b..b + LANES], &mut kz[b..b + LANES]);
+            let (pick, accept) = (&mut pick[b..b + LANES], &mut accept[b..b + LANES]);
             for j in 0..LANES {
-                (kick[j], pick[j], accept[j]) = trial_from_words([w[0][j], w[1][j], w[2][j], w[3][j]]);
+                let (kick, p, a) = trial_from_words([w[0][j], w[1][j], w[2][j], w[3][j]]);
+                [kx[j], ky[j], kz[j]] = kick;
+                (pick[j], accept[j]) = (p, a);
             }
         }
         for k in whole..n {
-            (kick[k], pick[k], accept[k]) = trial_from_words(self.words(step, u64::from(sites[k])));
+            let (kick, p, a) = trial_from_words(self.words(step, u64::from(sites[k])));
+            [kx[k], ky[k], kz[k]] = kick;
+            (pick[k], accept[k]) = (p, a);
         }
     }
 }
@@ -126,7 +135,7 @@ spindrift_isa::multiversion! {
         stream: NoiseStream,
         step: u64,
         sites: &[u32],
-        kick: &mut [[f64; 3]],
+        kick: [&mut [f64]; 3],
         pick: &mut [f64],
         accept: &mut [f64],
     ) {
@@ -143,14 +152,16 @@ mod tests {
 
     fn draws(seed: u64, step: u64) -> (Vec<[f64; 3]>, Vec<f64>, Vec<f64>) {
         let sites: Vec<u32> = (0..N as u32).collect();
-        let (mut kick, mut pick, mut accept) = (vec![[0.0; 3]; N], vec![0.0; N], vec![0.0; N]);
+        let mut kick = [vec![0.0; N], vec![0.0; N], vec![0.0; N]];
+        let (mut pick, mut accept) = (vec![0.0; N], vec![0.0; N]);
         NoiseStream::new(seed, STREAM_METROPOLIS).fill_trial_at(
             step,
             &sites,
-            &mut kick,
+            kick.each_mut().map(Vec::as_mut_slice),
             &mut pick,
             &mut accept,
         );
+        let kick = (0..N).map(|k| [kick[0][k], kick[1][k], kick[2][k]]).collect();
         (kick, pick, accept)
     }
 
@@ -172,11 +183,15 @@ mod tests {
         for len in [0usize, 1, 15, 16, 17, 100] {
             let sites: Vec<u32> =
                 (0..len as u32).map(|k| k.wrapping_mul(2_654_435_761) % 1_000_003).collect();
-            let (mut kick, mut pick, mut accept) = (vec![[0.0; 3]; len], vec![0.0; len], vec![0.0; len]);
-            stream.fill_trial_at(42, &sites, &mut kick, &mut pick, &mut accept);
+            let mut kick = [vec![0.0; len], vec![0.0; len], vec![0.0; len]];
+            let (mut pick, mut accept) = (vec![0.0; len], vec![0.0; len]);
+            stream.fill_trial_at(42, &sites, kick.each_mut().map(Vec::as_mut_slice), &mut pick, &mut accept);
             for k in 0..len {
                 let one = stream.trial(42, u64::from(sites[k]));
-                assert_eq!(kick[k].map(f64::to_bits), one.kick.map(f64::to_bits));
+                assert_eq!(
+                    [kick[0][k], kick[1][k], kick[2][k]].map(f64::to_bits),
+                    one.kick.map(f64::to_bits)
+                );
                 assert_eq!(pick[k].to_bits(), one.pick.to_bits());
                 assert_eq!(accept[k].to_bits(), one.accept.to_bits());
             }

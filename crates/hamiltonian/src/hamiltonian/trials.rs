@@ -190,19 +190,21 @@ fn quotient(x: u32, n: u32, inv: f64) -> u32 {
 
 impl Hamiltonian {
     /// Energy changes (meV) of one-spin moves of many sites at once: `out[k]` is
-    /// [`Hamiltonian::energy_change`]`(spins, sites[k], new[k])` bit for bit, each site
-    /// evaluated against `spins` as given (for sites that share no bond, such as a Monte
-    /// Carlo colour class, the changes add up), with `old[k] = spins[sites[k]]` handed in by
-    /// a caller that has read them already. Vectorised over the sites in blocks of 64,
-    /// fastest when the sites of a block share one basis site. Panics if the four
-    /// lengths differ or a site is outside `spins`; `old` is not checked against `spins`.
+    /// [`Hamiltonian::energy_change`]`(spins, sites[k], new_k)` bit for bit, with `new_k =
+    /// [new[0][k], new[1][k], new[2][k]]` (the moves as three arrays of components, which
+    /// the kernel reads without regrouping 3-vectors), each site evaluated against `spins`
+    /// as given (for sites that share no bond, such as a Monte Carlo colour class, the
+    /// changes add up), with `old` the components of `spins[sites[k]]`, handed in by a
+    /// caller that has read them already. Vectorised over the sites in blocks of 64,
+    /// fastest when the sites of a block share one basis site. Panics if the lengths
+    /// differ or a site is outside `spins`; `old` is not checked against `spins`.
     #[inline(always)]
     pub fn energy_changes_from(
         &self,
         spins: &[Vec3],
         sites: &[u32],
-        old: &[Vec3],
-        new: &[Vec3],
+        old: [&[f64]; 3],
+        new: [&[f64]; 3],
         out: &mut [f64],
     ) {
         self.energy_changes_in(spins, 0, sites, old, new, out);
@@ -220,24 +222,27 @@ impl Hamiltonian {
         window: &[Vec3],
         origin: usize,
         sites: &[u32],
-        old: &[Vec3],
-        new: &[Vec3],
+        old: [&[f64]; 3],
+        new: [&[f64]; 3],
         out: &mut [f64],
     ) {
         let n = sites.len();
-        assert!(old.len() == n && new.len() == n && out.len() == n, "one trial and one output per site");
+        assert!(
+            old.iter().chain(&new).all(|c| c.len() == n) && out.len() == n,
+            "one trial and one output per site"
+        );
         if self.len() > u32::MAX as usize {
             // Beyond the block kernel's 32-bit cell arithmetic: one site at a time.
             assert!(origin == 0, "a window of the spins needs fewer than 2^32 sites");
-            for ((&i, &t), o) in sites.iter().zip(new).zip(out.iter_mut()) {
-                *o = self.energy_change(window, i as usize, t);
+            for (k, (&i, o)) in sites.iter().zip(out.iter_mut()).enumerate() {
+                *o = self.energy_change(window, i as usize, [new[0][k], new[1][k], new[2][k]]);
             }
             return;
         }
         let spins = Window { spins: window, origin };
-        for (((s, o), t), d) in
-            sites.chunks(LANES).zip(old.chunks(LANES)).zip(new.chunks(LANES)).zip(out.chunks_mut(LANES))
-        {
+        for (b, (s, d)) in sites.chunks(LANES).zip(out.chunks_mut(LANES)).enumerate() {
+            let block = b * LANES..b * LANES + s.len();
+            let (o, t) = (old.map(|c| &c[block.clone()]), new.map(|c| &c[block.clone()]));
             self.energy_changes_block_from(spins, s, o, t, d);
         }
     }
@@ -249,12 +254,14 @@ impl Hamiltonian {
         &self,
         spins: Window<'_>,
         sites: &[u32],
-        old: &[Vec3],
-        new: &[Vec3],
+        old: [&[f64]; 3],
+        new: [&[f64]; 3],
         out: &mut [f64],
     ) {
         let len = sites.len().min(LANES);
-        let (sites, old, new, out) = (&sites[..len], &old[..len], &new[..len], &mut out[..len]);
+        let (sites, out) = (&sites[..len], &mut out[..len]);
+        let [ox, oy, oz] = old.map(|c| &c[..len]);
+        let [nx, ny, nz] = new.map(|c| &c[..len]);
         let nb = self.cell.basis_len() as u32;
         let cells = self.cell.cells();
         let (n1, n2) = (cells[0] as u32, cells[1] as u32);
@@ -309,7 +316,7 @@ impl Hamiltonian {
             };
             for k in 0..len {
                 let hm = [h[0][k] * mu, h[1][k] * mu, h[2][k] * mu];
-                let (s, t) = (old[k], new[k]);
+                let (s, t) = ([ox[k], oy[k], oz[k]], [nx[k], ny[k], nz[k]]);
                 let ds = [t[0] - s[0], t[1] - s[1], t[2] - s[2]];
                 let de = -dot(ds, hm) + onsite(t) - onsite(s);
                 out[k] = if basis[k] == b { de } else { out[k] };
@@ -583,6 +590,16 @@ mod tests {
     use super::*;
     use spindrift_lattice::unit_hash;
 
+    /// The components of `v` as three arrays, x, y, z.
+    fn split(v: &[Vec3]) -> [Vec<f64>; 3] {
+        std::array::from_fn(|a| v.iter().map(|s| s[a]).collect())
+    }
+
+    /// The arrays of [`split`] as the kernel takes them.
+    fn parts(c: &[Vec<f64>; 3]) -> [&[f64]; 3] {
+        c.each_ref().map(Vec::as_slice)
+    }
+
     // Against integer division (common practice): exact for the extremes of both operands
     // and a spread of values between.
     #[test]
@@ -647,8 +664,9 @@ mod tests {
             for sites in lists {
                 let new: Vec<Vec3> = sites.iter().map(|&i| unit(8, i as usize)).collect();
                 let old: Vec<Vec3> = sites.iter().map(|&i| spins[i as usize]).collect();
+                let (o, t) = (split(&old), split(&new));
                 let mut out = vec![f64::NAN; sites.len()];
-                h.energy_changes_from(&spins, &sites, &old, &new, &mut out);
+                h.energy_changes_from(&spins, &sites, parts(&o), parts(&t), &mut out);
                 for ((&i, t), o) in sites.iter().zip(&new).zip(&out) {
                     let e = h.energy_change(&spins, i as usize, *t);
                     assert_eq!(o.to_bits(), e.to_bits(), "{name} {cells:?} site {i}: {o} != {e}");
@@ -685,9 +703,10 @@ mod tests {
             for sites in lists {
                 let new: Vec<Vec3> = sites.iter().map(|&i| unit(8, i as usize)).collect();
                 let old: Vec<Vec3> = sites.iter().map(|&i| spins[i as usize]).collect();
+                let (o, t) = (split(&old), split(&new));
                 let (mut whole, mut part) = (vec![f64::NAN; sites.len()], vec![f64::NAN; sites.len()]);
-                h.energy_changes_from(&spins, &sites, &old, &new, &mut whole);
-                h.energy_changes_in(window, 2 * layer, &sites, &old, &new, &mut part);
+                h.energy_changes_from(&spins, &sites, parts(&o), parts(&t), &mut whole);
+                h.energy_changes_in(window, 2 * layer, &sites, parts(&o), parts(&t), &mut part);
                 for ((&i, a), b) in sites.iter().zip(&whole).zip(&part) {
                     assert_eq!(a.to_bits(), b.to_bits(), "{name} site {i}");
                 }
@@ -710,9 +729,10 @@ mod tests {
         for sites in [strided, scattered] {
             let new: Vec<Vec3> = sites.iter().map(|&i| unit(8, i as usize)).collect();
             let old: Vec<Vec3> = sites.iter().map(|&i| spins[i as usize]).collect();
+            let (o, t) = (split(&old), split(&new));
             let mut out = vec![0.0; sites.len()];
             let call = std::panic::AssertUnwindSafe(|| {
-                h.energy_changes_in(window, 3 * layer, &sites, &old, &new, &mut out)
+                h.energy_changes_in(window, 3 * layer, &sites, parts(&o), parts(&t), &mut out)
             });
             assert!(std::panic::catch_unwind(call).is_err(), "sites {sites:?}");
         }

@@ -467,8 +467,9 @@ trait Decisions {
     /// The site of `spins()[0]`.
     fn origin(&self) -> usize;
     /// Keeps the decided spins of `sites`, components `new` (x, y, z), the group of trials
-    /// from position `k0` of the call's site list; `pairs` is [`pair_step_start`]`(sites)`.
-    fn store(&mut self, k0: usize, sites: &[u32], pairs: Option<usize>, new: [&[f64]; 3]);
+    /// from position `k0` of the call's site list; `stretch` is where `spins()` holds them
+    /// as every other spin, if it does (see [`pair_stretch`]).
+    fn store(&mut self, k0: usize, sites: &[u32], stretch: Option<Range<usize>>, new: [&[f64]; 3]);
 }
 
 /// Decisions into a buffer, the spins unchanged (the trials of one class may then be
@@ -488,7 +489,7 @@ impl Decisions for IntoBuffer<'_> {
         0
     }
     #[inline(always)]
-    fn store(&mut self, k0: usize, _: &[u32], _: Option<usize>, new: [&[f64]; 3]) {
+    fn store(&mut self, k0: usize, _: &[u32], _: Option<Range<usize>>, new: [&[f64]; 3]) {
         let [x, y, z] = new;
         for (k, o) in self.out[k0..k0 + x.len()].iter_mut().enumerate() {
             *o = [x[k], y[k], z[k]];
@@ -514,10 +515,10 @@ impl Decisions for InPlace<'_> {
         self.origin
     }
     #[inline(always)]
-    fn store(&mut self, _: usize, sites: &[u32], pairs: Option<usize>, new: [&[f64]; 3]) {
+    fn store(&mut self, _: usize, sites: &[u32], stretch: Option<Range<usize>>, new: [&[f64]; 3]) {
         let [x, y, z] = new;
         let n = x.len();
-        if let Some(stretch) = pairs.and_then(|i0| pair_stretch(i0, self.origin, n, self.spins.len())) {
+        if let Some(stretch) = stretch {
             // Every other spin of a stretch: no index per site.
             let flat = self.spins[stretch.clone()].as_flattened_mut();
             for (k, c) in flat.chunks_exact_mut(6).enumerate() {
@@ -532,23 +533,17 @@ impl Decisions for InPlace<'_> {
     }
 }
 
-/// The first site of `sites` if they step by two (`sites[k] = sites[0] + 2 k`), as a
-/// checkerboard class does along a row of cells; tested without branches, so that it
-/// vectorises.
+/// Where a window of `len` spins from site `origin` holds `sites` as every other spin of
+/// one stretch (their spins and those between), if the sites step by two (`sites[k] =
+/// sites[0] + 2 k`, as a checkerboard class does along a row of cells) and the window
+/// holds them all. The step is tested without branches, so that it vectorises.
 #[inline(always)]
-fn pair_step_start(sites: &[u32]) -> Option<usize> {
+fn pair_stretch(sites: &[u32], origin: usize, len: usize) -> Option<Range<usize>> {
     let i0 = *sites.first()?;
     let step = sites.iter().enumerate().fold(true, |ok, (k, &i)| ok & (i == i0.wrapping_add(2 * k as u32)));
-    step.then_some(i0 as usize)
-}
-
-/// The positions in a window of `len` spins from site `origin` of the `n` sites from `i0`
-/// on that step by two (their spins and those between), if the window holds them all.
-#[inline(always)]
-fn pair_stretch(i0: usize, origin: usize, n: usize, len: usize) -> Option<Range<usize>> {
-    let start = i0.checked_sub(origin)?;
-    let end = (start + 2 * n).checked_sub(1)?;
-    (n > 0 && end <= len).then_some(start..end)
+    let start = (i0 as usize).checked_sub(origin)?;
+    let end = start + 2 * sites.len() - 1;
+    (step && end <= len).then_some(start..end)
 }
 
 spindrift_isa::multiversion! {
@@ -593,10 +588,10 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
         let (de, units, keep) = (&mut de[..n], &mut units[..n], &mut keep[..n]);
         stream.fill_trial_at(step, sites, kick.each_mut().map(|c| &mut c[..n]), pick, accept);
         let (spins, origin) = (to.spins(), to.origin());
-        let pairs = pair_step_start(sites);
+        let stretch = pair_stretch(sites, origin, spins.len());
         {
             let [ox, oy, oz] = old.each_mut().map(|c| &mut c[..n]);
-            match pairs.and_then(|i0| pair_stretch(i0, origin, n, spins.len())) {
+            match stretch.clone() {
                 // Every other spin of a stretch: no index per site.
                 Some(stretch) => {
                     let flat = spins[stretch.clone()].as_flattened();
@@ -654,7 +649,7 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
         counts.cone_accepted += cone_accepted;
         counts.energy_change += integer_sum(units);
         counts.moment = crate::moment::add(counts.moment, component_units(weight, chosen));
-        to.store(g * DRAWS, sites, pairs, chosen);
+        to.store(g * DRAWS, sites, stretch, chosen);
     }
     counts
 }

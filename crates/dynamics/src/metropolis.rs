@@ -491,8 +491,8 @@ impl Decisions for IntoBuffer<'_> {
     #[inline(always)]
     fn store(&mut self, k0: usize, _: &[u32], _: Option<Range<usize>>, new: [&[f64]; 3]) {
         let [x, y, z] = new;
-        for (k, o) in self.out[k0..k0 + x.len()].iter_mut().enumerate() {
-            *o = [x[k], y[k], z[k]];
+        for (((o, x), y), z) in self.out[k0..k0 + x.len()].iter_mut().zip(x).zip(y).zip(z) {
+            *o = [*x, *y, *z];
         }
     }
 }
@@ -521,8 +521,8 @@ impl Decisions for InPlace<'_> {
         if let Some(stretch) = stretch {
             // Every other spin of a stretch: no index per site.
             let flat = self.spins[stretch.clone()].as_flattened_mut();
-            for (k, c) in flat.chunks_exact_mut(6).enumerate() {
-                (c[0], c[1], c[2]) = (x[k], y[k], z[k]);
+            for (((c, x), y), z) in flat.chunks_exact_mut(6).zip(x).zip(y).zip(z) {
+                (c[0], c[1], c[2]) = (*x, *y, *z);
             }
             self.spins[stretch.end - 1] = [x[n - 1], y[n - 1], z[n - 1]];
             return;

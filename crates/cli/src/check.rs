@@ -33,7 +33,7 @@ impl<'a> Report<'a> {
     fn new(loaded: &'a Loaded, v: &'a Validated) -> anyhow::Result<Self> {
         let h = &v.hamiltonian;
         let spins = initial_spins(h, &v.protocol)?;
-        let energy = h.energy(&spins).scaled(1.0 / h.spin_count().max(1) as f64);
+        let energy = h.energy_terms(&spins).scaled(1.0 / h.spin_count().max(1) as f64);
         let curie = curie_estimates(h);
         let shells = shell_distances(h.cell(), 4, &|_, _| true);
         Ok(Self { loaded, v, energy, curie, shells })

@@ -310,7 +310,7 @@ impl Relaxer {
             }
         };
         let converged = torque < params.torque_tolerance || torque == 0.0;
-        let energy = h.energy(spins).total() / h.spin_count().max(1) as f64;
+        let energy = h.energy_total(spins) / h.spin_count().max(1) as f64;
         Ok(RelaxReport { steps: self.iteration - start, torque, converged, energy })
     }
 }

@@ -266,7 +266,7 @@ impl<'a> Runner<'a> {
             .observe_into(&self.spins, &mut self.q_buf)
             .map_err(|e| EngineError::Setup { stage, message: e.to_string() })?;
         let n = self.h.spin_count().max(1) as f64;
-        Ok(self.h.energy(&self.spins).scaled(1.0 / n))
+        Ok(self.h.energy_terms(&self.spins).scaled(1.0 / n))
     }
 
     /// Observes the spins: writes a series row and returns it.

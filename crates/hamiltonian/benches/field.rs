@@ -1,6 +1,7 @@
 //! Field evaluation on 128 x 128 x 8 simple cubic (periodic in-plane, open along z):
 //! the fused kernel of all terms (one shell, then one to three shells, to show the cost
-//! growing with the bonds), each reference term alone, and the energy by term.
+//! growing with the bonds), each reference term alone, and the energy: by term bond by
+//! bond (the reference), by term and in total through the row kernel.
 //! Single-threaded (`field_range` over the whole array) so the figures are per core;
 //! criterion reports elements (sites) per second. Seeded spins, set-up outside the timing.
 
@@ -58,7 +59,15 @@ fn bench(c: &mut Criterion) {
                     b.iter(|| term.add_gradient(h.cell(), black_box(&spins), &mut out))
                 });
             }
-            group.bench_function("energy by term", |b| b.iter(|| black_box(h.energy(black_box(&spins)))));
+            group.bench_function("energy by term, bond by bond (reference)", |b| {
+                b.iter(|| black_box(h.energy(black_box(&spins))))
+            });
+            group.bench_function("energy by term, row kernel", |b| {
+                b.iter(|| black_box(h.energy_terms(black_box(&spins))))
+            });
+            group.bench_function("energy total, row kernel", |b| {
+                b.iter(|| black_box(h.energy_total(black_box(&spins))))
+            });
         }
     }
     group.finish();

@@ -142,6 +142,18 @@ fn fused_field_equals_sum_of_terms() {
         let e = h.energy(&spins);
         let sum: f64 = h.terms().iter().map(|t| t.energy(h.cell(), &spins)).sum();
         assert!((e.total() - sum).abs() < 1e-10 * (1.0 + sum.abs()), "{name}: {} vs {sum}", e.total());
+        // Term by term, the row kernel's split (what observers record) against each
+        // term's own energy.
+        let fast = h.energy_terms(&spins);
+        let [ex, dmi, an, ze] = h.terms().map(|t| t.energy(h.cell(), &spins));
+        for (term, a, b) in [
+            ("exchange", fast.exchange, ex),
+            ("dmi", fast.dmi, dmi),
+            ("anisotropy", fast.anisotropy, an),
+            ("zeeman", fast.zeeman, ze),
+        ] {
+            assert!((a - b).abs() < 1e-10 * (1.0 + b.abs()), "{name} {term}: {a} vs {b}");
+        }
     }
 }
 
@@ -236,6 +248,9 @@ fn ferromagnetic_energy_is_minus_z_j_over_two() {
         let spins = vec![[0.0, 0.0, 1.0]; h.len()];
         let e = h.energy(&spins).total() / h.spin_count() as f64;
         assert!((e + z * j / 2.0).abs() < 1e-12, "{name}: {e}");
+        let fast = h.energy_terms(&spins);
+        let e = fast.exchange / h.spin_count() as f64;
+        assert!((e + z * j / 2.0).abs() < 1e-12 && fast.dmi == 0.0, "{name}: {e} by the row kernel");
     }
 }
 
@@ -301,4 +316,50 @@ fn recommended_dt_resolves_the_fastest_precession() {
     // z J / (mu muB) = 60 / (2 * 0.05788) T = 518 T; omega = 0.176 rad/(ps T) * 518 T.
     let omega = 0.176085963023 * 60.0 / (2.0 * MU_B);
     assert!(dt <= 0.05 / omega && dt > 0.02 / omega, "{dt}");
+}
+
+/// Energies by term of a flat cycloid of wave number `q` along `x` on the square lattice
+/// with interfacial DMI: per spin, the exchange `-J - J cos(qa)` (one `x` and one `y`
+/// bond) and the DMI `+-D sin(qa)`, its sign set by the sense of rotation (common
+/// practice: the classical spiral of the Dzyaloshinskii-Moriya chain, I. E.
+/// Dzyaloshinskii, Sov. Phys. JETP 19, 960 (1964)); anisotropy `-K <cos^2> = -K/2` and
+/// Zeeman zero for a field along `y`. Both the bond-by-bond sum and the row kernel's split.
+#[test]
+fn cycloid_energies_by_term() {
+    let (j, d, k, n) = (4.0, 1.5, 0.3, 24usize);
+    let cell = Supercell::new(preset("square", 3.0, None).unwrap(), [n, 4, 1], [true; 3], 0).unwrap();
+    let mut bonds = BondList::new(1);
+    let dmi = Some((d, DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] }));
+    add_shell(&cell, &mut bonds, &ShellCoupling { shell: ShellRef::Index(1), j, dmi, pair: None }).unwrap();
+    let sp =
+        vec![Species { name: "A".into(), moment: 2.0, damping: 0.1, anisotropy: k, axis: [0.0, 0.0, 1.0] }];
+    let h = Hamiltonian::new(cell, sp, bonds, [0.0, 0.7, 0.0]).unwrap();
+    for (turns, sense) in [(1, 1.0), (3, 1.0), (3, -1.0), (5, -1.0)] {
+        let qa = std::f64::consts::TAU * turns as f64 / n as f64;
+        let spins: Vec<Vec3> = (0..h.len())
+            .map(|i| {
+                let x = h.cell().decompose(i).0[0] as f64;
+                [(sense * qa * x).sin(), 0.0, (sense * qa * x).cos()]
+            })
+            .collect();
+        let per = h.spin_count() as f64;
+        for (how, e) in [("by bond", h.energy(&spins)), ("row kernel", h.energy_terms(&spins))] {
+            let what = format!("{how}, {turns} turns, sense {sense}");
+            assert!(
+                (e.exchange / per + j + j * qa.cos()).abs() < 1e-12,
+                "{what}: exchange {}",
+                e.exchange / per
+            );
+            assert!(((e.dmi / per).abs() - d * qa.sin()).abs() < 1e-12, "{what}: dmi {}", e.dmi / per);
+            assert!(
+                (e.anisotropy / per + k / 2.0).abs() < 1e-12,
+                "{what}: anisotropy {}",
+                e.anisotropy / per
+            );
+            assert!((e.zeeman / per).abs() < 1e-12, "{what}: zeeman {}", e.zeeman / per);
+        }
+        // The sense of rotation sets the sign of the DMI energy.
+        let flipped: Vec<Vec3> = spins.iter().map(|s| [-s[0], s[1], s[2]]).collect();
+        assert!((h.energy_terms(&spins).dmi + h.energy_terms(&flipped).dmi).abs() < 1e-9);
+    }
 }

@@ -695,30 +695,33 @@ impl Hamiltonian {
         energy_total_kernel(self, spins, start, len)
     }
 
+    /// Walks sites `start .. start + len` in blocks of at most [`ENERGY_BLOCK`] sites, each
+    /// within one row of cells, in order: `f(c23, row_start, lo, hi)` for the block
+    /// `lo .. hi` of the row `(*, c2, c3)` that starts at site `row_start`.
     #[inline(always)]
-    fn energy_total_range_portable(&self, spins: &[Vec3], start: usize, len: usize) -> f64 {
-        const BLOCK: usize = 256;
-        let nb = self.cell.basis_len();
-        let row_len = self.cell.cells()[0] * nb;
+    fn row_blocks(&self, start: usize, len: usize, mut f: impl FnMut([usize; 2], usize, usize, usize)) {
+        let row_len = self.cell.cells()[0] * self.cell.basis_len();
         let n2 = self.cell.cells()[1];
-        let mut h = [[0.0; 3]; BLOCK];
-        let mut total = 0.0;
         let end = start + len;
         let mut lo = start;
         while lo < end {
             let r = lo / row_len;
             let row_start = r * row_len;
-            let hi = (row_start + row_len).min(end).min(lo + BLOCK);
+            let hi = (row_start + row_len).min(end).min(lo + ENERGY_BLOCK);
+            f([r % n2, r / n2], row_start, lo, hi);
+            lo = hi;
+        }
+    }
+
+    #[inline(always)]
+    fn energy_total_range_portable(&self, spins: &[Vec3], start: usize, len: usize) -> f64 {
+        let nb = self.cell.basis_len();
+        let rows = FlatRows::new(self, spins);
+        let mut h = [[0.0; 3]; ENERGY_BLOCK];
+        let mut total = 0.0;
+        self.row_blocks(start, len, |c23, row_start, lo, hi| {
             let h = &mut h[..hi - lo];
-            let rows = FlatRows::new(self, spins);
-            self.field_row::<false, _>(
-                &rows,
-                [r % n2, r / n2],
-                row_start,
-                lo,
-                h,
-                (&self.fused, &self.entries),
-            );
+            self.field_row::<false, _>(&rows, c23, row_start, lo, h, (&self.fused, &self.entries));
             let mut b = lo % nb;
             for (k, hk) in h.iter().enumerate() {
                 let s = spins[lo + k];
@@ -726,13 +729,9 @@ impl Hamiltonian {
                 let pair = -0.5 * self.mu_mev[b] * dot(s, *hk);
                 let onsite = -self.k[b] * dot(s, self.axis[b]).powi(2) - self.mu_mev[b] * dot(self.field, s);
                 total += pair + onsite;
-                b += 1;
-                if b == nb {
-                    b = 0;
-                }
+                b = if b + 1 == nb { 0 } else { b + 1 };
             }
-            lo = hi;
-        }
+        });
         total
     }
 
@@ -753,20 +752,12 @@ impl Hamiltonian {
 
     #[inline(always)]
     fn energy_terms_range_portable(&self, spins: &[Vec3], start: usize, len: usize) -> EnergyTerms {
-        const BLOCK: usize = 256;
         let nb = self.cell.basis_len();
-        let row_len = self.cell.cells()[0] * nb;
-        let n2 = self.cell.cells()[1];
         let rows = FlatRows::new(self, spins);
         let [exchange, dmi] = &self.parts;
-        let mut h = [[0.0; 3]; BLOCK];
+        let mut h = [[0.0; 3]; ENERGY_BLOCK];
         let mut e = EnergyTerms::default();
-        let end = start + len;
-        let mut lo = start;
-        while lo < end {
-            let r = lo / row_len;
-            let row_start = r * row_len;
-            let hi = (row_start + row_len).min(end).min(lo + BLOCK);
+        self.row_blocks(start, len, |c23, row_start, lo, hi| {
             let (h, s) = (&mut h[..hi - lo], &spins[lo..hi]);
             // Vacant sites hold zero spins and add nothing.
             let pair = |h: &[Vec3]| {
@@ -780,7 +771,7 @@ impl Hamiltonian {
             for (part, sum) in [(exchange, &mut e.exchange), (dmi, &mut e.dmi)] {
                 if !part.is_empty() {
                     let set = (part.fused.as_slice(), part.entries.as_slice());
-                    self.field_row::<false, _>(&rows, [r % n2, r / n2], row_start, lo, h, set);
+                    self.field_row::<false, _>(&rows, c23, row_start, lo, h, set);
                     *sum += pair(h);
                 }
             }
@@ -790,8 +781,7 @@ impl Hamiltonian {
                 e.zeeman -= self.mu_mev[b] * dot(self.field, *s);
                 b = if b + 1 == nb { 0 } else { b + 1 };
             }
-            lo = hi;
-        }
+        });
         e
     }
 
@@ -867,6 +857,10 @@ spindrift_isa::multiversion! {
         h.energy_total_range_portable(spins, start, len)
     }
 }
+
+/// Sites per block of the energy sums (`Hamiltonian::row_blocks`): the block's fields
+/// (6 KB) stay in L1.
+const ENERGY_BLOCK: usize = 256;
 
 /// Most bonds applied in one pass over a row (see `Hamiltonian::field_row`).
 const PACK: usize = 4;

@@ -609,7 +609,20 @@ pub(crate) mod tests {
         periodic: [bool; 3],
         occupancy: f64,
     ) -> Hamiltonian {
-        let mut crystal = preset(lattice, 3.0, None).unwrap();
+        stacked_system_of(lattice, None, cells, shells, periodic, occupancy)
+    }
+
+    /// [`system_of`] with the lattice constant `c` along `a3` (Å; `None`: 3 Å, as along
+    /// `a1` and `a2`).
+    pub(crate) fn stacked_system_of(
+        lattice: &str,
+        c: Option<f64>,
+        cells: [usize; 3],
+        shells: usize,
+        periodic: [bool; 3],
+        occupancy: f64,
+    ) -> Hamiltonian {
+        let mut crystal = preset(lattice, 3.0, c).unwrap();
         crystal.basis.iter_mut().for_each(|b| b.occupancy = occupancy);
         let nb = crystal.basis.len();
         let cell = Supercell::new(crystal, cells, periodic, 4).unwrap();

@@ -32,6 +32,7 @@ mod colouring;
 mod error;
 pub mod heun;
 pub mod initial;
+mod layer_blocks;
 pub mod metropolis;
 mod moment;
 pub mod relax;

@@ -1,0 +1,247 @@
+//! A film's layers in blocks, swept as a checkerboard of blocks: a Monte Carlo sweep with
+//! two parallel phases and no buffer, whatever the number of colour classes.
+//!
+//! Where the supercell is open along `a3` and has at least [`MIN_BLOCKS`] times
+//! `2 r` layers (`r` the reach of the bonds along `a3` in layers, [`Hamiltonian::row_reach`];
+//! one layer per block when no bond leaves its layer), the layers are grouped into an even
+//! number of blocks of at least `2 r` layers each. A sweep first decides every site of
+//! the even blocks, then every site of the odd ones. Within a block the sites are decided
+//! one colour class after another, tile by tile, each in place and at once: sequentially,
+//! as far as the result is concerned. Two blocks of one phase are at least `2 r` layers
+//! apart, so no bond joins them, and their sites read only spins that no other block of
+//! the phase writes.
+//!
+//! Each block of a phase gets a window of the spin array of its own: from the middle of
+//! the block below to the middle of the block above (layer-wise, the lower half rounded
+//! down), which holds every neighbour of its sites, as the halves are at least `r` layers
+//! thick. The windows of a phase are disjoint ranges of the array, so they are plain
+//! mutable slices, one per task, and a phase is one parallel region. Against the colour
+//! passes of `slabs.rs`, which need two regions per class (the sites next to another slab
+//! are decided from the whole array into a buffer first), a sweep of a two-colour lattice
+//! is two regions instead of four and writes no buffer.
+//!
+//! The blocks, their order and the order within a block follow from the supercell and
+//! the bonds alone, never from the thread count, so a sweep gives bitwise the same spins
+//! on any number of threads. The order differs from the colour passes' (a block's sites
+//! see the new spins of the blocks decided before them), so the chain differs from that
+//! of a lattice swept by colour passes; both are sequences of single-site Metropolis
+//! updates, each visiting every site once per sweep.
+//!
+//! # Order within a block
+//!
+//! Tiles as in `slabs.rs`: a few rows along `a2` of every layer of the block, then the
+//! next rows; within a tile, class by class, layer by layer. The rows a tile reads in the
+//! layers above and below were read a moment ago and are still in the cache.
+
+use crate::colouring::Colouring;
+use spindrift_hamiltonian::Hamiltonian;
+use std::ops::Range;
+
+/// Fewest blocks: four, so that each phase has at least two blocks to share.
+pub(crate) const MIN_BLOCKS: usize = 4;
+
+/// Bytes of spins in the rows of one tile: a quarter of a 2 MB L2 cache (as in
+/// `slabs.rs`).
+const TILE_BYTES: usize = 512 * 1024;
+
+/// The blocks of a film and the order of its sites within each.
+#[derive(Debug, Clone)]
+pub(crate) struct LayerBlocks {
+    /// Block `k` holds sites `starts[k] .. starts[k + 1]`.
+    starts: Vec<usize>,
+    /// Block `k`'s window starts at `window_at[k]` (the middle of block `k - 1`, or 0);
+    /// it ends where block `k + 2`'s starts (or at the end of the array).
+    window_at: Vec<usize>,
+    /// The blocks of phase 0 (even) and phase 1 (odd).
+    phases: [Vec<usize>; 2],
+    /// Block `k`'s sites in the order they are decided: ranges of positions in the list
+    /// of a class, `(class, range)`, from `order[order_at[k]]` to `order[order_at[k + 1]]`.
+    order: Vec<(u32, Range<u32>)>,
+    order_at: Vec<usize>,
+}
+
+impl LayerBlocks {
+    /// The blocks of `h`'s supercell, or `None` where it is periodic along `a3` or has
+    /// too few layers for [`MIN_BLOCKS`] blocks.
+    pub(crate) fn new(h: &Hamiltonian, colouring: &Colouring) -> Option<Self> {
+        Self::with_tiles(h, colouring, TILE_BYTES)
+    }
+
+    /// [`LayerBlocks::new`] with tiles of `tile_bytes` (tests use small ones).
+    pub(crate) fn with_tiles(h: &Hamiltonian, colouring: &Colouring, tile_bytes: usize) -> Option<Self> {
+        let cell = h.cell();
+        let [n1, n2, n3] = cell.cells();
+        if cell.periodic()[2] {
+            return None;
+        }
+        let reach = h.row_reach()[1];
+        let thinnest = (2 * reach).max(1);
+        // The most blocks of at least `thinnest` layers, an even number.
+        let blocks = (n3 / thinnest) & !1;
+        if blocks < MIN_BLOCKS {
+            return None;
+        }
+        // Layers per block: as even as they go, the spare layers to the blocks of both
+        // phases in turn (0, 1, 2, ...), so that the two phases weigh about alike.
+        let (base, spare) = (n3 / blocks, n3 % blocks);
+        let layers: Vec<usize> = (0..blocks).map(|k| base + usize::from(k < spare)).collect();
+        let mut first_layer = vec![0];
+        for &l in &layers {
+            first_layer.push(first_layer.last().unwrap() + l);
+        }
+        let row_len = n1 * cell.basis_len();
+        let layer_len = n2 * row_len;
+        let starts: Vec<usize> = first_layer.iter().map(|&z| z * layer_len).collect();
+        let window_at = (0..blocks)
+            .map(|k| if k == 0 { 0 } else { (first_layer[k - 1] + layers[k - 1] / 2) * layer_len })
+            .collect();
+        let phases = [(0..blocks).step_by(2).collect(), (1..blocks).step_by(2).collect()];
+
+        // Rows along a2 per tile: the tile's rows in a block's layers and the layers its
+        // bonds reach take at most `tile_bytes` of spins.
+        let tile =
+            (tile_bytes / ((base + 1 + 2 * reach) * row_len * std::mem::size_of::<[f64; 3]>())).clamp(1, n2);
+        let mut order: Vec<(u32, Range<u32>)> = Vec::new();
+        let mut order_at = vec![0];
+        for k in 0..blocks {
+            for y0 in (0..n2).step_by(tile) {
+                let y1 = (y0 + tile).min(n2);
+                for c in 0..colouring.len() {
+                    let class = colouring.class(c);
+                    // The position in the class of its first site at or after site i.
+                    let at = |i: usize| class.partition_point(|&s| (s as usize) < i) as u32;
+                    for z in first_layer[k]..first_layer[k + 1] {
+                        let (a, b) = (at(z * layer_len + y0 * row_len), at(z * layer_len + y1 * row_len));
+                        let fresh = order.len() == order_at[k];
+                        match order.last_mut() {
+                            // Adjacent ranges of a class in one block make one.
+                            Some((last_c, last)) if !fresh && *last_c as usize == c && last.end == a => {
+                                last.end = b
+                            }
+                            _ if a < b => order.push((c as u32, a..b)),
+                            _ => {}
+                        }
+                    }
+                }
+            }
+            order_at.push(order.len());
+        }
+        Some(Self { starts, window_at, phases, order, order_at })
+    }
+
+    /// Number of blocks.
+    pub(crate) fn len(&self) -> usize {
+        self.starts.len() - 1
+    }
+
+    /// The blocks of phase `p` (0: even, 1: odd), ascending.
+    pub(crate) fn phase(&self, p: usize) -> &[usize] {
+        &self.phases[p]
+    }
+
+    /// Where block `k`'s window starts: the window runs to where block `k + 2`'s starts.
+    pub(crate) fn window_start(&self, k: usize) -> usize {
+        self.window_at[k]
+    }
+
+    /// The sites of block `k`, a range of the spin array (the sweep needs only the
+    /// windows; the tests check the blocks).
+    #[cfg(test)]
+    pub(crate) fn sites(&self, k: usize) -> Range<usize> {
+        self.starts[k]..self.starts[k + 1]
+    }
+
+    /// Block `k`'s sites in the order they are decided: `(class, range of positions in
+    /// the class's site list)`.
+    pub(crate) fn order(&self, k: usize) -> &[(u32, Range<u32>)] {
+        &self.order[self.order_at[k]..self.order_at[k + 1]]
+    }
+
+    /// Bytes held.
+    pub(crate) fn bytes(&self) -> usize {
+        (self.starts.len() + self.window_at.len() + self.phases[0].len() + self.phases[1].len()) * 8
+            + self.order.len() * std::mem::size_of::<(u32, Range<u32>)>()
+            + self.order_at.len() * 8
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::heun::tests::{stacked_system_of, system_of};
+
+    // Every neighbour of a block's site lies in the block's window, the windows of a phase
+    // are disjoint and ascending, each block's sites lie in its own window, and every
+    // occupied site is listed once, in its own block; on simple cubic films with one to
+    // three shells (one, three of them diluted), bcc (two basis sites) and a stack of
+    // square layers with no bond between them (one layer per block), with tiles of a few
+    // rows and of whole layers. The neighbours come from the bond list and the
+    // supercell's own wrapping (`Supercell::neighbour`), not from the blocks' layer
+    // arithmetic. Our own behaviour.
+    #[test]
+    fn windows_hold_every_neighbour() {
+        let systems = [
+            system_of("simple-cubic", [16, 12, 12], 1, [true, true, false], 1.0),
+            system_of("simple-cubic", [10, 12, 17], 3, [true, true, false], 0.8),
+            system_of("bcc", [6, 8, 16], 2, [false, true, false], 1.0),
+            stacked_system_of("square", Some(9.0), [12, 10, 5], 2, [true, true, false], 1.0),
+        ];
+        let mut made = 0;
+        for h in &systems {
+            let colouring = Colouring::new(h).unwrap();
+            let cell = h.cell();
+            let row_bytes = 24 * cell.cells()[0] * cell.basis_len();
+            for tile in [3 * row_bytes, TILE_BYTES] {
+                let blocks = LayerBlocks::with_tiles(h, &colouring, tile)
+                    .unwrap_or_else(|| panic!("no blocks for {:?}, reach {:?}", cell.cells(), h.row_reach()));
+                made += 1;
+                let n = blocks.len();
+                assert!(n >= MIN_BLOCKS && n % 2 == 0);
+                assert_eq!((blocks.sites(0).start, blocks.sites(n - 1).end), (0, h.len()));
+                let window = |k: usize| {
+                    blocks.window_start(k)..if k + 2 < n { blocks.window_start(k + 2) } else { h.len() }
+                };
+                for p in 0..2 {
+                    let ks = blocks.phase(p);
+                    assert!(ks.iter().all(|&k| k % 2 == p) && ks.len() == (n + 1 - p) / 2);
+                    for pair in ks.windows(2) {
+                        assert!(window(pair[0]).end <= window(pair[1]).start, "windows {pair:?} overlap");
+                    }
+                }
+                let mut seen = vec![0u8; h.len()];
+                for k in 0..n {
+                    let (own, win) = (blocks.sites(k), window(k));
+                    assert!(win.start <= own.start && own.end <= win.end);
+                    for (c, r) in blocks.order(k) {
+                        for &i in &colouring.class(*c as usize)[r.start as usize..r.end as usize] {
+                            let i = i as usize;
+                            seen[i] += 1;
+                            assert!(own.contains(&i), "site {i} listed in block {k}");
+                            let (cl, b) = cell.decompose(i);
+                            for bond in h.bonds().from_basis(b) {
+                                if let Some(j) = cell.neighbour(cl, bond.offset, bond.to) {
+                                    assert!(
+                                        win.contains(&j),
+                                        "site {i}'s neighbour {j} outside block {k}'s window"
+                                    );
+                                }
+                            }
+                        }
+                    }
+                }
+                for (i, &m) in seen.iter().enumerate() {
+                    assert_eq!(m, u8::from(cell.is_occupied(i)), "site {i} listed {m} times");
+                }
+            }
+        }
+        assert_eq!(made, 8);
+        // Periodic along a3, or too few layers for four blocks of two: none.
+        for h in [
+            system_of("simple-cubic", [8, 8, 16], 1, [true, true, true], 1.0),
+            system_of("simple-cubic", [8, 8, 7], 1, [true, true, false], 1.0),
+            system_of("simple-cubic", [32, 48, 1], 1, [true, true, false], 1.0),
+        ] {
+            assert!(LayerBlocks::new(&h, &Colouring::new(&h).unwrap()).is_none());
+        }
+    }
+}

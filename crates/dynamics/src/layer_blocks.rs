@@ -1,37 +1,42 @@
 //! A film's layers in blocks, swept as a checkerboard of blocks: a Monte Carlo sweep with
 //! two parallel phases and no buffer, whatever the number of colour classes.
 //!
-//! Where the supercell is open along `a3` and has at least [`MIN_BLOCKS`] times
-//! `2 r` layers (`r` the reach of the bonds along `a3` in layers, [`Hamiltonian::row_reach`];
-//! one layer per block when no bond leaves its layer), the layers are grouped into an even
-//! number of blocks of at least `2 r` layers each. A sweep first decides every site of
-//! the even blocks, then every site of the odd ones. Within a block the sites are decided
-//! one colour class after another, tile by tile, each in place and at once: sequentially,
-//! as far as the result is concerned. Two blocks of one phase are at least `2 r` layers
-//! apart, so no bond joins them, and their sites read only spins that no other block of
-//! the phase writes.
+//! Where the supercell is open along `a3` and has at least [`MIN_BLOCKS`] times `2 r`
+//! layers (`r` the reach of the bonds along `a3` in layers, [`Hamiltonian::row_reach`]; one
+//! layer per block when no bond leaves its layer), the layers are grouped into blocks of
+//! at least `2 r` layers each, as many as fit but a multiple of four (each phase then has
+//! an even number of blocks to halve among threads). A sweep first decides every site of
+//! the even blocks, then every site of the odd ones; within a block, one colour class
+//! after another. Two blocks of one phase are at least `2 r` layers apart, so no bond
+//! joins them, and their sites read only spins that no other block of the phase writes.
 //!
 //! Each block of a phase gets a window of the spin array of its own: from the middle of
 //! the block below to the middle of the block above (layer-wise, the lower half rounded
 //! down), which holds every neighbour of its sites, as the halves are at least `r` layers
 //! thick. The windows of a phase are disjoint ranges of the array, so they are plain
-//! mutable slices, one per task, and a phase is one parallel region. Against the colour
-//! passes of `slabs.rs`, which need two regions per class (the sites next to another slab
-//! are decided from the whole array into a buffer first), a sweep of a two-colour lattice
-//! is two regions instead of four and writes no buffer.
+//! mutable slices, one per task, and a phase is one parallel region in which each block
+//! decides its sites in place. Against the colour passes of `slabs.rs`, which need two
+//! regions per class (the sites next to another slab are decided from the whole array
+//! into a buffer first), a sweep of a two-colour lattice is two regions instead of four
+//! and writes no buffer.
 //!
-//! The blocks, their order and the order within a block follow from the supercell and
-//! the bonds alone, never from the thread count, so a sweep gives bitwise the same spins
-//! on any number of threads. The order differs from the colour passes' (a block's sites
-//! see the new spins of the blocks decided before them), so the chain differs from that
-//! of a lattice swept by colour passes; both are sequences of single-site Metropolis
-//! updates, each visiting every site once per sweep.
+//! With more threads than blocks in a phase, a phase goes class by class instead: the
+//! class's sites in all the phase's blocks are decided from the whole array into a buffer
+//! in parallel chunks, then written back, block by block in parallel. A class has no bond
+//! within itself, so this is the same result as deciding each block's class in place.
 //!
-//! # Order within a block
+//! The blocks and their order follow from the supercell and the bonds alone, never from
+//! the thread count, so a sweep gives bitwise the same spins on any number of threads.
+//! The order differs from the colour passes' (a block's sites see the new spins of the
+//! blocks decided before them), so the chain differs from that of a lattice swept by
+//! colour passes; both are sequences of single-site Metropolis updates, each visiting
+//! every site once per sweep.
+//!
+//! # Order within a class of a block
 //!
 //! Tiles as in `slabs.rs`: a few rows along `a2` of every layer of the block, then the
-//! next rows; within a tile, class by class, layer by layer. The rows a tile reads in the
-//! layers above and below were read a moment ago and are still in the cache.
+//! next rows. The rows a tile reads in the layers above and below were read a moment ago
+//! and are still in the cache. Any order within a class gives the same result.
 
 use crate::colouring::Colouring;
 use spindrift_hamiltonian::Hamiltonian;
@@ -58,6 +63,9 @@ pub(crate) struct LayerBlocks {
     /// of a class, `(class, range)`, from `order[order_at[k]]` to `order[order_at[k + 1]]`.
     order: Vec<(u32, Range<u32>)>,
     order_at: Vec<usize>,
+    /// For class `c`, the position in its site list of its first site at or after block
+    /// `k`'s first: `class_at[c * (blocks + 1) + k]`.
+    class_at: Vec<u32>,
 }
 
 impl LayerBlocks {
@@ -76,15 +84,18 @@ impl LayerBlocks {
         }
         let reach = h.row_reach()[1];
         let thinnest = (2 * reach).max(1);
-        // The most blocks of at least `thinnest` layers, an even number.
-        let blocks = (n3 / thinnest) & !1;
+        // The most blocks of at least `thinnest` layers, a multiple of four, so that each
+        // phase has an even number of blocks to halve among threads.
+        let blocks = (n3 / thinnest) & !3;
         if blocks < MIN_BLOCKS {
             return None;
         }
-        // Layers per block: as even as they go, the spare layers to the blocks of both
-        // phases in turn (0, 1, 2, ...), so that the two phases weigh about alike.
+        // Layers per block: as even as they go, the spare layers to the even blocks
+        // first, then to the odd ones, so that the blocks of a phase weigh alike as far
+        // as they can.
         let (base, spare) = (n3 / blocks, n3 % blocks);
-        let layers: Vec<usize> = (0..blocks).map(|k| base + usize::from(k < spare)).collect();
+        let rank = |k: usize| if k % 2 == 0 { k / 2 } else { blocks / 2 + k / 2 };
+        let layers: Vec<usize> = (0..blocks).map(|k| base + usize::from(rank(k) < spare)).collect();
         let mut first_layer = vec![0];
         for &l in &layers {
             first_layer.push(first_layer.last().unwrap() + l);
@@ -103,13 +114,18 @@ impl LayerBlocks {
             (tile_bytes / ((base + 1 + 2 * reach) * row_len * std::mem::size_of::<[f64; 3]>())).clamp(1, n2);
         let mut order: Vec<(u32, Range<u32>)> = Vec::new();
         let mut order_at = vec![0];
+        let mut class_at = Vec::with_capacity(colouring.len() * (blocks + 1));
+        for c in 0..colouring.len() {
+            let class = colouring.class(c);
+            class_at.extend(starts.iter().map(|&i| class.partition_point(|&s| (s as usize) < i) as u32));
+        }
         for k in 0..blocks {
-            for y0 in (0..n2).step_by(tile) {
-                let y1 = (y0 + tile).min(n2);
-                for c in 0..colouring.len() {
-                    let class = colouring.class(c);
-                    // The position in the class of its first site at or after site i.
-                    let at = |i: usize| class.partition_point(|&s| (s as usize) < i) as u32;
+            for c in 0..colouring.len() {
+                let class = colouring.class(c);
+                // The position in the class of its first site at or after site i.
+                let at = |i: usize| class.partition_point(|&s| (s as usize) < i) as u32;
+                for y0 in (0..n2).step_by(tile) {
+                    let y1 = (y0 + tile).min(n2);
                     for z in first_layer[k]..first_layer[k + 1] {
                         let (a, b) = (at(z * layer_len + y0 * row_len), at(z * layer_len + y1 * row_len));
                         let fresh = order.len() == order_at[k];
@@ -126,7 +142,7 @@ impl LayerBlocks {
             }
             order_at.push(order.len());
         }
-        Some(Self { starts, window_at, phases, order, order_at })
+        Some(Self { starts, window_at, phases, order, order_at, class_at })
     }
 
     /// Number of blocks.
@@ -151,10 +167,17 @@ impl LayerBlocks {
         self.starts[k]..self.starts[k + 1]
     }
 
-    /// Block `k`'s sites in the order they are decided: `(class, range of positions in
-    /// the class's site list)`.
+    /// Block `k`'s sites in the order they are decided, class by class (tiles within a
+    /// class): `(class, range of positions in the class's site list)`.
     pub(crate) fn order(&self, k: usize) -> &[(u32, Range<u32>)] {
         &self.order[self.order_at[k]..self.order_at[k + 1]]
+    }
+
+    /// The positions in class `c`'s site list of the class's sites in block `k`, in
+    /// index order.
+    pub(crate) fn class_range(&self, c: usize, k: usize) -> Range<usize> {
+        let at = c * (self.len() + 1) + k;
+        self.class_at[at] as usize..self.class_at[at + 1] as usize
     }
 
     /// Bytes held.
@@ -162,6 +185,7 @@ impl LayerBlocks {
         (self.starts.len() + self.window_at.len() + self.phases[0].len() + self.phases[1].len()) * 8
             + self.order.len() * std::mem::size_of::<(u32, Range<u32>)>()
             + self.order_at.len() * 8
+            + self.class_at.len() * 4
     }
 }
 
@@ -172,7 +196,8 @@ mod tests {
 
     // Every neighbour of a block's site lies in the block's window, the windows of a phase
     // are disjoint and ascending, each block's sites lie in its own window, and every
-    // occupied site is listed once, in its own block; on simple cubic films with one to
+    // occupied site is listed once, in its own block, and a block's sites of a class are
+    // one range of the class's list (`class_range`); on simple cubic films with one to
     // three shells (one, three of them diluted), bcc (two basis sites) and a stack of
     // square layers with no bond between them (one layer per block), with tiles of a few
     // rows and of whole layers. The neighbours come from the bond list and the
@@ -196,7 +221,7 @@ mod tests {
                     .unwrap_or_else(|| panic!("no blocks for {:?}, reach {:?}", cell.cells(), h.row_reach()));
                 made += 1;
                 let n = blocks.len();
-                assert!(n >= MIN_BLOCKS && n % 2 == 0);
+                assert!(n >= MIN_BLOCKS && n % 4 == 0);
                 assert_eq!((blocks.sites(0).start, blocks.sites(n - 1).end), (0, h.len()));
                 let window = |k: usize| {
                     blocks.window_start(k)..if k + 2 < n { blocks.window_start(k + 2) } else { h.len() }
@@ -212,6 +237,12 @@ mod tests {
                 for k in 0..n {
                     let (own, win) = (blocks.sites(k), window(k));
                     assert!(win.start <= own.start && own.end <= win.end);
+                    for c in 0..colouring.len() {
+                        let class = colouring.class(c);
+                        let inside: Vec<u32> =
+                            class.iter().copied().filter(|&i| own.contains(&(i as usize))).collect();
+                        assert_eq!(&class[blocks.class_range(c, k)], &inside[..], "class {c} in block {k}");
+                    }
                     for (c, r) in blocks.order(k) {
                         for &i in &colouring.class(*c as usize)[r.start as usize..r.end as usize] {
                             let i = i as usize;

@@ -429,11 +429,34 @@ impl Metropolis {
             step: sweep_index,
             weight: 0.0,
         };
+        let threads = rayon::current_num_threads();
         let pass =
             BlockPass { blocks, colouring: &self.colouring, tally: &self.tally, nb: h.cell().basis_len() };
-        let total = (0..2).fold(Counts::default(), |total, p| {
-            total.add(block_phase(&pass, &ctx, blocks.phase(p), spins, 0))
-        });
+        // The buffer of a phase's class, where a phase has fewer blocks than threads.
+        let mut need = 0;
+        for p in (0..2).filter(|&p| threads > blocks.phase(p).len()) {
+            for c in 0..self.colouring.len() {
+                need = need.max(pass.class_len(c, blocks.phase(p)));
+            }
+        }
+        if self.buffer.len() < need {
+            self.buffer.resize(need, [0.0; 3]);
+        }
+        let mut total = Counts::default();
+        for p in 0..2 {
+            let ks = blocks.phase(p);
+            if threads <= ks.len() {
+                total = total.add(block_phase(&pass, &ctx, ks, spins, 0));
+                continue;
+            }
+            // Fewer blocks than threads: class by class, through the buffer.
+            for c in 0..self.colouring.len() {
+                let ctx = TrialContext { weight: pass.weight(c), ..ctx };
+                let len = pass.class_len(c, ks);
+                total = total.add(decide_blocks(&pass, &ctx, c, ks, spins, &mut self.buffer[..len]));
+                write_blocks(&pass, c, ks, &self.buffer[..len], spins, 0);
+            }
+        }
         self.finish(total, adapt)
     }
 
@@ -536,12 +559,84 @@ fn block(
 ) -> Counts {
     let mut counts = Counts::default();
     for (c, r) in pass.blocks.order(k) {
-        let class = pass.colouring.class(*c as usize);
-        let sites = &class[r.start as usize..r.end as usize];
-        let weight = pass.tally.weight(class[0] as usize % pass.nb);
-        counts = counts.add(decide_in_place(&TrialContext { weight, ..*ctx }, window, origin, sites));
+        let c = *c as usize;
+        let sites = &pass.colouring.class(c)[r.start as usize..r.end as usize];
+        let ctx = TrialContext { weight: pass.weight(c), ..*ctx };
+        counts = counts.add(decide_in_place(&ctx, window, origin, sites));
     }
     counts
+}
+
+impl BlockPass<'_> {
+    /// The [`MomentTally`] weight of class `c`'s basis site.
+    fn weight(&self, c: usize) -> f64 {
+        self.colouring.class(c).first().map_or(0.0, |&i| self.tally.weight(i as usize % self.nb))
+    }
+
+    /// Class `c`'s sites in block `k`.
+    fn class_sites(&self, c: usize, k: usize) -> &[u32] {
+        &self.colouring.class(c)[self.blocks.class_range(c, k)]
+    }
+
+    /// Class `c`'s sites in blocks `ks`, in all.
+    fn class_len(&self, c: usize, ks: &[usize]) -> usize {
+        ks.iter().map(|&k| self.blocks.class_range(c, k).len()).sum()
+    }
+}
+
+/// Decides class `c`'s sites in blocks `ks` from `spins` into `out` (block after block),
+/// in parallel over the blocks and over chunks of each.
+fn decide_blocks(
+    pass: &BlockPass<'_>,
+    ctx: &TrialContext<'_>,
+    c: usize,
+    ks: &[usize],
+    spins: &[Vec3],
+    out: &mut [Vec3],
+) -> Counts {
+    match ks {
+        [] => Counts::default(),
+        [k] => decide_in_chunks(ctx, spins, out, pass.class_sites(c, *k)),
+        _ => {
+            let (low, high) = ks.split_at(ks.len() / 2);
+            let (a, b) = out.split_at_mut(pass.class_len(c, low));
+            let (x, y) = rayon::join(
+                || decide_blocks(pass, ctx, c, low, spins, a),
+                || decide_blocks(pass, ctx, c, high, spins, b),
+            );
+            x.add(y)
+        }
+    }
+}
+
+/// Writes the spins [`decide_blocks`] decided for class `c` in blocks `ks` into `window`
+/// (sites `origin ..`), in parallel over the blocks' windows.
+fn write_blocks(
+    pass: &BlockPass<'_>,
+    c: usize,
+    ks: &[usize],
+    decided: &[Vec3],
+    window: &mut [Vec3],
+    origin: usize,
+) {
+    match ks {
+        [] => {}
+        [k] => {
+            for (&i, s) in pass.class_sites(c, *k).iter().zip(decided) {
+                window[i as usize - origin] = *s;
+            }
+        }
+        _ => {
+            let (low, high) = ks.split_at(ks.len() / 2);
+            let (a, b) = decided.split_at(pass.class_len(c, low));
+            let split = pass.blocks.window_start(high[0]);
+            let (wa, wb) = window.split_at_mut(split - origin);
+            rayon::join(
+                || write_blocks(pass, c, low, a, wa, origin),
+                || write_blocks(pass, c, high, b, wb, split),
+            );
+        }
+    }
 }
 
 /// Decides the trials of `sites` into `out`, in parallel chunks of [`CHUNK`] sites.
@@ -900,8 +995,9 @@ mod tests {
     // Sweeping a film in blocks of layers (`layer_blocks.rs`) on 1 to 4 threads gives the
     // spins, counts and width of one thread deciding the blocks' sites one range after
     // another in the blocks' order (even blocks, then odd ones) on the whole array; on a
-    // diluted simple cubic film with two shells (four colours), bcc (two basis sites, open
-    // along a1 too) and a film of 9 layers (unequal blocks). Common practice for a
+    // diluted simple cubic film with two shells (four colours, four blocks, so that 3 and
+    // 4 threads take the buffered path), bcc (two basis sites, open along a1 too, eight
+    // blocks) and a film of 9 layers (four unequal blocks). Common practice for a
     // parallel version of a sequential loop.
     #[test]
     fn layer_blocks_are_the_sequential_order() {
@@ -933,7 +1029,7 @@ mod tests {
             let run = |threads: usize, parallel: bool| {
                 let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
                 let mut mc = Metropolis::new(&h, 3).unwrap();
-                assert!(mc.layer_blocks.is_some(), "{:?} not swept in blocks of layers", h.cell().cells());
+                assert!(mc.layer_blocks() >= 4, "{:?} not swept in blocks of layers", h.cell().cells());
                 let mut s = start.clone();
                 let stats: Vec<SweepStats> = pool.install(|| {
                     (0..6)

@@ -79,30 +79,33 @@
 //!
 //! * A film open along `a3` with enough layers (at least eight for bonds that reach the
 //!   next layer) is swept in blocks of layers (`layer_blocks.rs`): the even blocks in
-//!   parallel, each class after class within the block, then the odd blocks. Two
-//!   parallel regions per sweep, no buffer; the blocks follow from the lattice alone, not
-//!   from the thread count. This changes the order of the updates (not their law): a
-//!   block's sites see the new spins of the blocks before them, where the passes below
-//!   update a class over the whole lattice at once, so the chain of such a film differs
-//!   from what the passes would give (and from versions before the blocks).
-//! * Otherwise class by class. Each thread takes a slab of rows of cells (`slabs.rs`; one thread, the whole
-//!   lattice). Per class, the trials of the sites next to another slab are decided first,
-//!   by all threads from the whole array into a buffer; then each thread writes back those
-//!   of its slab and decides the rest of its slab in place, in tiles that keep the
-//!   neighbours in the cache, with no barrier until the class is done.
-//! * Where slabs do not pay (too few rows for the threads), class by class: blocks of at most [`BLOCK`]
-//!   sites, decided in parallel into a buffer, then written back in parallel over chunks
-//!   of the spin array.
+//!   parallel, each class after class within the block, then the odd blocks; two
+//!   parallel regions per sweep and no buffer (with more threads than a phase has
+//!   blocks, that phase goes class by class through a buffer, with the same result). The
+//!   blocks follow from the lattice alone, not from the thread count. This changes the
+//!   order of the updates (not their law): a block's sites see the new spins of the
+//!   blocks before them, where the passes below update a class over the whole lattice at
+//!   once, so the chain of such a film differs from what the passes would give (and from
+//!   versions before the blocks).
+//! * Otherwise class by class. Each thread takes a slab of rows of cells (`slabs.rs`; one
+//!   thread, the whole lattice). Per class, the trials of the sites next to another slab
+//!   are decided first, by all threads from the whole array into a buffer; then each
+//!   thread writes back those of its slab and decides the rest of its slab in place, in
+//!   tiles that keep the neighbours in the cache, with no barrier until the class is done.
+//! * Where slabs do not pay (too few rows for the threads), class by class: blocks of at
+//!   most [`BLOCK`] sites, decided in parallel into a buffer, then written back in
+//!   parallel over chunks of the spin array.
 //!
 //! The thread count changes no result (tested): which thread decides a trial and when it
 //! is written back do not matter, and the sums are integers. The blocks of layers save
 //! two parallel regions per sweep of a two-colour lattice (each costs a wake-up of the
 //! other threads, tens of microseconds on a virtual machine): on this project's 2-core
 //! machine, sweeps of 64x64x8 ran about 40% faster and of 128x128x8 about 13% (see
-//! DEVELOPERS.md). Memory: 4 bytes per site for
-//! the class lists; with several threads, a buffer of 24 bytes per site of the largest
-//! class's boundary (or of `min(largest class, BLOCK)` sites) and the slabs' lists (at
-//! most 4 bytes per boundary site).
+//! DEVELOPERS.md). Memory: 4 bytes per site for the class lists; with several threads, a
+//! buffer of 24 bytes per site of the largest class's boundary (or of `min(largest class,
+//! BLOCK)` sites, or, for a film in blocks with more threads than blocks per phase, of a
+//! class's sites in one phase: about 6 bytes per site of a two-colour lattice) and the
+//! slabs' lists (at most 4 bytes per boundary site).
 
 use crate::acceptance::boltzmann_factor;
 use crate::colouring::Colouring;
@@ -336,7 +339,7 @@ impl Metropolis {
         for c in 0..self.colouring.len() {
             let class = self.colouring.class(c);
             // Every site of a class has the same basis site.
-            let weight = class.first().map_or(0.0, |&i| self.tally.weight(i as usize % nb));
+            let weight = class_weight(&self.tally, class, nb);
             let mut block_start = 0;
             while block_start < class.len() {
                 let block = &class[block_start..(block_start + block_len).min(class.len())];
@@ -399,7 +402,7 @@ impl Metropolis {
         let mut total = Counts::default();
         for c in 0..colouring.len() {
             let class = colouring.class(c);
-            let weight = class.first().map_or(0.0, |&i| tally.weight(i as usize % nb));
+            let weight = class_weight(tally, class, nb);
             let ctx = TrialContext { h, stream: *stream, sigma: *sigma, beta, step: sweep_index, weight };
             let boundary = slabs.boundary(c);
             let decided = &mut buffer[..boundary.len()];
@@ -514,6 +517,12 @@ fn slab_class(pass: &SlabPass<'_>, ctx: &TrialContext<'_>, p: usize, slab: &mut 
     counts
 }
 
+/// The [`MomentTally`] weight of a colour class's basis site (every site of a class has
+/// the same), 0 for an empty class.
+fn class_weight(tally: &MomentTally, class: &[u32], nb: usize) -> f64 {
+    class.first().map_or(0.0, |&i| tally.weight(i as usize % nb))
+}
+
 /// What the blocks of a phase share (see [`Metropolis::sweep_in_layer_blocks`]).
 struct BlockPass<'a> {
     blocks: &'a LayerBlocks,
@@ -570,7 +579,7 @@ fn block(
 impl BlockPass<'_> {
     /// The [`MomentTally`] weight of class `c`'s basis site.
     fn weight(&self, c: usize) -> f64 {
-        self.colouring.class(c).first().map_or(0.0, |&i| self.tally.weight(i as usize % self.nb))
+        class_weight(self.tally, self.colouring.class(c), self.nb)
     }
 
     /// Class `c`'s sites in block `k`.

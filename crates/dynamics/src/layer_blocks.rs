@@ -39,15 +39,12 @@
 //! and are still in the cache. Any order within a class gives the same result.
 
 use crate::colouring::Colouring;
+use crate::slabs::TILE_BYTES;
 use spindrift_hamiltonian::Hamiltonian;
 use std::ops::Range;
 
 /// Fewest blocks: four, so that each phase has at least two blocks to share.
 pub(crate) const MIN_BLOCKS: usize = 4;
-
-/// Bytes of spins in the rows of one tile: a quarter of a 2 MB L2 cache (as in
-/// `slabs.rs`).
-const TILE_BYTES: usize = 512 * 1024;
 
 /// The blocks of a film and the order of its sites within each.
 #[derive(Debug, Clone)]

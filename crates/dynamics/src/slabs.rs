@@ -34,8 +34,8 @@ use std::ops::Range;
 
 /// Bytes of spins in the rows of one tile (see "Order" in the module documentation): a
 /// quarter of a 2 MB L2 cache, so that the spins a tile reads stay in it with room for
-/// the rest.
-const TILE_BYTES: usize = 512 * 1024;
+/// the rest. The blocks of layers (`layer_blocks.rs`) tile with it too.
+pub(crate) const TILE_BYTES: usize = 512 * 1024;
 
 /// The split of one supercell and colouring among a number of threads.
 #[derive(Debug, Clone)]

@@ -114,13 +114,11 @@ impl LayerBlocks {
         let mut class_at = Vec::with_capacity(colouring.len() * (blocks + 1));
         for c in 0..colouring.len() {
             let class = colouring.class(c);
-            class_at.extend(starts.iter().map(|&i| class.partition_point(|&s| (s as usize) < i) as u32));
+            class_at.extend(starts.iter().map(|&i| first_at(class, i)));
         }
         for k in 0..blocks {
             for c in 0..colouring.len() {
-                let class = colouring.class(c);
-                // The position in the class of its first site at or after site i.
-                let at = |i: usize| class.partition_point(|&s| (s as usize) < i) as u32;
+                let at = |i: usize| first_at(colouring.class(c), i);
                 for y0 in (0..n2).step_by(tile) {
                     let y1 = (y0 + tile).min(n2);
                     for z in first_layer[k]..first_layer[k + 1] {
@@ -184,6 +182,11 @@ impl LayerBlocks {
             + self.order_at.len() * 8
             + self.class_at.len() * 4
     }
+}
+
+/// The position in `class` (ascending sites) of its first site at or after site `i`.
+fn first_at(class: &[u32], i: usize) -> u32 {
+    class.partition_point(|&s| (s as usize) < i) as u32
 }
 
 #[cfg(test)]

@@ -32,11 +32,29 @@
 //! colour passes; both are sequences of single-site Metropolis updates, each visiting
 //! every site once per sweep.
 //!
-//! # Order within a class of a block
+//! # Order within a block
 //!
-//! Tiles as in `slabs.rs`: a few rows along `a2` of every layer of the block, then the
-//! next rows. The rows a tile reads in the layers above and below were read a moment ago
-//! and are still in the cache. Any order within a class gives the same result.
+//! A block's layers are cut along `a2` into tiles: a few rows of every layer of the
+//! block, each tile at least as many rows as the bonds reach along `a2`, so a site's
+//! neighbours lie in its own tile or the two next to it (on a ring of tiles where `a2` is
+//! periodic). Deciding one class after another, tile after tile, would read the whole
+//! block from memory once per class; instead the classes follow each other tile by tile,
+//! a wavefront: at time `t`, class after class, class `c` decides its sites in tile
+//! `u = (c + p) mod T` with `p = t - 2c`, if `0 <= p < T` (`T` tiles). So class 1 works one
+//! tile behind class 0, class 2 one behind class 1, and each reads rows that the class
+//! before it has just left in the cache.
+//!
+//! This gives bitwise the result of deciding the block class after class: a site's
+//! decision reads the new spins of its neighbours of lower classes and the old ones of
+//! higher classes in both orders, provided that for classes `a < b` and tiles `u`, `v`
+//! next to each other (or equal) class `a` takes `u` no later than class `b` takes `v`
+//! (at the same time, the lower class goes first). With `x = (u - a) mod T`, `v = u + e`
+//! (`e` in `{-1, 0, 1}`) and `d = b - a >= 1`, the times are `2a + x` and `2b + ((x + e -
+//! d) mod T)`, whose difference is `d + e >= 0` when `x + e - d >= 0` and `d + e + jT > 0`
+//! (some `j >= 1`) otherwise. Starting class `c` at tile `c` is what makes this hold
+//! across the seam of a periodic `a2`; the same holds on an open one. A site's neighbours
+//! along `a3` lie in its own tile or in other blocks, which no task writes during the
+//! phase.
 
 use crate::colouring::Colouring;
 use crate::slabs::TILE_BYTES;
@@ -105,33 +123,39 @@ impl LayerBlocks {
             .collect();
         let phases = [(0..blocks).step_by(2).collect(), (1..blocks).step_by(2).collect()];
 
-        // Rows along a2 per tile: the tile's rows in a block's layers and the layers its
-        // bonds reach take at most `tile_bytes` of spins.
-        let tile =
-            (tile_bytes / ((base + 1 + 2 * reach) * row_len * std::mem::size_of::<[f64; 3]>())).clamp(1, n2);
+        // Rows along a2 per tile: the tiles a class works on at one time (three, see the
+        // module documentation) in a block's layers and the layers its bonds reach take
+        // at most `tile_bytes` of spins; and at least the bonds' reach along a2, so that
+        // a tile's sites have neighbours in the tiles next to it and no farther. The rows
+        // are shared out evenly, so no tile has fewer.
+        let reach2 = h.row_reach()[0];
+        let row_bytes = (base + 1 + 2 * reach) * row_len * std::mem::size_of::<[f64; 3]>();
+        let rows = (tile_bytes / (3 * row_bytes)).max(reach2).clamp(1, n2);
+        let tiles = n2 / rows;
+        let tile_rows = |u: usize| u * n2 / tiles..(u + 1) * n2 / tiles;
+        let classes = colouring.len();
         let mut order: Vec<(u32, Range<u32>)> = Vec::new();
         let mut order_at = vec![0];
-        let mut class_at = Vec::with_capacity(colouring.len() * (blocks + 1));
-        for c in 0..colouring.len() {
+        let mut class_at = Vec::with_capacity(classes * (blocks + 1));
+        for c in 0..classes {
             let class = colouring.class(c);
             class_at.extend(starts.iter().map(|&i| first_at(class, i)));
         }
         for k in 0..blocks {
-            for c in 0..colouring.len() {
+            for (c, u) in wavefront(classes, tiles) {
                 let at = |i: usize| first_at(colouring.class(c), i);
-                for y0 in (0..n2).step_by(tile) {
-                    let y1 = (y0 + tile).min(n2);
-                    for z in first_layer[k]..first_layer[k + 1] {
-                        let (a, b) = (at(z * layer_len + y0 * row_len), at(z * layer_len + y1 * row_len));
-                        let fresh = order.len() == order_at[k];
-                        match order.last_mut() {
-                            // Adjacent ranges of a class in one block make one.
-                            Some((last_c, last)) if !fresh && *last_c as usize == c && last.end == a => {
-                                last.end = b
-                            }
-                            _ if a < b => order.push((c as u32, a..b)),
-                            _ => {}
+                let ys = tile_rows(u);
+                for z in first_layer[k]..first_layer[k + 1] {
+                    let (a, b) =
+                        (at(z * layer_len + ys.start * row_len), at(z * layer_len + ys.end * row_len));
+                    let fresh = order.len() == order_at[k];
+                    match order.last_mut() {
+                        // Adjacent ranges of a class in one block make one.
+                        Some((last_c, last)) if !fresh && *last_c as usize == c && last.end == a => {
+                            last.end = b
                         }
+                        _ if a < b => order.push((c as u32, a..b)),
+                        _ => {}
                     }
                 }
             }
@@ -182,6 +206,16 @@ impl LayerBlocks {
             + self.order_at.len() * 8
             + self.class_at.len() * 4
     }
+}
+
+/// The order of the (class, tile) pairs of a block, `classes` classes over a ring of
+/// `tiles` tiles: at time `t = 0, 1, ...`, class after class, class `c` takes its tile
+/// `(c + t - 2c) mod tiles` if `0 <= t - 2c < tiles` (see the module documentation).
+fn wavefront(classes: usize, tiles: usize) -> impl Iterator<Item = (usize, usize)> {
+    (0..2 * classes.saturating_sub(1) + tiles).flat_map(move |t| {
+        (0..classes)
+            .filter_map(move |c| t.checked_sub(2 * c).filter(|&p| p < tiles).map(|p| (c, (c + p) % tiles)))
+    })
 }
 
 /// The position in `class` (ascending sites) of its first site at or after site `i`.
@@ -273,6 +307,75 @@ mod tests {
             system_of("simple-cubic", [32, 48, 1], 1, [true, true, false], 1.0),
         ] {
             assert!(LayerBlocks::new(&h, &Colouring::new(&h).unwrap()).is_none());
+        }
+    }
+
+    // The wavefront order decides every bonded pair of a block's sites in the order of
+    // their classes (the lower class first), which is what makes it give bitwise the
+    // result of deciding the block class after class; on films periodic and open along
+    // a2, with one to four shells (four: bonds reaching two rows along a2 and a3), fcc
+    // (several classes, four basis sites) and tiles from one row to whole layers, so
+    // that the tiles wrap around the seam of a periodic a2. The neighbours come from the
+    // bond list and `Supercell::neighbour`. Our own behaviour.
+    #[test]
+    fn order_decides_bonded_sites_by_class() {
+        let systems = [
+            system_of("simple-cubic", [16, 12, 12], 1, [true, true, false], 1.0),
+            system_of("simple-cubic", [10, 13, 17], 4, [true, true, false], 0.9),
+            system_of("simple-cubic", [9, 11, 8], 2, [true, false, false], 1.0),
+            system_of("bcc", [6, 10, 16], 2, [false, true, false], 1.0),
+            system_of("fcc", [5, 9, 8], 1, [true, true, false], 1.0),
+        ];
+        let mut checked = 0;
+        for h in &systems {
+            let colouring = Colouring::new(h).unwrap();
+            let cell = h.cell();
+            let mut class_of = vec![usize::MAX; h.len()];
+            for c in 0..colouring.len() {
+                colouring.class(c).iter().for_each(|&i| class_of[i as usize] = c);
+            }
+            for tile in [1, 4 * 24 * cell.cells()[0] * cell.basis_len(), TILE_BYTES, usize::MAX / 4] {
+                let blocks = LayerBlocks::with_tiles(h, &colouring, tile).unwrap();
+                let mut position = vec![usize::MAX; h.len()];
+                for k in 0..blocks.len() {
+                    let sites = blocks.order(k).iter().flat_map(|(c, r)| {
+                        colouring.class(*c as usize)[r.start as usize..r.end as usize].iter()
+                    });
+                    for (at, &i) in sites.enumerate() {
+                        position[i as usize] = at;
+                    }
+                    for i in blocks.sites(k).filter(|&i| cell.is_occupied(i)) {
+                        let (cl, b) = cell.decompose(i);
+                        for bond in h.bonds().from_basis(b) {
+                            let Some(j) = cell.neighbour(cl, bond.offset, bond.to) else { continue };
+                            if !blocks.sites(k).contains(&j)
+                                || !cell.is_occupied(j)
+                                || class_of[j] == class_of[i]
+                            {
+                                continue;
+                            }
+                            checked += 1;
+                            assert_eq!(
+                                class_of[j] < class_of[i],
+                                position[j] < position[i],
+                                "{:?}, tile {tile} bytes: site {i} (class {}) and its neighbour {j} (class {}) in block {k}",
+                                cell.cells(),
+                                class_of[i],
+                                class_of[j]
+                            );
+                        }
+                    }
+                }
+            }
+        }
+        assert!(checked > 100_000, "{checked} pairs checked");
+        // Every (class, tile) once, for many and few tiles.
+        for (classes, tiles) in [(1, 1), (2, 1), (2, 7), (5, 3), (8, 20)] {
+            let mut pairs: Vec<(usize, usize)> = wavefront(classes, tiles).collect();
+            assert!(pairs.iter().all(|&(c, u)| c < classes && u < tiles));
+            pairs.sort_unstable();
+            pairs.dedup();
+            assert_eq!(pairs.len(), classes * tiles);
         }
     }
 }

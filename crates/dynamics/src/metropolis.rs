@@ -909,6 +909,7 @@ fn integer_sum(units: &[f64]) -> i128 {
 mod tests {
     use super::*;
     use crate::heun::tests::system_of;
+    use crate::slabs::TILE_BYTES;
 
     // A block's size changes no bit (see the module documentation): sweeps in blocks of
     // one site, of a few sites, of sizes that split the runs of a class and its chunks,
@@ -1003,9 +1004,11 @@ mod tests {
 
     // Sweeping a film in blocks of layers (`layer_blocks.rs`) on 1 to 4 threads gives the
     // spins, counts and width of one thread deciding the blocks' sites one range after
-    // another in the blocks' order (even blocks, then odd ones) on the whole array; on a
-    // diluted simple cubic film with two shells (four colours, four blocks, so that 3 and
-    // 4 threads take the buffered path), bcc (two basis sites, open along a1 too, eight
+    // another in the blocks' order (even blocks, then odd ones) on the whole array, and of
+    // one thread deciding each block class after class (the classes' sites in index
+    // order), which the wavefront within a block must equal bit for bit; on a diluted
+    // simple cubic film with two shells (four colours, four blocks, so that 3 and 4
+    // threads take the buffered path), bcc (two basis sites, open along a1 too, eight
     // blocks) and a film of 9 layers (four unequal blocks). Common practice for a
     // parallel version of a sequential loop.
     #[test]
@@ -1018,13 +1021,22 @@ mod tests {
             let mut start = vec![[0.0; 3]; h.len()];
             crate::initial::random(&h, &mut start, 5).unwrap();
             let nb = h.cell().basis_len();
-            let sequential = |mc: &mut Metropolis, s: &mut [Vec3], n: u64| {
+            // One thread, block after block: in the blocks' own order, or class by class.
+            let sequential = |mc: &mut Metropolis, s: &mut [Vec3], n: u64, class_major: bool| {
                 let blocks = mc.layer_blocks.take().unwrap();
                 let beta = 1.0 / (K_B * 120.0);
                 let mut total = Counts::default();
                 for &k in blocks.phase(0).iter().chain(blocks.phase(1)) {
-                    for (c, r) in blocks.order(k) {
-                        let class = mc.colouring.class(*c as usize);
+                    let ranges: Vec<(u32, Range<u32>)> = if class_major {
+                        let r = |c: usize| blocks.class_range(c, k);
+                        (0..mc.colouring.len())
+                            .map(|c| (c as u32, r(c).start as u32..r(c).end as u32))
+                            .collect()
+                    } else {
+                        blocks.order(k).to_vec()
+                    };
+                    for (c, r) in ranges {
+                        let class = mc.colouring.class(c as usize);
                         let weight = mc.tally.weight(class[0] as usize % nb);
                         let ctx =
                             TrialContext { h: &h, stream: mc.stream, sigma: mc.sigma, beta, step: n, weight };
@@ -1035,29 +1047,39 @@ mod tests {
                 mc.layer_blocks = Some(blocks);
                 mc.finish(total, n < 3)
             };
-            let run = |threads: usize, parallel: bool| {
+            // Tiles of the default size (one per block on these small lattices) or of a row
+            // or two (many, wrapping around a periodic a2).
+            let run = |threads: usize, parallel: Option<bool>, tile_bytes: usize| {
                 let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
                 let mut mc = Metropolis::new(&h, 3).unwrap();
+                mc.layer_blocks = LayerBlocks::with_tiles(&h, &mc.colouring, tile_bytes);
                 assert!(mc.layer_blocks() >= 4, "{:?} not swept in blocks of layers", h.cell().cells());
                 let mut s = start.clone();
                 let stats: Vec<SweepStats> = pool.install(|| {
                     (0..6)
-                        .map(|n| {
-                            if parallel {
-                                mc.sweep(&h, &mut s, 120.0, n, n < 3).unwrap()
-                            } else {
-                                sequential(&mut mc, &mut s, n)
-                            }
+                        .map(|n| match parallel {
+                            None => mc.sweep(&h, &mut s, 120.0, n, n < 3).unwrap(),
+                            Some(class_major) => sequential(&mut mc, &mut s, n, class_major),
                         })
                         .collect()
                 });
                 let bits: Vec<[u64; 3]> = s.iter().map(|v| v.map(f64::to_bits)).collect();
                 (bits, stats, mc.sigma().to_bits())
             };
-            let reference = run(1, false);
+            let reference = run(1, Some(false), TILE_BYTES);
             assert!(reference.1.iter().all(|st| st.accepted > 0 && st.accepted < st.attempted));
-            for threads in [1, 2, 3, 4] {
-                assert!(run(threads, true) == reference, "{threads} threads");
+            for tile_bytes in [TILE_BYTES, 1] {
+                assert!(run(1, Some(false), tile_bytes) == reference, "own order, tiles of {tile_bytes} B");
+                assert!(
+                    run(1, Some(true), tile_bytes) == reference,
+                    "class after class, tiles of {tile_bytes} B"
+                );
+                for threads in [1, 2, 3, 4] {
+                    assert!(
+                        run(threads, None, tile_bytes) == reference,
+                        "{threads} threads, tiles of {tile_bytes} B"
+                    );
+                }
             }
         }
     }

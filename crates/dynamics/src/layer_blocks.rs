@@ -6,8 +6,9 @@
 //! layer per block when no bond leaves its layer), the layers are grouped into blocks of
 //! at least `2 r` layers each, as many as fit but a multiple of four (each phase then has
 //! an even number of blocks to halve among threads). A sweep first decides every site of
-//! the even blocks, then every site of the odd ones; within a block, one colour class
-//! after another. Two blocks of one phase are at least `2 r` layers apart, so no bond
+//! the even blocks, then every site of the odd ones; within a block, the colour classes
+//! in a wavefront over tiles, which gives the result of one class after another (see
+//! "Order within a block"). Two blocks of one phase are at least `2 r` layers apart, so no bond
 //! joins them, and their sites read only spins that no other block of the phase writes.
 //!
 //! Each block of a phase gets a window of the spin array of its own: from the middle of
@@ -186,8 +187,9 @@ impl LayerBlocks {
         self.starts[k]..self.starts[k + 1]
     }
 
-    /// Block `k`'s sites in the order they are decided, class by class (tiles within a
-    /// class): `(class, range of positions in the class's site list)`.
+    /// Block `k`'s sites in the order they are decided, the classes in a wavefront over
+    /// tiles (see the module documentation): `(class, range of positions in the class's
+    /// site list)`.
     pub(crate) fn order(&self, k: usize) -> &[(u32, Range<u32>)] {
         &self.order[self.order_at[k]..self.order_at[k + 1]]
     }

@@ -79,9 +79,11 @@
 //!
 //! * A film open along `a3` with enough layers (at least eight for bonds that reach the
 //!   next layer) is swept in blocks of layers (`layer_blocks.rs`): the even blocks in
-//!   parallel, each class after class within the block, then the odd blocks; two
-//!   parallel regions per sweep and no buffer (with more threads than a phase has
-//!   blocks, that phase goes class by class through a buffer, with the same result). The
+//!   parallel, each with the result of class after class (the classes go through the
+//!   block in a wavefront over tiles, so it is read from memory once), then the odd
+//!   blocks; two parallel regions per sweep and no buffer (with more threads than a
+//!   phase has blocks, that phase goes class by class through a buffer, with the same
+//!   result). The
 //!   blocks follow from the lattice alone, not from the thread count. This changes the
 //!   order of the updates (not their law): a block's sites see the new spins of the
 //!   blocks before them, where the passes below update a class over the whole lattice at

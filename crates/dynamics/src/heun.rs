@@ -39,10 +39,11 @@
 //! # Memory
 //!
 //! Two arrays of `N` 3-vectors (48 bytes per site): the predictor, and the scaled noise,
-//! which the corrector overwrites with the pre-step spins as it consumes it (see
-//! [`Heun::step`] on errors). The fused step of a large system holds instead a second
-//! spin array (24 bytes per site), which the step writes and then swaps with the caller's,
-//! and one ring of rows per thread (a band and `2 reach` rows over every plane: 1.4 MiB
+//! which the corrector overwrites with the new spins as it consumes it; the step then swaps
+//! that array with the caller's, so that the pre-step spins stay untouched until the step
+//! has succeeded (see [`Heun::step`] on errors). The fused step of a large system holds
+//! instead a second spin array (24 bytes per site), which the step writes and then swaps
+//! with the caller's, and one ring of rows per thread (a band and `2 reach` rows over every plane: 1.4 MiB
 //! for 1000 x 1000 x 10). The field at the predictor lives only in a block of `BLOCK`
 //! (256) sites on the stack. [`Heun::step`] allocates nothing in proportion to the system:
 //! the fused step makes one list of slice handles (threads times planes) per step.
@@ -115,14 +116,14 @@ fn add_into(a: &mut [Vec3], b: &[Vec3]) {
     }
 }
 
-/// The corrector over one block: `out[k]` from the old spin `old(k, out[k])`, the
+/// The corrector over one block: `out[k]` from the old spin `old[k]`, the
 /// predictor `pred[k]` and the field at the predictor `fields[k]`. Branch-free, so that
 /// it vectorises: a failed site keeps its old spin and is marked in `ok`. Returns whether
 /// every site succeeded.
 #[inline(always)]
 fn correct_block(
     consts: &[SiteConst],
-    mut old: impl FnMut(usize, Vec3) -> Vec3,
+    old: &[Vec3],
     pred: &[Vec3],
     fields: &[Vec3],
     dt: f64,
@@ -131,7 +132,7 @@ fn correct_block(
 ) -> bool {
     let mut all_ok = true;
     for k in 0..out.len() {
-        let (v, good) = corrected(consts[k], old(k, out[k]), pred[k], fields[k], dt);
+        let (v, good) = corrected(consts[k], old[k], pred[k], fields[k], dt);
         out[k] = v;
         ok[k] = good;
         all_ok &= good;
@@ -169,7 +170,8 @@ enum Buffers {
     /// Two passes over the whole system (see [`Order`]).
     TwoPass {
         predictor: Vec<Vec3>,
-        /// The scaled thermal field of the step; the pre-step spins after the corrector.
+        /// The scaled thermal field of the step; the new spins after the corrector, before
+        /// the swap with the caller's array.
         noise: Vec<Vec3>,
     },
     /// One fused pass over bands of rows for systems of more than [`LARGE`] sites (see
@@ -244,13 +246,12 @@ impl Heun {
     /// documentation): pass `0, 1, 2, ...` over a run, and the same index again when a
     /// run resumes.
     ///
-    /// The fused step of a large system writes the new spins to a second array and swaps
-    /// it with `spins` (the vector's buffer changes; its length does not).
+    /// The step writes the new spins to a second array (the noise buffer as the corrector
+    /// consumes it, or the fused step's own) and swaps it with `spins` (the vector's buffer
+    /// changes; its length does not).
     ///
-    /// On [`StepError::NonFinite`] the spins are restored to their values before the call
-    /// (the corrector keeps each pre-step spin in the noise buffer as it overwrites it, or
-    /// the fused step leaves them untouched), so the caller keeps the last good state
-    /// without copying it every step. Other errors are returned before anything is
+    /// On [`StepError::NonFinite`] nothing is swapped and `spins` keep their values before
+    /// the call, so the caller keeps the last good state without copying it every step. Other errors are returned before anything is
     /// touched. Vacant sites stay `[0, 0, 0]`.
     pub fn step(
         &mut self,
@@ -341,38 +342,30 @@ impl Heun {
             }
         }
 
-        // Pass 2: field at P, corrector, renormalisation.
+        // Pass 2: field at P, corrector, renormalisation, into the noise buffer.
         let predictor = &predictor[..];
-        let correct = |start: usize, out: &mut [Vec3], noise: &mut [Vec3]| {
+        let old: &[Vec3] = spins;
+        let correct = |start: usize, next: &mut [Vec3]| {
             let mut bad = None;
-            order.visit(start, out.len(), |a, b| {
-                let found = corrector_chunk(
-                    &ctx,
-                    predictor,
-                    a,
-                    &mut out[a - start..b - start],
-                    &mut noise[a - start..b - start],
-                );
+            order.visit(start, next.len(), |a, b| {
+                let found = corrector_chunk(&ctx, predictor, old, a, &mut next[a - start..b - start]);
                 bad = first_bad(bad, found);
             });
             bad
         };
-        let bad = if spins.len() <= task {
-            correct(0, spins, noise)
+        let bad = if old.len() <= task {
+            correct(0, noise)
         } else {
-            spins
+            noise
                 .par_chunks_mut(task)
-                .zip(noise.par_chunks_mut(task))
                 .enumerate()
-                .map(|(k, (out, noise))| correct(k * task, out, noise))
+                .map(|(k, next)| correct(k * task, next))
                 .reduce(|| None, first_bad)
         };
         if let Some(site) = bad {
-            spins.par_chunks_mut(CHUNK).zip(noise.par_chunks(CHUNK)).for_each(|(s, old)| {
-                s.copy_from_slice(old);
-            });
             return Err(StepError::NonFinite { site, step: step_index });
         }
+        std::mem::swap(spins, noise);
         Ok(())
     }
 }
@@ -549,38 +542,35 @@ spindrift_isa::multiversion! {
 
 spindrift_isa::multiversion! {
     /// Pass 2 on the chunk of sites `start ..`: field at P, corrector, renormalisation.
-    /// The field at P goes into a small block on the stack; each pre-step spin moves into
-    /// the noise slot it has just consumed, so a failure anywhere can be undone without a
-    /// third array. Returns the first site whose new spin is not finite. Compiled per
-    /// instruction-set level (same bits on each).
+    /// The field at P goes into a small block on the stack; each new spin goes into the
+    /// slot of `next` whose noise it has just consumed, reading the pre-step spin from
+    /// `spins`, which stays as it was, so a failure anywhere leaves the caller's spins
+    /// intact without a third array (and the pass writes one array, not two). Returns the
+    /// first site whose new spin is not finite. Compiled per instruction-set level (same
+    /// bits on each).
     fn corrector_chunk(
         ctx: &StepContext<'_>,
         predictor: &[Vec3],
+        spins: &[Vec3],
         start: usize,
-        out: &mut [Vec3],
-        noise: &mut [Vec3]
+        next: &mut [Vec3]
     ) -> Option<usize> {
         let StepContext { h, consts, nb, occupation, dt, thermal, .. } = *ctx;
         let mut field_block = [[0.0; 3]; BLOCK];
         let mut ok_block = [true; BLOCK];
         let mut bad = None;
-        for (block, (out, noise)) in out.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate() {
+        for (block, next) in next.chunks_mut(BLOCK).enumerate() {
             let first = start + block * BLOCK;
-            let len = out.len();
+            let len = next.len();
             let consts = &consts[first % nb..][..len];
             let fields = &mut field_block[..len];
             let ok = &mut ok_block[..len];
             h.field_range(predictor, first, fields);
             if thermal.is_some() {
-                add_into(fields, noise);
+                add_into(fields, next);
             }
-            // The spins are corrected in place; the consumed noise slot keeps each
-            // pre-step spin.
-            let old = |k: usize, s: Vec3| {
-                noise[k] = s;
-                s
-            };
-            if !correct_block(consts, old, &predictor[first..first + len], fields, dt, out, ok) {
+            let old = &spins[first..first + len];
+            if !correct_block(consts, old, &predictor[first..first + len], fields, dt, next, ok) {
                 bad = first_bad(bad, first_failed(ok, occupation, first));
             }
         }
@@ -738,26 +728,35 @@ pub(crate) mod tests {
         assert!(fused_bands(&h, h.len(), BAND_BYTES, Some(ROWS_PER_REACH), 1).is_none());
     }
 
-    // A failing fused step reports the same first bad site as the two passes and leaves
-    // every spin as it was (the new spins went to the second array, which is not swapped).
+    // A failing step leaves every spin as it was, in both ways a step goes (the new spins
+    // went to a second array, which is not swapped), and the fused step reports the same
+    // first bad site as the two passes.
     #[test]
-    fn failing_fused_step_leaves_the_spins() {
+    fn failing_step_leaves_the_spins() {
         let h = system();
         let mut start = vec![[0.0; 3]; h.len()];
         crate::initial::random(&h, &mut start, 3).unwrap();
         start[37] = [f64::NAN, 0.0, 0.0];
         let p = HeunParams { dt: 1e-3, temperature: 300.0 };
+        let same =
+            |s: &[Vec3]| start.iter().zip(s).all(|(a, b)| (0..3).all(|i| a[i].to_bits() == b[i].to_bits()));
         let mut two_pass = start.clone();
         let expected = Heun::new(&h, 9).step(&h, &mut two_pass, &p, 4).unwrap_err();
         assert!(matches!(expected, StepError::NonFinite { site, step: 4 } if site < 37));
+        assert!(same(&two_pass), "two passes");
         for threads in [1, 2] {
             let pool = rayon::ThreadPoolBuilder::new().num_threads(threads).build().unwrap();
+            // Chunks of fewer sites than the system, so that two threads share the passes.
+            let mut heun = Heun::with_order(&h, 9, 0, 1, None);
+            assert!(matches!(heun.buffers, Buffers::TwoPass { .. }));
+            let mut s = start.clone();
+            assert_eq!(pool.install(|| heun.step(&h, &mut s, &p, 4)), Err(expected.clone()));
+            assert!(same(&s), "two passes, {threads} threads");
             let mut heun = Heun::with_order(&h, 9, 0, 1, Some(1));
             assert!(matches!(heun.buffers, Buffers::Fused { .. }));
             let mut s = start.clone();
             assert_eq!(pool.install(|| heun.step(&h, &mut s, &p, 4)), Err(expected.clone()));
-            let same = start.iter().zip(&s).all(|(a, b)| (0..3).all(|i| a[i].to_bits() == b[i].to_bits()));
-            assert!(same, "{threads} threads");
+            assert!(same(&s), "fused, {threads} threads");
         }
     }
 }

@@ -1,7 +1,9 @@
 //! Field evaluation on 128 x 128 x 8 simple cubic (periodic in-plane, open along z):
 //! the fused kernel of all terms (one shell, then one to three shells, to show the cost
 //! growing with the bonds), each reference term alone, and the energy: by term bond by
-//! bond (the reference), by term and in total through the row kernel.
+//! bond (the reference), by term and in total through the row kernel; then the fused
+//! kernel on as many sites in rows of 32, 128 and 2048 cells, which shows what each row's
+//! set-up and end cells cost.
 //! Single-threaded (`field_range` over the whole array) so the figures are per core;
 //! criterion reports elements (sites) per second. Seeded spins, set-up outside the timing.
 
@@ -13,11 +15,11 @@ use spindrift_hamiltonian::{add_shell, DmiKind, Hamiltonian, ShellCoupling, Shel
 use spindrift_lattice::{preset, unit_hash, BondList, Supercell, Vec3};
 use std::hint::black_box;
 
-/// Exchange on the first `shells` shells, interfacial DMI (normal z) on the first.
-fn system(shells: usize) -> Hamiltonian {
+/// Exchange on the first `shells` shells, interfacial DMI (normal z) on the first, on
+/// `cells` (periodic in-plane, open along z).
+fn system(shells: usize, cells: [usize; 3]) -> Hamiltonian {
     let cell =
-        Supercell::new(preset("simple-cubic", 3.0, None).unwrap(), [128, 128, 8], [true, true, false], 0)
-            .unwrap();
+        Supercell::new(preset("simple-cubic", 3.0, None).unwrap(), cells, [true, true, false], 0).unwrap();
     let mut bonds = BondList::new(1);
     for shell in 1..=shells {
         let dmi = (shell == 1).then_some((1.0, DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] }));
@@ -44,7 +46,7 @@ fn bench(c: &mut Criterion) {
     let mut group = c.benchmark_group("field 128x128x8 sc");
     group.sample_size(20);
     for shells in 1..=3 {
-        let h = system(shells);
+        let h = system(shells, [128, 128, 8]);
         let n = h.len();
         let spins = random_spins(n);
         let mut out = vec![[0.0; 3]; n];
@@ -69,6 +71,19 @@ fn bench(c: &mut Criterion) {
                 b.iter(|| black_box(h.energy_total(black_box(&spins))))
             });
         }
+    }
+    group.finish();
+
+    let mut group = c.benchmark_group("field by row length, 131072 sites");
+    group.sample_size(20);
+    for cells in [[32, 512, 8], [128, 128, 8], [2048, 8, 8]] {
+        let h = system(1, cells);
+        let spins = random_spins(h.len());
+        let mut out = vec![[0.0; 3]; h.len()];
+        group.throughput(Throughput::Elements(h.len() as u64));
+        group.bench_function(format!("rows of {} cells", cells[0]), |b| {
+            b.iter(|| h.field_range(black_box(&spins), 0, &mut out))
+        });
     }
     group.finish();
 }

@@ -237,7 +237,7 @@ spindrift_isa::multiversion! {
                 add_into(fields, noise);
             }
             let old = &spins[first..first + len];
-            if !correct_block(consts, |k, _| old[k], pred, fields, dt, out, ok) {
+            if !correct_block(consts, old, pred, fields, dt, out, ok) {
                 bad = first_bad(bad, first_failed(ok, occupation, first));
             }
         }

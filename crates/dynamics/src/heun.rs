@@ -43,10 +43,11 @@
 //! that array with the caller's, so that the pre-step spins stay untouched until the step
 //! has succeeded (see [`Heun::step`] on errors). The fused step of a large system holds
 //! instead a second spin array (24 bytes per site), which the step writes and then swaps
-//! with the caller's, and one ring of rows per thread (a band and `2 reach` rows over every plane: 1.4 MiB
-//! for 1000 x 1000 x 10). The field at the predictor lives only in a block of `BLOCK`
-//! (256) sites on the stack. [`Heun::step`] allocates nothing in proportion to the system:
-//! the fused step makes one list of slice handles (threads times planes) per step.
+//! with the caller's, and one ring of rows per thread (a band and `2 reach` rows over
+//! every plane: 1.4 MiB for 1000 x 1000 x 10). The field at the predictor lives only in a
+//! block of `BLOCK` (256) sites on the stack. [`Heun::step`] allocates nothing in
+//! proportion to the system: the fused step makes one list of slice handles (threads times
+//! planes) per step.
 
 use crate::error::{check_len, first_bad, StepError};
 use rayon::prelude::*;
@@ -251,8 +252,8 @@ impl Heun {
     /// changes; its length does not).
     ///
     /// On [`StepError::NonFinite`] nothing is swapped and `spins` keep their values before
-    /// the call, so the caller keeps the last good state without copying it every step. Other errors are returned before anything is
-    /// touched. Vacant sites stay `[0, 0, 0]`.
+    /// the call, so the caller keeps the last good state without copying it every step.
+    /// Other errors are returned before anything is touched. Vacant sites stay `[0, 0, 0]`.
     pub fn step(
         &mut self,
         h: &Hamiltonian,

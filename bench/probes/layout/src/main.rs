@@ -1,0 +1,383 @@
+//! Layout probe: the six bonds of `bench/configs/sc128.toml` (exchange on every bond,
+//! interfacial DMI in the plane, uniaxial anisotropy and field along z) on 128x128x8
+//! simple cubic, periodic in the plane and open along z, written three ways, and a Heun
+//! step (field, thermal field read from an array, predictor; field at the predictor,
+//! corrector) written two ways:
+//!
+//! * `aos`: spins as 3-vectors (as Spindrift stores them), one pass per row;
+//! * `aos3`: the same in three passes per row (in-plane pairs, out-of-plane pair, on-site
+//!   terms), as the row kernel's packs go for this system;
+//! * `soa`: spins as three arrays of components, one pass per row, the arrays offset
+//!   from one another within a 4 KiB page; `soa same page offset` allocates them plainly,
+//!   so that they share their page offset, as separate large allocations do.
+//!
+//! The step adds `aos consts`: the AoS step reading the damping and gyromagnetic factor
+//! per site from an array of (gamma, alpha, sigma) as `SiteConst`, instead of constants.
+//! The kernels hold their couplings as constants: a lower bound for a general kernel,
+//! not a replacement for one. The rounds alternate the variants in one process, so that
+//! a slow spell of a shared machine hits all of them; compare within a round.
+
+use std::hint::black_box;
+use std::time::Instant;
+
+const N1: usize = 128;
+const N2: usize = 128;
+const N3: usize = 8;
+const N: usize = N1 * N2 * N3;
+const PLANE: usize = N1 * N2;
+/// Exchange, DMI (x and y bonds), anisotropy field and applied field, T per unit spin.
+const J: f64 = 43.2;
+const DX: f64 = 8.6;
+const DY: f64 = 8.6;
+const K: f64 = 3.5;
+const B: f64 = 1.0;
+/// gamma / (1 + alpha^2) (rad/(ps T)), alpha, dt (ps).
+const G: f64 = 174.3;
+const AL: f64 = 0.1;
+const DT: f64 = 1e-4;
+
+type V = [f64; 3];
+
+/// Rows `(below, above)` along a2 (periodic) and `(down, up)` along a3 (open) of the row
+/// starting at site `r`.
+fn neighbour_rows(r: usize) -> (usize, usize, Option<usize>, Option<usize>) {
+    let (c2, c3) = ((r / N1) % N2, r / PLANE);
+    let base = c3 * PLANE;
+    let below = base + (c2 + N2 - 1) % N2 * N1;
+    let above = base + (c2 + 1) % N2 * N1;
+    (below, above, (c3 > 0).then(|| r - PLANE), (c3 + 1 < N3).then(|| r + PLANE))
+}
+
+static ZERO_V: [V; N1] = [[0.0; 3]; N1];
+static ZERO_F: [f64; N1] = [0.0; N1];
+
+/// The field of the cells `lo .. hi` of a row, `up(c)` and `down(c)` its neighbours along a1.
+#[inline(always)]
+fn cells_aos(
+    rows: [&[V]; 5],
+    o: &mut [V],
+    lo: usize,
+    hi: usize,
+    up: impl Fn(usize) -> usize,
+    down: impl Fn(usize) -> usize,
+) {
+    let [own, ym, yp, zm, zp] = rows;
+    for c in lo..hi {
+        let (a, b, p, m) = (own[up(c)], own[down(c)], yp[c], ym[c]);
+        let mut h = [0.0; 3];
+        for q in 0..3 {
+            h[q] = J * (a[q] + b[q]) + J * (p[q] + m[q]) + J * (zp[c][q] + zm[c][q]);
+        }
+        h[0] += DX * (a[2] - b[2]);
+        h[2] -= DX * (a[0] - b[0]);
+        h[1] += DY * (p[2] - m[2]);
+        h[2] -= DY * (p[1] - m[1]);
+        h[2] += K * own[c][2] + B;
+        o[c] = h;
+    }
+}
+
+#[inline(always)]
+fn row_aos(s: &[V], r: usize, o: &mut [V]) {
+    let (ym, yp, zm, zp) = neighbour_rows(r);
+    let z = |at: Option<usize>| at.map_or(&ZERO_V[..], |at| &s[at..at + N1]);
+    let rows = [&s[r..r + N1], &s[ym..ym + N1], &s[yp..yp + N1], z(zm), z(zp)];
+    cells_aos(rows, o, 1, N1 - 1, |c| c + 1, |c| c - 1);
+    cells_aos(rows, o, 0, 1, |_| 1, |_| N1 - 1);
+    cells_aos(rows, o, N1 - 1, N1, |_| 0, |_| N1 - 2);
+}
+
+/// `row_aos` in three passes: in-plane pairs, then the out-of-plane pair, then on-site.
+#[inline(always)]
+fn row_aos3(s: &[V], r: usize, o: &mut [V]) {
+    let (ym, yp, zm, zp) = neighbour_rows(r);
+    let z = |at: Option<usize>| at.map_or(&ZERO_V[..], |at| &s[at..at + N1]);
+    let (own, ym, yp, zm, zp) = (&s[r..r + N1], &s[ym..ym + N1], &s[yp..yp + N1], z(zm), z(zp));
+    let plane =
+        |o: &mut [V], lo: usize, hi: usize, up: &dyn Fn(usize) -> usize, down: &dyn Fn(usize) -> usize| {
+            for c in lo..hi {
+                let (a, b, p, m) = (own[up(c)], own[down(c)], yp[c], ym[c]);
+                let mut h = [0.0; 3];
+                for q in 0..3 {
+                    h[q] = J * (a[q] + b[q]) + J * (p[q] + m[q]);
+                }
+                h[0] += DX * (a[2] - b[2]);
+                h[2] -= DX * (a[0] - b[0]);
+                h[1] += DY * (p[2] - m[2]);
+                h[2] -= DY * (p[1] - m[1]);
+                o[c] = h;
+            }
+        };
+    plane(o, 0, 1, &|_| 1, &|_| N1 - 1);
+    for c in 1..N1 - 1 {
+        let (a, b, p, m) = (own[c + 1], own[c - 1], yp[c], ym[c]);
+        let mut h = [0.0; 3];
+        for q in 0..3 {
+            h[q] = J * (a[q] + b[q]) + J * (p[q] + m[q]);
+        }
+        h[0] += DX * (a[2] - b[2]);
+        h[2] -= DX * (a[0] - b[0]);
+        h[1] += DY * (p[2] - m[2]);
+        h[2] -= DY * (p[1] - m[1]);
+        o[c] = h;
+    }
+    plane(o, N1 - 1, N1, &|_| 0, &|_| N1 - 2);
+    for c in 0..N1 {
+        for q in 0..3 {
+            o[c][q] += J * (zp[c][q] + zm[c][q]);
+        }
+    }
+    for c in 0..N1 {
+        o[c][2] += K * own[c][2] + B;
+    }
+}
+
+/// Spins as three component arrays.
+struct Soa {
+    c: [Vec<f64>; 3],
+    at: [usize; 3],
+}
+
+impl Soa {
+    /// Component `q` starts `at[q]` numbers into its allocation: `spread` moves the three
+    /// (and each `Soa` by `k`) to different offsets within a 4 KiB page.
+    fn new(v: &[V], k: usize, spread: bool) -> Self {
+        let at = if spread { [8 * k + 1, 8 * k + 37, 8 * k + 75] } else { [0; 3] };
+        let c = std::array::from_fn(|q| {
+            let mut a = vec![0.0; N + 128];
+            for (i, s) in v.iter().enumerate() {
+                a[at[q] + i] = s[q];
+            }
+            a
+        });
+        Self { c, at }
+    }
+    fn get(&self) -> [&[f64]; 3] {
+        std::array::from_fn(|q| &self.c[q][self.at[q]..self.at[q] + N])
+    }
+    fn get_mut(&mut self) -> [&mut [f64]; 3] {
+        let at = self.at;
+        let [x, y, z] = &mut self.c;
+        [&mut x[at[0]..at[0] + N], &mut y[at[1]..at[1] + N], &mut z[at[2]..at[2] + N]]
+    }
+}
+
+#[inline(always)]
+fn row_soa(s: [&[f64]; 3], r: usize, o: [&mut [f64]; 3]) {
+    let (ym, yp, zm, zp) = neighbour_rows(r);
+    let row = |at: usize| -> [&[f64]; 3] { std::array::from_fn(|q| &s[q][at..at + N1]) };
+    let zrow = |at: Option<usize>| -> [&[f64]; 3] {
+        std::array::from_fn(|q| at.map_or(&ZERO_F[..], |at| &s[q][at..at + N1]))
+    };
+    let ([x, y, z], [xm, ymm, zym], [xp, yyp, zyp]) = (row(r), row(ym), row(yp));
+    let ([xd, yd, zd], [xu, yu, zu]) = (zrow(zm), zrow(zp));
+    let [ox, oy, oz] = o;
+    let (ox, oy, oz) = (&mut ox[..N1], &mut oy[..N1], &mut oz[..N1]);
+    // One body for the interior (a loop the compiler vectorises, the neighbours at fixed
+    // offsets) and the two end cells, whose neighbours wrap around the row.
+    macro_rules! cell {
+        ($c:expr, $up:expr, $dn:expr) => {{
+            let (c, up, dn) = ($c, $up, $dn);
+            ox[c] = J * (x[up] + x[dn]) + J * (xp[c] + xm[c]) + J * (xu[c] + xd[c]) + DX * (z[up] - z[dn]);
+            oy[c] =
+                J * (y[up] + y[dn]) + J * (yyp[c] + ymm[c]) + J * (yu[c] + yd[c]) + DY * (zyp[c] - zym[c]);
+            oz[c] = J * (z[up] + z[dn]) + J * (zyp[c] + zym[c]) + J * (zu[c] + zd[c])
+                - DX * (x[up] - x[dn])
+                - DY * (yyp[c] - ymm[c])
+                + K * z[c]
+                + B;
+        }};
+    }
+    cell!(0, 1, N1 - 1);
+    cell!(N1 - 1, 0, N1 - 2);
+    for c in 1..N1 - 1 {
+        cell!(c, c + 1, c - 1);
+    }
+}
+
+/// `f(S, B)` of the Landau-Lifshitz equation.
+#[inline(always)]
+fn rhs(s: V, b: V, g: f64, al: f64) -> V {
+    let t = [s[1] * b[2] - s[2] * b[1], s[2] * b[0] - s[0] * b[2], s[0] * b[1] - s[1] * b[0]];
+    let d = [s[1] * t[2] - s[2] * t[1], s[2] * t[0] - s[0] * t[2], s[0] * t[1] - s[1] * t[0]];
+    [-g * (t[0] + al * d[0]), -g * (t[1] + al * d[1]), -g * (t[2] + al * d[2])]
+}
+
+/// `(S + P + dt f(P, B)) / 2`, normalised.
+#[inline(always)]
+fn corrected(s: V, p: V, b: V, g: f64, al: f64) -> V {
+    let f = rhs(p, b, g, al);
+    let v = std::array::from_fn::<f64, 3, _>(|q| 0.5 * (s[q] + p[q] + DT * f[q]));
+    let inv = 1.0 / (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt();
+    [v[0] * inv, v[1] * inv, v[2] * inv]
+}
+
+/// Per-site constants as the integrator keeps them.
+#[derive(Clone, Copy)]
+struct SiteConst {
+    gamma: f64,
+    alpha: f64,
+    _sigma: f64,
+}
+
+/// A Heun step on 3-vectors, the constants from `consts` (one per cell of a row) or, when
+/// `None`, the compiled-in ones.
+#[inline(always)]
+fn step_aos(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V], consts: Option<&[SiteConst]>) {
+    let c = |k: usize| consts.map_or((G, AL), |c| (c[k].gamma, c[k].alpha));
+    for r in (0..N).step_by(N1) {
+        let p = &mut pred[r..r + N1];
+        row_aos(s, r, p);
+        let (nz, here) = (&noise[r..r + N1], &s[r..r + N1]);
+        for k in 0..N1 {
+            let b = std::array::from_fn(|q| p[k][q] + nz[k][q]);
+            let (g, al) = c(k);
+            let f = rhs(here[k], b, g, al);
+            p[k] = std::array::from_fn(|q| here[k][q] + DT * f[q]);
+        }
+    }
+    let mut field = [[0.0; 3]; N1];
+    for r in (0..N).step_by(N1) {
+        row_aos(pred, r, &mut field);
+        let (nz, here, p, out) = (&noise[r..r + N1], &s[r..r + N1], &pred[r..r + N1], &mut next[r..r + N1]);
+        for k in 0..N1 {
+            let b = std::array::from_fn(|q| field[k][q] + nz[k][q]);
+            let (g, al) = c(k);
+            out[k] = corrected(here[k], p[k], b, g, al);
+        }
+    }
+}
+
+#[inline(never)]
+fn step_aos_const(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V]) {
+    step_aos(s, pred, noise, next, None)
+}
+
+#[inline(never)]
+fn step_aos_array(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V], consts: &[SiteConst]) {
+    step_aos(s, pred, noise, next, Some(consts))
+}
+
+#[inline(never)]
+fn step_soa(s: &Soa, pred: &mut Soa, noise: &Soa, next: &mut Soa) {
+    let ([sx, sy, sz], [nx, ny, nz]) = (s.get(), noise.get());
+    {
+        let [px, py, pz] = pred.get_mut();
+        for r in (0..N).step_by(N1) {
+            let (px, py, pz) = (&mut px[r..r + N1], &mut py[r..r + N1], &mut pz[r..r + N1]);
+            row_soa([sx, sy, sz], r, [&mut *px, &mut *py, &mut *pz]);
+            for k in r..r + N1 {
+                let i = k - r;
+                let f = rhs([sx[k], sy[k], sz[k]], [px[i] + nx[k], py[i] + ny[k], pz[i] + nz[k]], G, AL);
+                (px[i], py[i], pz[i]) = (sx[k] + DT * f[0], sy[k] + DT * f[1], sz[k] + DT * f[2]);
+            }
+        }
+    }
+    let [px, py, pz] = pred.get();
+    let [ox, oy, oz] = next.get_mut();
+    let (mut fx, mut fy, mut fz) = ([0.0; N1], [0.0; N1], [0.0; N1]);
+    for r in (0..N).step_by(N1) {
+        row_soa([px, py, pz], r, [&mut fx, &mut fy, &mut fz]);
+        for k in r..r + N1 {
+            let i = k - r;
+            let b = [fx[i] + nx[k], fy[i] + ny[k], fz[i] + nz[k]];
+            let v = corrected([sx[k], sy[k], sz[k]], [px[k], py[k], pz[k]], b, G, AL);
+            (ox[k], oy[k], oz[k]) = (v[0], v[1], v[2]);
+        }
+    }
+}
+
+fn field_all(row: impl Fn(usize, &mut [V]), out: &mut [V]) {
+    for r in (0..N).step_by(N1) {
+        row(r, &mut out[r..r + N1]);
+    }
+}
+
+#[inline(never)]
+fn field_aos(s: &[V], out: &mut [V]) {
+    field_all(|r, o| row_aos(s, r, o), out)
+}
+
+#[inline(never)]
+fn field_aos3(s: &[V], out: &mut [V]) {
+    field_all(|r, o| row_aos3(s, r, o), out)
+}
+
+#[inline(never)]
+fn field_soa(s: &Soa, out: &mut Soa) {
+    let s = s.get();
+    let [ox, oy, oz] = out.get_mut();
+    for r in (0..N).step_by(N1) {
+        row_soa(s, r, [&mut ox[r..r + N1], &mut oy[r..r + N1], &mut oz[r..r + N1]]);
+    }
+}
+
+/// Nanoseconds per site of `f`, the best of `reps` calls.
+fn ns(reps: usize, mut f: impl FnMut()) -> f64 {
+    (0..reps)
+        .map(|_| {
+            let t = Instant::now();
+            f();
+            t.elapsed().as_secs_f64()
+        })
+        .fold(f64::INFINITY, f64::min)
+        / N as f64
+        * 1e9
+}
+
+fn main() {
+    let mut state = 0x9e37_79b9_7f4a_7c15_u64;
+    let mut uniform = || {
+        state ^= state << 13;
+        state ^= state >> 7;
+        state ^= state << 17;
+        (state >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+    };
+    let mut unit = || {
+        let v = [uniform(), uniform(), uniform()];
+        let n = (v[0] * v[0] + v[1] * v[1] + v[2] * v[2]).sqrt();
+        [v[0] / n, v[1] / n, v[2] / n]
+    };
+    let spins: Vec<V> = (0..N).map(|_| unit()).collect();
+    let noise: Vec<V> = (0..N).map(|_| unit().map(|x| 0.5 * x)).collect();
+    let consts = vec![SiteConst { gamma: G, alpha: AL, _sigma: 0.0 }; N1];
+
+    let mut out = vec![[0.0; 3]; N];
+    let mut out3 = vec![[0.0; 3]; N];
+    let (soa, mut soa_out) = (Soa::new(&spins, 0, true), Soa::new(&spins, 1, true));
+    let (flat, mut flat_out) = (Soa::new(&spins, 0, false), Soa::new(&spins, 0, false));
+    let (mut pred, mut next) = (vec![[0.0; 3]; N], vec![[0.0; 3]; N]);
+    let (mut spred, sn, mut snext) =
+        (Soa::new(&spins, 2, true), Soa::new(&noise, 3, true), Soa::new(&spins, 4, true));
+
+    println!("ns per site (best of the calls in a round); 128x128x8, one thread");
+    println!("round | field: aos  aos3  soa  soa same page offset | step: aos  aos consts  soa");
+    for round in 0..5 {
+        let f = [
+            ns(50, || field_aos(black_box(&spins), &mut out)),
+            ns(50, || field_aos3(black_box(&spins), &mut out3)),
+            ns(50, || field_soa(black_box(&soa), &mut soa_out)),
+            ns(50, || field_soa(black_box(&flat), &mut flat_out)),
+        ];
+        let s = [
+            ns(20, || step_aos_const(black_box(&spins), &mut pred, &noise, &mut next)),
+            ns(20, || step_aos_array(black_box(&spins), &mut pred, &noise, &mut next, &consts)),
+            ns(20, || step_soa(black_box(&soa), &mut spred, &sn, &mut snext)),
+        ];
+        println!(
+            "{round:5} | {:10.2} {:5.2} {:4.2} {:23.2} | {:9.2} {:11.2} {:4.2}",
+            f[0], f[1], f[2], f[3], s[0], s[1], s[2]
+        );
+    }
+    // The layouts compute the same numbers (up to the order of the sums).
+    let [x, y, z] = soa_out.get();
+    let field_diff =
+        (0..N).map(|i| (out[i][0] - x[i]).abs().max((out[i][2] - z[i]).abs())).fold(0.0, f64::max);
+    let three_diff =
+        (0..N).map(|i| (out[i][1] - out3[i][1]).abs().max((out[i][1] - y[i]).abs())).fold(0.0, f64::max);
+    let [x, y, z] = snext.get();
+    let step_diff = (0..N)
+        .map(|i| (next[i][0] - x[i]).abs().max((next[i][1] - y[i]).abs()).max((next[i][2] - z[i]).abs()))
+        .fold(0.0, f64::max);
+    println!("largest difference between layouts: field {field_diff:.1e} T, {three_diff:.1e} T; step {step_diff:.1e}");
+}

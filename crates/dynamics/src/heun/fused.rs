@@ -17,7 +17,9 @@
 //! are computed twice with the same bits, and the result is bitwise that of the two-pass
 //! step for any number of tasks.
 
-use super::{add_into, correct_block, first_bad, first_failed, predictor_chunk, StepContext, BLOCK};
+use super::{
+    add_into, correct_block, first_bad, first_failed, predictor_chunk, SiteConsts, StepContext, BLOCK,
+};
 use rayon::prelude::*;
 use spindrift_hamiltonian::{Hamiltonian, SpinRows};
 use spindrift_lattice::{wrap_index, Vec3};
@@ -221,7 +223,7 @@ spindrift_isa::multiversion! {
         noise: &[Vec3],
         out: &mut [Vec3]
     ) -> Option<usize> {
-        let StepContext { h, consts, nb, occupation, dt, thermal, .. } = *ctx;
+        let StepContext { h, consts, uniform, nb, occupation, dt, thermal, .. } = *ctx;
         let mut field_block = [[0.0; 3]; BLOCK];
         let mut ok_block = [true; BLOCK];
         let mut bad = None;
@@ -229,7 +231,7 @@ spindrift_isa::multiversion! {
         for (block, ((out, pred), noise)) in blocks.enumerate() {
             let first = start + block * BLOCK;
             let len = out.len();
-            let consts = &consts[first % nb..][..len];
+            let consts = SiteConsts::of(uniform, &consts[first % nb..][..len]);
             let fields = &mut field_block[..len];
             let ok = &mut ok_block[..len];
             h.field_range_in(view, first, fields);

@@ -56,6 +56,25 @@ use spindrift_hamiltonian::{Hamiltonian, CHUNK};
 use spindrift_lattice::{cross, dot, Vec3};
 use spindrift_noise::{NoiseStream, STREAM_LLG_THERMAL};
 
+/// `$body` with `$c` the closure `k -> (gamma_ll, alpha)` of site `k` of a block whose
+/// constants are `$consts` (a [`SiteConsts`]): one compiled copy of `$body` for a pair
+/// shared by every site, one for a run of per-site constants, so that neither loop tests
+/// which it has.
+macro_rules! with_consts {
+    ($consts:expr, $c:ident => $body:expr) => {
+        match $consts {
+            SiteConsts::Uniform(pair) => {
+                let $c = |_: usize| pair;
+                $body
+            }
+            SiteConsts::PerSite(run) => {
+                let $c = |k: usize| (run[k].gamma_ll, run[k].alpha);
+                $body
+            }
+        }
+    };
+}
+
 mod fused;
 
 /// Parameters of one Heun step. Both may change from step to step (a temperature ramp
@@ -110,21 +129,15 @@ fn corrected((gamma_ll, alpha): (f64, f64), s: Vec3, p: Vec3, b: Vec3, dt: f64) 
 }
 
 /// Euler's predictor over one block, `pred[k] = S + dt f(S, B)` with the spins `here` and
-/// the fields `pred` (overwritten).
+/// the fields `pred` (overwritten), site `k`'s `(gamma_ll, alpha)` from `c(k)` (see
+/// [`with_consts!`]).
 #[inline(always)]
-fn predict_block(consts: SiteConsts<'_>, here: &[Vec3], pred: &mut [Vec3], dt: f64) {
-    #[inline(always)]
-    fn run(c: impl Fn(usize) -> (f64, f64), here: &[Vec3], pred: &mut [Vec3], dt: f64) {
-        for k in 0..pred.len() {
-            let (gamma_ll, alpha) = c(k);
-            let s = here[k];
-            let f = llg_rhs(s, pred[k], gamma_ll, alpha);
-            pred[k] = [s[0] + dt * f[0], s[1] + dt * f[1], s[2] + dt * f[2]];
-        }
-    }
-    match consts {
-        SiteConsts::Uniform(c) => run(|_| c, here, pred, dt),
-        SiteConsts::PerSite(c) => run(|k| (c[k].gamma_ll, c[k].alpha), here, pred, dt),
+fn predict_block(c: impl Fn(usize) -> (f64, f64), here: &[Vec3], pred: &mut [Vec3], dt: f64) {
+    for k in 0..pred.len() {
+        let (gamma_ll, alpha) = c(k);
+        let s = here[k];
+        let f = llg_rhs(s, pred[k], gamma_ll, alpha);
+        pred[k] = [s[0] + dt * f[0], s[1] + dt * f[1], s[2] + dt * f[2]];
     }
 }
 
@@ -137,12 +150,13 @@ fn add_into(a: &mut [Vec3], b: &[Vec3]) {
 }
 
 /// The corrector over one block: `out[k]` from the old spin `old[k]`, the
-/// predictor `pred[k]` and the field at the predictor `fields[k]`. Branch-free, so that
-/// it vectorises: a failed site keeps its old spin and is marked in `ok`. Returns whether
+/// predictor `pred[k]` and the field at the predictor `fields[k]`, site `k`'s
+/// `(gamma_ll, alpha)` from `c(k)` (see [`with_consts!`]). Branch-free, so that it
+/// vectorises: a failed site keeps its old spin and is marked in `ok`. Returns whether
 /// every site succeeded.
 #[inline(always)]
 fn correct_block(
-    consts: SiteConsts<'_>,
+    c: impl Fn(usize) -> (f64, f64),
     old: &[Vec3],
     pred: &[Vec3],
     fields: &[Vec3],
@@ -150,37 +164,22 @@ fn correct_block(
     out: &mut [Vec3],
     ok: &mut [bool],
 ) -> bool {
-    #[inline(always)]
-    fn run(
-        c: impl Fn(usize) -> (f64, f64),
-        old: &[Vec3],
-        pred: &[Vec3],
-        fields: &[Vec3],
-        dt: f64,
-        out: &mut [Vec3],
-        ok: &mut [bool],
-    ) -> bool {
-        let mut all_ok = true;
-        for k in 0..out.len() {
-            let (v, good) = corrected(c(k), old[k], pred[k], fields[k], dt);
-            out[k] = v;
-            ok[k] = good;
-            all_ok &= good;
-        }
-        all_ok
+    let mut all_ok = true;
+    for k in 0..out.len() {
+        let (v, good) = corrected(c(k), old[k], pred[k], fields[k], dt);
+        out[k] = v;
+        ok[k] = good;
+        all_ok &= good;
     }
-    match consts {
-        SiteConsts::Uniform(c) => run(|_| c, old, pred, fields, dt, out, ok),
-        SiteConsts::PerSite(c) => run(|k| (c[k].gamma_ll, c[k].alpha), old, pred, fields, dt, out, ok),
-    }
+    all_ok
 }
 
 /// The LLG constants `(gamma_ll, alpha)` of a block's sites: one pair for every site, or
-/// the block's run of [`SiteConst`]s. Each kernel loop is compiled for both; with one pair
-/// it is read once and kept in registers, where a loop over the run regroups the
-/// constants of every few sites from their 24-byte records into vector registers (one
-/// pair: 10 instructions fewer per site and step, 4.6% of a step of 128x128x8 in
-/// callgrind at v3).
+/// the block's run of [`SiteConst`]s. Each kernel loop is compiled for both (through
+/// [`with_consts!`]); with one pair it is read once and kept in registers, where a loop
+/// over the run regroups the constants of every few sites from their 24-byte records into
+/// vector registers (one pair: 10 instructions fewer per site and step, 4.6% of a step of
+/// 128x128x8 in callgrind at v3).
 #[derive(Debug, Clone, Copy)]
 enum SiteConsts<'a> {
     Uniform((f64, f64)),
@@ -584,7 +583,7 @@ spindrift_isa::multiversion! {
                 }
                 add_into(pred, noise);
             }
-            predict_block(SiteConsts::of(uniform, consts), here, pred, dt);
+            with_consts!(SiteConsts::of(uniform, consts), c => predict_block(c, here, pred, dt));
             if let Some(occupied) = occupation {
                 for (p, &o) in pred.iter_mut().zip(&occupied[first..first + len]) {
                     if !o {
@@ -626,7 +625,8 @@ spindrift_isa::multiversion! {
                 add_into(fields, next);
             }
             let old = &spins[first..first + len];
-            if !correct_block(consts, old, &predictor[first..first + len], fields, dt, next, ok) {
+            let pred = &predictor[first..first + len];
+            if !with_consts!(consts, c => correct_block(c, old, pred, fields, dt, next, ok)) {
                 bad = first_bad(bad, first_failed(ok, occupation, first));
             }
         }

@@ -93,35 +93,28 @@ fn row_aos3(s: &[V], r: usize, o: &mut [V]) {
     let (ym, yp, zm, zp) = neighbour_rows(r);
     let z = |at: Option<usize>| at.map_or(&ZERO_V[..], |at| &s[at..at + N1]);
     let (own, ym, yp, zm, zp) = (&s[r..r + N1], &s[ym..ym + N1], &s[yp..yp + N1], z(zm), z(zp));
-    let plane =
-        |o: &mut [V], lo: usize, hi: usize, up: &dyn Fn(usize) -> usize, down: &dyn Fn(usize) -> usize| {
-            for c in lo..hi {
-                let (a, b, p, m) = (own[up(c)], own[down(c)], yp[c], ym[c]);
-                let mut h = [0.0; 3];
-                for q in 0..3 {
-                    h[q] = J * (a[q] + b[q]) + J * (p[q] + m[q]);
-                }
-                h[0] += DX * (a[2] - b[2]);
-                h[2] -= DX * (a[0] - b[0]);
-                h[1] += DY * (p[2] - m[2]);
-                h[2] -= DY * (p[1] - m[1]);
-                o[c] = h;
+    // The in-plane pairs of cell `c` with neighbours `up` and `down` along a1 (the end
+    // cells wrap; the interior loop keeps fixed offsets, which the compiler vectorises).
+    macro_rules! in_plane {
+        ($c:expr, $up:expr, $down:expr) => {{
+            let c = $c;
+            let (a, b, p, m) = (own[$up], own[$down], yp[c], ym[c]);
+            let mut h = [0.0; 3];
+            for q in 0..3 {
+                h[q] = J * (a[q] + b[q]) + J * (p[q] + m[q]);
             }
-        };
-    plane(o, 0, 1, &|_| 1, &|_| N1 - 1);
-    for c in 1..N1 - 1 {
-        let (a, b, p, m) = (own[c + 1], own[c - 1], yp[c], ym[c]);
-        let mut h = [0.0; 3];
-        for q in 0..3 {
-            h[q] = J * (a[q] + b[q]) + J * (p[q] + m[q]);
-        }
-        h[0] += DX * (a[2] - b[2]);
-        h[2] -= DX * (a[0] - b[0]);
-        h[1] += DY * (p[2] - m[2]);
-        h[2] -= DY * (p[1] - m[1]);
-        o[c] = h;
+            h[0] += DX * (a[2] - b[2]);
+            h[2] -= DX * (a[0] - b[0]);
+            h[1] += DY * (p[2] - m[2]);
+            h[2] -= DY * (p[1] - m[1]);
+            o[c] = h;
+        }};
     }
-    plane(o, N1 - 1, N1, &|_| 0, &|_| N1 - 2);
+    in_plane!(0, 1, N1 - 1);
+    for c in 1..N1 - 1 {
+        in_plane!(c, c + 1, c - 1);
+    }
+    in_plane!(N1 - 1, 0, N1 - 2);
     for c in 0..N1 {
         for q in 0..3 {
             o[c][q] += J * (zp[c][q] + zm[c][q]);

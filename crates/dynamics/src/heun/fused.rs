@@ -239,7 +239,7 @@ spindrift_isa::multiversion! {
                 add_into(fields, noise);
             }
             let old = &spins[first..first + len];
-            if !correct_block(consts, old, pred, fields, dt, out, ok) {
+            if !with_consts!(consts, c => correct_block(c, old, pred, fields, dt, out, ok)) {
                 bad = first_bad(bad, first_failed(ok, occupation, first));
             }
         }

@@ -344,8 +344,9 @@ impl Heun {
             self.consts[j] = self.consts[j % nb];
         }
 
-        let first = (self.consts[0].gamma_ll, self.consts[0].alpha);
-        let uniform = self.consts[..nb].iter().all(|c| (c.gamma_ll, c.alpha) == first).then_some(first);
+        // One pair for every site when the basis sites agree (see `SiteConsts`).
+        let pair = (self.consts[0].gamma_ll, self.consts[0].alpha);
+        let uniform = self.consts[..nb].iter().all(|c| (c.gamma_ll, c.alpha) == pair).then_some(pair);
         let ctx = StepContext {
             h,
             consts: &self.consts,

@@ -344,9 +344,10 @@ impl Heun {
             self.consts[j] = self.consts[j % nb];
         }
 
-        // One pair for every site when the basis sites agree (see `SiteConsts`).
-        let pair = (self.consts[0].gamma_ll, self.consts[0].alpha);
-        let uniform = self.consts[..nb].iter().all(|c| (c.gamma_ll, c.alpha) == pair).then_some(pair);
+        // One pair for every site when the basis sites share their damping (see
+        // `SiteConsts`): `gamma_ll` depends on nothing else.
+        let shared = self.damping.iter().all(|&alpha| alpha == self.damping[0]);
+        let uniform = shared.then_some((self.consts[0].gamma_ll, self.consts[0].alpha));
         let ctx = StepContext {
             h,
             consts: &self.consts,

@@ -512,8 +512,11 @@ impl Hamiltonian {
     /// one pass over the row per pack, whose loop body adds the pack's entries to the
     /// site's sum in order, so that it vectorises and reads and writes `out` once per pack
     /// rather than once per bond. Cells whose neighbour across a bond of the pack wraps
-    /// around the row's ends go one by one. Every site adds its entries in the same order
-    /// either way, so the result is bitwise that of a plain per-site loop over the entries.
+    /// around the row's ends go one by one. When the last pack holds isotropic pairs within
+    /// the row's cells (the exchange between layers of a film, say) and the on-site terms
+    /// take the flat pass, the two go in one flat pass (see [`RowPass::merges`]). Every site
+    /// adds its entries in the same order either way, so the result is bitwise that of a
+    /// plain per-site loop over the entries.
     #[inline(always)]
     fn field_row<const ONSITE: bool, R: SpinRows>(
         &self,
@@ -589,6 +592,11 @@ impl Hamiltonian {
                 pack[len] = next;
                 len += 1;
             }
+            let flat = if ONSITE { self.flat_onsite[b].as_ref() } else { None };
+            if let Some(flat) = flat.filter(|_| row.merges(&pack[..len], fresh)) {
+                row.pair_iso_onsite(out, &pack[..len], flat);
+                continue;
+            }
             if len > 0 {
                 row.apply(out, &pack[..len], fresh);
             } else if fresh {
@@ -597,7 +605,7 @@ impl Hamiltonian {
             }
             if ONSITE {
                 let onsite = OnSite { k_field: self.k_field[b], axis: self.axis[b], field: self.field };
-                row.onsite(out, &onsite, self.flat_onsite[b].as_ref());
+                row.onsite(out, &onsite, flat);
             }
         }
     }
@@ -1087,6 +1095,60 @@ impl RowPass<'_> {
                 }
             }
             out[k] = h;
+        }
+    }
+
+    /// Whether the last pack `pack` (added to sums that earlier packs started unless
+    /// `fresh`) and the on-site terms can go in one flat pass ([`RowPass::pair_iso_onsite`]):
+    /// one basis site, pairs without DMI, and no cell whose neighbours wrap around the row.
+    #[inline(always)]
+    fn merges(&self, pack: &[RowBond], fresh: bool) -> bool {
+        !fresh
+            && self.nb == 1
+            && !pack.is_empty()
+            && pack[0].kind == PAIR_ISO
+            && pack.iter().all(|r| r.o1 == 0 && r.o1b == 0)
+    }
+
+    /// The pack of isotropic pairs `pack` (see [`RowPass::merges`]) and the on-site terms
+    /// in one pass over the row as flat numbers: `((h + j (s + t)) + d s) + b` per
+    /// component, the operations and order of the pack's pass followed by the on-site pass,
+    /// so the same bits, with the sums read and written once instead of twice.
+    #[inline(always)]
+    fn pair_iso_onsite(&self, out: &mut [Vec3], pack: &[RowBond], flat: &FlatOnSite) {
+        macro_rules! dispatch {
+            ($($k:literal),*) => {
+                match pack.len() {
+                    $($k => self.pair_iso_onsite_k::<$k>(out, pack.try_into().expect("K bonds"), flat),)*
+                    _ => unreachable!("a pack holds 1 to {PACK} entries"),
+                }
+            };
+        }
+        dispatch!(1, 2, 3, 4)
+    }
+
+    /// [`RowPass::pair_iso_onsite`] for a pack of exactly `K` pairs.
+    #[inline(always)]
+    fn pair_iso_onsite_k<const K: usize>(&self, out: &mut [Vec3], pack: &[RowBond; K], flat: &FlatOnSite) {
+        let first = self.first as usize;
+        let len = (self.last - self.first) as usize;
+        let k0 = (self.first + self.shift) as usize;
+        let out = out[k0..k0 + len].as_flattened_mut();
+        let own = self.own[first..first + len].as_flattened();
+        let s: [&[f64]; K] = std::array::from_fn(|p| pack[p].row[first..first + len].as_flattened());
+        let t: [&[f64]; K] = std::array::from_fn(|p| pack[p].row2[first..first + len].as_flattened());
+        let j = pack.map(|r| r.j);
+        for (c, (o, own)) in out.chunks_mut(FLAT_LEN).zip(own.chunks(FLAT_LEN)).enumerate() {
+            let at = c * FLAT_LEN;
+            let s: [&[f64]; K] = std::array::from_fn(|p| &s[p][at..at + o.len()]);
+            let t: [&[f64]; K] = std::array::from_fn(|p| &t[p][at..at + o.len()]);
+            for (l, ((o, own), (d, b))) in o.iter_mut().zip(own).zip(flat.d.iter().zip(&flat.b)).enumerate() {
+                let mut h = *o;
+                for p in 0..K {
+                    h += j[p] * (s[p][l] + t[p][l]);
+                }
+                *o = h + d * own + b;
+            }
         }
     }
 

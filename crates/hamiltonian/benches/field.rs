@@ -3,7 +3,8 @@
 //! growing with the bonds), each reference term alone, and the energy: by term bond by
 //! bond (the reference), by term and in total through the row kernel; then the fused
 //! kernel on as many sites in rows of 32, 128 and 2048 cells, which shows what each row's
-//! set-up and end cells cost.
+//! set-up and end cells cost, and in one layer of rows of 128 (a monolayer: no bonds
+//! between layers, the on-site terms in a pass of their own).
 //! Single-threaded (`field_range` over the whole array) so the figures are per core;
 //! criterion reports elements (sites) per second. Seeded spins, set-up outside the timing.
 
@@ -76,12 +77,13 @@ fn bench(c: &mut Criterion) {
 
     let mut group = c.benchmark_group("field by row length, 131072 sites");
     group.sample_size(20);
-    for cells in [[32, 512, 8], [128, 128, 8], [2048, 8, 8]] {
+    for cells in [[32, 512, 8], [128, 128, 8], [2048, 8, 8], [128, 1024, 1]] {
         let h = system(1, cells);
         let spins = random_spins(h.len());
         let mut out = vec![[0.0; 3]; h.len()];
         group.throughput(Throughput::Elements(h.len() as u64));
-        group.bench_function(format!("rows of {} cells", cells[0]), |b| {
+        let layers = if cells[2] == 1 { ", one layer" } else { "" };
+        group.bench_function(format!("rows of {} cells{layers}", cells[0]), |b| {
             b.iter(|| h.field_range(black_box(&spins), 0, &mut out))
         });
     }

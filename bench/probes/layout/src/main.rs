@@ -7,6 +7,10 @@
 //! * `aos`: spins as 3-vectors (as Spindrift stores them), one pass per row;
 //! * `aos3`: the same in three passes per row (in-plane pairs, out-of-plane pair, on-site
 //!   terms), as the row kernel's packs go for this system;
+//! * `aos3 general`: `aos3` with the row kernel's arithmetic (each pair as
+//!   `j (s + t) + A (s - t)` with `e_z = 0` and coefficients read at run time, zeros
+//!   included; the on-site terms on every component), which tells the cost of a general
+//!   kernel's arithmetic apart from that of its structure;
 //! * `soa`: spins as three arrays of components, one pass per row, the arrays offset
 //!   from one another within a 4 KiB page; `soa same page offset` allocates them plainly,
 //!   so that they share their page offset, as separate large allocations do.
@@ -123,6 +127,57 @@ fn row_aos3(s: &[V], r: usize, o: &mut [V]) {
     for c in 0..N1 {
         o[c][2] += K * own[c][2] + B;
     }
+}
+
+/// `row_aos3` with the row kernel's arithmetic: pairs as `j (s + t) + A (s - t)` with
+/// `e_z = 0` and coefficients from `c`, the on-site terms as `(h + d s) + b` on every
+/// component.
+#[inline(always)]
+fn row_aos3g(s: &[V], r: usize, o: &mut [V], c: &Coef) {
+    let (ym, yp, zm, zp) = neighbour_rows(r);
+    let z = |at: Option<usize>| at.map_or(&ZERO_V[..], |at| &s[at..at + N1]);
+    let (own, ym, yp, zm, zp) = (&s[r..r + N1], &s[ym..ym + N1], &s[yp..yp + N1], z(zm), z(zp));
+    let pair = |h: &mut V, s: &V, t: &V, j: f64, e: &V| {
+        let g = [s[0] + t[0], s[1] + t[1], s[2] + t[2]];
+        let d = [s[0] - t[0], s[1] - t[1], s[2] - t[2]];
+        let a = [j * g[0] - e[1] * d[2], j * g[1] + e[0] * d[2], j * g[2] + (e[1] * d[0] - e[0] * d[1])];
+        h[0] += a[0];
+        h[1] += a[1];
+        h[2] += a[2];
+    };
+    macro_rules! in_plane {
+        ($c:expr, $up:expr, $down:expr) => {{
+            let cc = $c;
+            let mut h = [0.0; 3];
+            pair(&mut h, &own[$up], &own[$down], c.j, &c.e[0]);
+            pair(&mut h, &yp[cc], &ym[cc], c.j, &c.e[1]);
+            o[cc] = h;
+        }};
+    }
+    in_plane!(0, 1, N1 - 1);
+    for cc in 1..N1 - 1 {
+        in_plane!(cc, cc + 1, cc - 1);
+    }
+    in_plane!(N1 - 1, 0, N1 - 2);
+    for cc in 0..N1 {
+        for q in 0..3 {
+            o[cc][q] += c.j * (zp[cc][q] + zm[cc][q]);
+        }
+    }
+    for cc in 0..N1 {
+        for q in 0..3 {
+            o[cc][q] = o[cc][q] + c.d[q] * own[cc][q] + c.b[q];
+        }
+    }
+}
+
+/// Coefficients of `row_aos3g`, T per unit spin: exchange, the pairs' DMI vectors
+/// `e = (A_yz, A_zx, A_xy)` along a1 and a2, the on-site `d` and `b`.
+struct Coef {
+    j: f64,
+    e: [V; 2],
+    d: V,
+    b: V,
 }
 
 /// Spins as three component arrays.
@@ -297,6 +352,11 @@ fn field_aos3(s: &[V], out: &mut [V]) {
 }
 
 #[inline(never)]
+fn field_aos3g(s: &[V], out: &mut [V], c: &Coef) {
+    field_all(|r, o| row_aos3g(s, r, o, c), out)
+}
+
+#[inline(never)]
 fn field_soa(s: &Soa, out: &mut Soa) {
     let s = s.get();
     let [ox, oy, oz] = out.get_mut();
@@ -337,20 +397,25 @@ fn main() {
 
     let mut out = vec![[0.0; 3]; N];
     let mut out3 = vec![[0.0; 3]; N];
+    let mut out3g = vec![[0.0; 3]; N];
     let (soa, mut soa_out) = (Soa::new(&spins, 0, true), Soa::new(&spins, 1, true));
     let (flat, mut flat_out) = (Soa::new(&spins, 0, false), Soa::new(&spins, 0, false));
     let (mut pred, mut next) = (vec![[0.0; 3]; N], vec![[0.0; 3]; N]);
     let (mut spred, sn, mut snext) =
         (Soa::new(&spins, 2, true), Soa::new(&noise, 3, true), Soa::new(&spins, 4, true));
 
+    let coef = Coef { j: J, e: [[0.0, -DX, 0.0], [DY, 0.0, 0.0]], d: [0.0, 0.0, K], b: [0.0, 0.0, B] };
     println!("ns per site (best of the calls in a round); 128x128x8, one thread");
-    println!("round | field: aos  aos3  soa  soa same page offset | step: aos  aos consts  soa");
+    println!(
+        "round | field: aos  aos3  aos3 general  soa  soa same page offset | step: aos  aos consts  soa"
+    );
     for round in 0..5 {
         let f = [
             ns(50, || field_aos(black_box(&spins), &mut out)),
             ns(50, || field_aos3(black_box(&spins), &mut out3)),
             ns(50, || field_soa(black_box(&soa), &mut soa_out)),
             ns(50, || field_soa(black_box(&flat), &mut flat_out)),
+            ns(50, || field_aos3g(black_box(&spins), &mut out3g, black_box(&coef))),
         ];
         let s = [
             ns(20, || step_aos_const(black_box(&spins), &mut pred, &noise, &mut next)),
@@ -358,8 +423,8 @@ fn main() {
             ns(20, || step_soa(black_box(&soa), &mut spred, &sn, &mut snext)),
         ];
         println!(
-            "{round:5} | {:10.2} {:5.2} {:4.2} {:23.2} | {:9.2} {:11.2} {:4.2}",
-            f[0], f[1], f[2], f[3], s[0], s[1], s[2]
+            "{round:5} | {:10.2} {:5.2} {:13.2} {:4.2} {:23.2} | {:9.2} {:11.2} {:4.2}",
+            f[0], f[1], f[4], f[2], f[3], s[0], s[1], s[2]
         );
     }
     // The layouts compute the same numbers (up to the order of the sums).
@@ -368,9 +433,15 @@ fn main() {
         (0..N).map(|i| (out[i][0] - x[i]).abs().max((out[i][2] - z[i]).abs())).fold(0.0, f64::max);
     let three_diff =
         (0..N).map(|i| (out[i][1] - out3[i][1]).abs().max((out[i][1] - y[i]).abs())).fold(0.0, f64::max);
+    let general_diff = (0..N)
+        .map(|i| (0..3).map(|q| (out[i][q] - out3g[i][q]).abs()).fold(0.0, f64::max))
+        .fold(0.0, f64::max);
     let [x, y, z] = snext.get();
     let step_diff = (0..N)
         .map(|i| (next[i][0] - x[i]).abs().max((next[i][1] - y[i]).abs()).max((next[i][2] - z[i]).abs()))
         .fold(0.0, f64::max);
-    println!("largest difference between layouts: field {field_diff:.1e} T, {three_diff:.1e} T; step {step_diff:.1e}");
+    println!(
+        "largest difference between layouts: field {field_diff:.1e} T, {three_diff:.1e} T, general \
+         {general_diff:.1e} T; step {step_diff:.1e}"
+    );
 }

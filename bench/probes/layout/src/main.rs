@@ -91,39 +91,43 @@ fn row_aos(s: &[V], r: usize, o: &mut [V]) {
     cells_aos(rows, o, N1 - 1, N1, |_| 0, |_| N1 - 2);
 }
 
+/// The first two of three passes over a row: `cell(c, up, down)`, the in-plane pairs of
+/// cell `c` with neighbours `up` and `down` along a1, into `o` (the end cells wrap; the
+/// interior loop keeps fixed offsets, which the compiler vectorises), then the
+/// out-of-plane pair `j (zp + zm)` added.
+#[inline(always)]
+fn in_plane_then_z(o: &mut [V], zp: &[V], zm: &[V], j: f64, cell: impl Fn(usize, usize, usize) -> V) {
+    o[0] = cell(0, 1, N1 - 1);
+    for (k, oc) in o[1..N1 - 1].iter_mut().enumerate() {
+        let c = k + 1;
+        *oc = cell(c, c + 1, c - 1);
+    }
+    o[N1 - 1] = cell(N1 - 1, 0, N1 - 2);
+    for c in 0..N1 {
+        for q in 0..3 {
+            o[c][q] += j * (zp[c][q] + zm[c][q]);
+        }
+    }
+}
+
 /// `row_aos` in three passes: in-plane pairs, then the out-of-plane pair, then on-site.
 #[inline(always)]
 fn row_aos3(s: &[V], r: usize, o: &mut [V]) {
     let (ym, yp, zm, zp) = neighbour_rows(r);
     let z = |at: Option<usize>| at.map_or(&ZERO_V[..], |at| &s[at..at + N1]);
     let (own, ym, yp, zm, zp) = (&s[r..r + N1], &s[ym..ym + N1], &s[yp..yp + N1], z(zm), z(zp));
-    // The in-plane pairs of cell `c` with neighbours `up` and `down` along a1 (the end
-    // cells wrap; the interior loop keeps fixed offsets, which the compiler vectorises).
-    macro_rules! in_plane {
-        ($c:expr, $up:expr, $down:expr) => {{
-            let c = $c;
-            let (a, b, p, m) = (own[$up], own[$down], yp[c], ym[c]);
-            let mut h = [0.0; 3];
-            for q in 0..3 {
-                h[q] = J * (a[q] + b[q]) + J * (p[q] + m[q]);
-            }
-            h[0] += DX * (a[2] - b[2]);
-            h[2] -= DX * (a[0] - b[0]);
-            h[1] += DY * (p[2] - m[2]);
-            h[2] -= DY * (p[1] - m[1]);
-            o[c] = h;
-        }};
-    }
-    in_plane!(0, 1, N1 - 1);
-    for c in 1..N1 - 1 {
-        in_plane!(c, c + 1, c - 1);
-    }
-    in_plane!(N1 - 1, 0, N1 - 2);
-    for c in 0..N1 {
+    in_plane_then_z(o, zp, zm, J, |c, up, down| {
+        let (a, b, p, m) = (own[up], own[down], yp[c], ym[c]);
+        let mut h = [0.0; 3];
         for q in 0..3 {
-            o[c][q] += J * (zp[c][q] + zm[c][q]);
+            h[q] = J * (a[q] + b[q]) + J * (p[q] + m[q]);
         }
-    }
+        h[0] += DX * (a[2] - b[2]);
+        h[2] -= DX * (a[0] - b[0]);
+        h[1] += DY * (p[2] - m[2]);
+        h[2] -= DY * (p[1] - m[1]);
+        h
+    });
     for c in 0..N1 {
         o[c][2] += K * own[c][2] + B;
     }
@@ -145,25 +149,12 @@ fn row_aos3g(s: &[V], r: usize, o: &mut [V], c: &Coef) {
         h[1] += a[1];
         h[2] += a[2];
     };
-    macro_rules! in_plane {
-        ($c:expr, $up:expr, $down:expr) => {{
-            let cc = $c;
-            let mut h = [0.0; 3];
-            pair(&mut h, &own[$up], &own[$down], c.j, &c.e[0]);
-            pair(&mut h, &yp[cc], &ym[cc], c.j, &c.e[1]);
-            o[cc] = h;
-        }};
-    }
-    in_plane!(0, 1, N1 - 1);
-    for cc in 1..N1 - 1 {
-        in_plane!(cc, cc + 1, cc - 1);
-    }
-    in_plane!(N1 - 1, 0, N1 - 2);
-    for cc in 0..N1 {
-        for q in 0..3 {
-            o[cc][q] += c.j * (zp[cc][q] + zm[cc][q]);
-        }
-    }
+    in_plane_then_z(o, zp, zm, c.j, |cc, up, down| {
+        let mut h = [0.0; 3];
+        pair(&mut h, &own[up], &own[down], c.j, &c.e[0]);
+        pair(&mut h, &yp[cc], &ym[cc], c.j, &c.e[1]);
+        h
+    });
     for cc in 0..N1 {
         for q in 0..3 {
             o[cc][q] = o[cc][q] + c.d[q] * own[cc][q] + c.b[q];

@@ -11,6 +11,9 @@
 //!   `j (s + t) + A (s - t)` with `e_z = 0` and coefficients read at run time, zeros
 //!   included; the on-site terms on every component), which tells the cost of a general
 //!   kernel's arithmetic apart from that of its structure;
+//! * `soa3 general`: `aos3 general` on component arrays (the same operations in the same
+//!   order, so the same bits; checked), which tells what the layout alone gains a kernel
+//!   of three passes;
 //! * `soa`: spins as three arrays of components, one pass per row, the arrays offset
 //!   from one another within a 4 KiB page; `soa same page offset` allocates them plainly,
 //!   so that they share their page offset, as separate large allocations do.
@@ -234,6 +237,52 @@ fn row_soa(s: [&[f64]; 3], r: usize, o: [&mut [f64]; 3]) {
     }
 }
 
+/// `row_aos3g` on component arrays: the same three passes and arithmetic (each pair as
+/// `j (s + t) + A (s - t)` with coefficients from `c`, then `j (zp + zm)`, then
+/// `(h + d s) + b` on every component), so that the layout is the only difference.
+#[inline(always)]
+fn row_soa3g(s: [&[f64]; 3], r: usize, o: [&mut [f64]; 3], c: &Coef) {
+    let (ym, yp, zm, zp) = neighbour_rows(r);
+    let row = |at: usize| -> [&[f64]; 3] { std::array::from_fn(|q| &s[q][at..at + N1]) };
+    let zrow = |at: Option<usize>| -> [&[f64]; 3] {
+        std::array::from_fn(|q| at.map_or(&ZERO_F[..], |at| &s[q][at..at + N1]))
+    };
+    let (own, ymr, ypr, zmr, zpr) = (row(r), row(ym), row(yp), zrow(zm), zrow(zp));
+    let [ox, oy, oz] = o;
+    let (ox, oy, oz) = (&mut ox[..N1], &mut oy[..N1], &mut oz[..N1]);
+    let pair = |s: V, t: V, e: &V| -> V {
+        let g = [s[0] + t[0], s[1] + t[1], s[2] + t[2]];
+        let d = [s[0] - t[0], s[1] - t[1], s[2] - t[2]];
+        [c.j * g[0] - e[1] * d[2], c.j * g[1] + e[0] * d[2], c.j * g[2] + (e[1] * d[0] - e[0] * d[1])]
+    };
+    let at = |r: [&[f64]; 3], k: usize| -> V { [r[0][k], r[1][k], r[2][k]] };
+    macro_rules! cell {
+        ($c:expr, $up:expr, $dn:expr) => {{
+            let (cc, up, dn) = ($c, $up, $dn);
+            let a = pair(at(own, up), at(own, dn), &c.e[0]);
+            let b = pair(at(ypr, cc), at(ymr, cc), &c.e[1]);
+            ox[cc] = 0.0 + a[0] + b[0];
+            oy[cc] = 0.0 + a[1] + b[1];
+            oz[cc] = 0.0 + a[2] + b[2];
+        }};
+    }
+    cell!(0, 1, N1 - 1);
+    cell!(N1 - 1, 0, N1 - 2);
+    for cc in 1..N1 - 1 {
+        cell!(cc, cc + 1, cc - 1);
+    }
+    for (q, o) in [&mut *ox, &mut *oy, &mut *oz].into_iter().enumerate() {
+        for (k, o) in o.iter_mut().enumerate() {
+            *o += c.j * (zpr[q][k] + zmr[q][k]);
+        }
+    }
+    for (q, o) in [ox, oy, oz].into_iter().enumerate() {
+        for (k, o) in o.iter_mut().enumerate() {
+            *o = *o + c.d[q] * own[q][k] + c.b[q];
+        }
+    }
+}
+
 /// `f(S, B)` of the Landau-Lifshitz equation.
 #[inline(always)]
 fn rhs(s: V, b: V, g: f64, al: f64) -> V {
@@ -356,6 +405,15 @@ fn field_soa(s: &Soa, out: &mut Soa) {
     }
 }
 
+#[inline(never)]
+fn field_soa3g(s: &Soa, out: &mut Soa, c: &Coef) {
+    let s = s.get();
+    let [ox, oy, oz] = out.get_mut();
+    for r in (0..N).step_by(N1) {
+        row_soa3g(s, r, [&mut ox[r..r + N1], &mut oy[r..r + N1], &mut oz[r..r + N1]], c);
+    }
+}
+
 /// Nanoseconds per site of `f`, the best of `reps` calls.
 fn ns(reps: usize, mut f: impl FnMut()) -> f64 {
     (0..reps)
@@ -389,6 +447,7 @@ fn main() {
     let mut out = vec![[0.0; 3]; N];
     let mut out3 = vec![[0.0; 3]; N];
     let mut out3g = vec![[0.0; 3]; N];
+    let mut soa3g_out = Soa::new(&spins, 5, true);
     let (soa, mut soa_out) = (Soa::new(&spins, 0, true), Soa::new(&spins, 1, true));
     let (flat, mut flat_out) = (Soa::new(&spins, 0, false), Soa::new(&spins, 0, false));
     let (mut pred, mut next) = (vec![[0.0; 3]; N], vec![[0.0; 3]; N]);
@@ -398,7 +457,7 @@ fn main() {
     let coef = Coef { j: J, e: [[0.0, -DX, 0.0], [DY, 0.0, 0.0]], d: [0.0, 0.0, K], b: [0.0, 0.0, B] };
     println!("ns per site (best of the calls in a round); 128x128x8, one thread");
     println!(
-        "round | field: aos  aos3  aos3 general  soa  soa same page offset | step: aos  aos consts  soa"
+        "round | field: aos  aos3  aos3 general  soa  soa same page offset  soa3 general | step: aos  aos consts  soa"
     );
     for round in 0..5 {
         let f = [
@@ -407,6 +466,7 @@ fn main() {
             ns(50, || field_soa(black_box(&soa), &mut soa_out)),
             ns(50, || field_soa(black_box(&flat), &mut flat_out)),
             ns(50, || field_aos3g(black_box(&spins), &mut out3g, black_box(&coef))),
+            ns(50, || field_soa3g(black_box(&soa), &mut soa3g_out, black_box(&coef))),
         ];
         let s = [
             ns(20, || step_aos_const(black_box(&spins), &mut pred, &noise, &mut next)),
@@ -414,8 +474,8 @@ fn main() {
             ns(20, || step_soa(black_box(&soa), &mut spred, &sn, &mut snext)),
         ];
         println!(
-            "{round:5} | {:10.2} {:5.2} {:13.2} {:4.2} {:23.2} | {:9.2} {:11.2} {:4.2}",
-            f[0], f[1], f[4], f[2], f[3], s[0], s[1], s[2]
+            "{round:5} | {:10.2} {:5.2} {:13.2} {:4.2} {:23.2} {:13.2} | {:9.2} {:11.2} {:4.2}",
+            f[0], f[1], f[4], f[2], f[3], f[5], s[0], s[1], s[2]
         );
     }
     // The layouts compute the same numbers (up to the order of the sums).
@@ -424,15 +484,22 @@ fn main() {
         (0..N).map(|i| (out[i][0] - x[i]).abs().max((out[i][2] - z[i]).abs())).fold(0.0, f64::max);
     let three_diff =
         (0..N).map(|i| (out[i][1] - out3[i][1]).abs().max((out[i][1] - y[i]).abs())).fold(0.0, f64::max);
+    let [gx, gy, gz] = soa3g_out.get();
     let general_diff = (0..N)
         .map(|i| (0..3).map(|q| (out[i][q] - out3g[i][q]).abs()).fold(0.0, f64::max))
         .fold(0.0, f64::max);
+    // The same operations in the same order on either layout: the same bits.
+    let layouts_agree = (0..N).all(|i| {
+        out3g[i][0].to_bits() == gx[i].to_bits()
+            && out3g[i][1].to_bits() == gy[i].to_bits()
+            && out3g[i][2].to_bits() == gz[i].to_bits()
+    });
     let [x, y, z] = snext.get();
     let step_diff = (0..N)
         .map(|i| (next[i][0] - x[i]).abs().max((next[i][1] - y[i]).abs()).max((next[i][2] - z[i]).abs()))
         .fold(0.0, f64::max);
     println!(
         "largest difference between layouts: field {field_diff:.1e} T, {three_diff:.1e} T, general \
-         {general_diff:.1e} T; step {step_diff:.1e}"
+         {general_diff:.1e} T; step {step_diff:.1e}; aos3 general and soa3 general bitwise equal: {layouts_agree}"
     );
 }

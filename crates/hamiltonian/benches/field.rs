@@ -1,6 +1,6 @@
 //! Field evaluation on 128 x 128 x 8 simple cubic (periodic in-plane, open along z):
 //! the fused kernel of all terms (one shell, then one to three shells, to show the cost
-//! growing with the bonds), each reference term alone, and the energy: by term bond by
+//! growing with the bonds, and one shell of exchange alone), each reference term alone, and the energy: by term bond by
 //! bond (the reference), by term and in total through the row kernel; then the fused
 //! kernel on as many sites in rows of 32, 128 and 2048 cells, which shows what each row's
 //! set-up and end cells cost, and in one layer of rows of 128 (a monolayer: no bonds
@@ -19,11 +19,16 @@ use std::hint::black_box;
 /// Exchange on the first `shells` shells, interfacial DMI (normal z) on the first, on
 /// `cells` (periodic in-plane, open along z).
 fn system(shells: usize, cells: [usize; 3]) -> Hamiltonian {
+    system_with(shells, cells, true)
+}
+
+/// [`system`], with DMI on the first shell or without.
+fn system_with(shells: usize, cells: [usize; 3], with_dmi: bool) -> Hamiltonian {
     let cell =
         Supercell::new(preset("simple-cubic", 3.0, None).unwrap(), cells, [true, true, false], 0).unwrap();
     let mut bonds = BondList::new(1);
     for shell in 1..=shells {
-        let dmi = (shell == 1).then_some((1.0, DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] }));
+        let dmi = (with_dmi && shell == 1).then_some((1.0, DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] }));
         let spec = ShellCoupling { shell: ShellRef::Index(shell), j: 5.0 / shell as f64, dmi, pair: None };
         add_shell(&cell, &mut bonds, &spec).unwrap();
     }
@@ -57,6 +62,11 @@ fn bench(c: &mut Criterion) {
             b.iter(|| h.field_range(black_box(&spins), 0, &mut out))
         });
         if shells == 1 {
+            // Pure exchange: one pack of isotropic pairs, merged with the on-site terms.
+            let exchange_only = system_with(1, [128, 128, 8], false);
+            group.bench_function("fused field, 1 shell, exchange only", |b| {
+                b.iter(|| exchange_only.field_range(black_box(&spins), 0, &mut out))
+            });
             for term in h.terms() {
                 group.bench_function(format!("term {} gradient (reference)", term.name()), |b| {
                     b.iter(|| term.add_gradient(h.cell(), black_box(&spins), &mut out))

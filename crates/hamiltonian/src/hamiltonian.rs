@@ -512,9 +512,9 @@ impl Hamiltonian {
     /// one pass over the row per pack, whose loop body adds the pack's entries to the
     /// site's sum in order, so that it vectorises and reads and writes `out` once per pack
     /// rather than once per bond. Cells whose neighbour across a bond of the pack wraps
-    /// around the row's ends go one by one. When the last pack holds isotropic pairs within
-    /// the row's cells (the exchange between layers of a film, say) and the on-site terms
-    /// take the flat pass, the two go in one flat pass (see [`RowPass::merges`]). Every site
+    /// around the row's ends go one by one. When the last pack holds isotropic pairs (the
+    /// exchange between layers of a film, or every bond of pure exchange) and the on-site
+    /// terms take the flat pass, the two go in one flat pass (see [`RowPass::merges`]). Every site
     /// adds its entries in the same order either way, so the result is bitwise that of a
     /// plain per-site loop over the entries.
     #[inline(always)]
@@ -593,8 +593,8 @@ impl Hamiltonian {
                 len += 1;
             }
             let flat = if ONSITE { self.flat_onsite[b].as_ref() } else { None };
-            if let Some(flat) = flat.filter(|_| row.merges(&pack[..len], fresh)) {
-                row.pair_iso_onsite(out, &pack[..len], flat);
+            if let Some(flat) = flat.filter(|_| row.merges(&pack[..len])) {
+                row.pair_iso_onsite(out, &pack[..len], flat, fresh);
                 continue;
             }
             if len > 0 {
@@ -1102,26 +1102,24 @@ impl RowPass<'_> {
         }
     }
 
-    /// Whether the last pack `pack` (added to sums that earlier packs started unless
-    /// `fresh`) and the on-site terms can go in one flat pass ([`RowPass::pair_iso_onsite`]):
-    /// one basis site, pairs without DMI, and no cell whose neighbours wrap around the row.
+    /// Whether the last pack `pack` and the on-site terms can go in one flat pass
+    /// ([`RowPass::pair_iso_onsite`]): one basis site and pairs without DMI.
     #[inline(always)]
-    fn merges(&self, pack: &[RowBond], fresh: bool) -> bool {
-        !fresh
-            && self.nb == 1
-            && !pack.is_empty()
-            && pack[0].kind == PAIR_ISO
-            && pack.iter().all(|r| r.o1 == 0 && r.o1b == 0)
+    fn merges(&self, pack: &[RowBond]) -> bool {
+        self.nb == 1 && !pack.is_empty() && pack[0].kind == PAIR_ISO
     }
 
-    /// The pack of isotropic pairs `pack` (see [`RowPass::merges`]) and the on-site terms
-    /// in one flat pass ([`RowPass::pairs_and_onsite`]).
+    /// The pack of isotropic pairs `pack` (see [`RowPass::merges`]), starting the sums when
+    /// `fresh`, and the on-site terms in one flat pass ([`RowPass::pairs_and_onsite`]).
     #[inline(always)]
-    fn pair_iso_onsite(&self, out: &mut [Vec3], pack: &[RowBond], flat: &FlatOnSite) {
+    fn pair_iso_onsite(&self, out: &mut [Vec3], pack: &[RowBond], flat: &FlatOnSite, fresh: bool) {
         macro_rules! dispatch {
             ($($k:literal),*) => {
-                match pack.len() {
-                    $($k => self.pairs_and_onsite::<$k>(out, pack.try_into().expect("K bonds"), flat),)*
+                match (pack.len(), fresh) {
+                    $(
+                        ($k, false) => self.pairs_and_onsite::<$k, false>(out, pack.try_into().expect("K"), flat),
+                        ($k, true) => self.pairs_and_onsite::<$k, true>(out, pack.try_into().expect("K"), flat),
+                    )*
                     _ => unreachable!("a pack holds 1 to {PACK} entries"),
                 }
             };
@@ -1129,25 +1127,55 @@ impl RowPass<'_> {
         dispatch!(1, 2, 3, 4)
     }
 
-    /// The row of a one-site basis as flat numbers: `K` isotropic pairs within the row's
-    /// cells, then the on-site terms, `((h + j (s + t)) + d s) + b` per number. These are
-    /// the operations and the order of the pack's pass followed by the on-site pass, so
-    /// the bits are the same as theirs, with the sums read and written once. The numbers
-    /// go in groups of [`GROUP`] (eight sites), a period of the on-site constants, which
-    /// then stay in vector registers. (The on-site pass alone is faster as it is, a loop
-    /// over the row against the constants repeated to its length: in groups it took 1.5
-    /// times as long on a monolayer.)
+    /// The row of a one-site basis as flat numbers: `K` isotropic pairs (starting the sums
+    /// when `FRESH`), then the on-site terms, `((h + j (s + t)) + d s) + b` per number.
+    /// These are the operations and the order of the pack's pass followed by the on-site
+    /// pass, so the bits are the same as theirs, with the sums read and written once. The
+    /// cells whose neighbours wrap around the row's ends go through `edges` and then the
+    /// on-site terms, one by one. The numbers go in groups of [`GROUP`] (eight sites), a
+    /// period of the on-site constants, which then stay in vector registers. (The on-site
+    /// pass alone is faster as it is, a loop over the row against the constants repeated to
+    /// its length: in groups it took 1.5 times as long on a monolayer.)
     #[inline(always)]
-    fn pairs_and_onsite<const K: usize>(&self, out: &mut [Vec3], pack: &[RowBond; K], flat: &FlatOnSite) {
-        let first = self.first as usize;
-        let len = (self.last - self.first) as usize;
-        let k0 = (self.first + self.shift) as usize;
-        let out = out[k0..k0 + len].as_flattened_mut();
-        let own = self.own[first..first + len].as_flattened();
-        let s: [&[f64]; K] = std::array::from_fn(|p| pack[p].row[first..first + len].as_flattened());
-        let t: [&[f64]; K] = std::array::from_fn(|p| pack[p].row2[first..first + len].as_flattened());
-        let j = pack.map(|r| r.j);
+    fn pairs_and_onsite<const K: usize, const FRESH: bool>(
+        &self,
+        out: &mut [Vec3],
+        pack: &[RowBond; K],
+        flat: &FlatOnSite,
+    ) {
+        let (first, last, n1) = (self.first, self.last, self.n1);
         let (d, b) = (&flat.d, &flat.b);
+        // Cells whose neighbours across every pair of the pack stay inside their rows.
+        let mut inner_lo = first;
+        let mut inner_hi = last;
+        for r in pack {
+            inner_lo = inner_lo.max(-r.o1).max(-r.o1b);
+            inner_hi = inner_hi.min(n1 - r.o1).min(n1 - r.o1b);
+        }
+        let inner_lo = inner_lo.min(last);
+        let inner_hi = inner_hi.max(inner_lo);
+        // (Out of line: skipped where there is no such cell, as for pairs along a2 or a3.)
+        for (from, to) in [(first, inner_lo), (inner_hi, last)].into_iter().filter(|(from, to)| from < to) {
+            self.edges::<PAIR_ISO>(out, pack, from, to, FRESH);
+            for c1 in from..to {
+                let (o, s) = (&mut out[(c1 + self.shift) as usize], &self.own[c1 as usize]);
+                for a in 0..3 {
+                    o[a] = o[a] + d[a] * s[a] + b[a];
+                }
+            }
+        }
+        let lo = inner_lo as usize;
+        let len = (inner_hi - inner_lo) as usize;
+        let k0 = (inner_lo + self.shift) as usize;
+        let out = out[k0..k0 + len].as_flattened_mut();
+        let own = self.own[lo..lo + len].as_flattened();
+        // Pair `p` reaches cell `c1 + o1` of its row, and `c1 + o1b` of the other.
+        let from = |o1: i64| (inner_lo + o1) as usize;
+        let s: [&[f64]; K] =
+            std::array::from_fn(|p| pack[p].row[from(pack[p].o1)..from(pack[p].o1) + len].as_flattened());
+        let t: [&[f64]; K] =
+            std::array::from_fn(|p| pack[p].row2[from(pack[p].o1b)..from(pack[p].o1b) + len].as_flattened());
+        let j = pack.map(|r| r.j);
         // Groups as arrays (`chunks_exact` yields slices of `GROUP` numbers, so the
         // conversions cannot fail), whose fixed length lets the loop keep `d` and `b` in
         // registers.
@@ -1161,7 +1189,7 @@ impl RowPass<'_> {
             let s: [[f64; GROUP]; K] = std::array::from_fn(|p| group(&s[p][at..at + GROUP]));
             let t: [[f64; GROUP]; K] = std::array::from_fn(|p| group(&t[p][at..at + GROUP]));
             for l in 0..GROUP {
-                let mut h = o[l];
+                let mut h = if FRESH { 0.0 } else { o[l] };
                 for p in 0..K {
                     h += j[p] * (s[p][l] + t[p][l]);
                 }
@@ -1171,7 +1199,7 @@ impl RowPass<'_> {
         let rest = groups.into_remainder();
         // The last few numbers: the first constants of the period.
         for (l, o) in rest.iter_mut().enumerate() {
-            let mut h = *o;
+            let mut h = if FRESH { 0.0 } else { *o };
             for p in 0..K {
                 h += j[p] * (s[p][whole + l] + t[p][whole + l]);
             }
@@ -1464,6 +1492,44 @@ mod tests {
     // reordered loop that keeps each site's order of additions), for every boundary
     // combination, several bases and shells, dilution, boxes of one and two cells, rows
     // long enough for the vector path, and ranges that start and end inside rows.
+    /// Pure exchange (every entry an isotropic pair, so for a one-site basis the one pack
+    /// and the on-site terms go in one flat pass that starts the sums, with the end cells
+    /// of periodic and open rows one by one), bitwise against the per-site loop over the
+    /// same entries, for several starts of the evaluated range. Our own behaviour: the
+    /// merged pass must change no bit.
+    #[test]
+    fn pure_exchange_row_kernel_equals_per_site_sum_bitwise() {
+        let cases = [
+            ("simple-cubic", [21, 3, 3], [true, true, false], 3),
+            ("simple-cubic", [19, 2, 2], [false, true, true], 2),
+            ("simple-cubic", [150, 2, 2], [true, false, true], 1),
+            ("triangular", [17, 3, 2], [true, true, false], 2),
+            ("fcc", [17, 2, 2], [true, false, true], 3),
+            ("bcc", [9, 2, 2], [true, true, true], 2),
+        ];
+        for (name, cells, periodic, shells) in cases {
+            for anisotropy in [(0.3, [0.0, 0.0, 2.0]), (0.0, [0.3, 0.1, 0.5]), TILTED] {
+                let couplings = TestCouplings { seed: 5, d: 0.0, dmi_shells: 0, tensor: false, anisotropy };
+                let h = test_system(name, cells, periodic, shells, 1.0, couplings);
+                let n = h.len();
+                let spins: Vec<Vec3> = (0..n).map(|i| unit(4, i)).collect();
+                let expected: Vec<Vec3> = (0..n).map(|i| h.field_per_site(&spins, i)).collect();
+                for (start, len) in [(0, n), (1, n - 1), (5, n / 2), (n / 3, n / 3 + 1), (n - 1, 1)] {
+                    let mut out = vec![[f64::NAN; 3]; len];
+                    h.field_range(&spins, start, &mut out);
+                    for (k, o) in out.iter().enumerate() {
+                        let e = expected[start + k];
+                        assert!(
+                            (0..3).all(|a| o[a].to_bits() == e[a].to_bits()),
+                            "{name} {cells:?} axis {anisotropy:?} site {}: {o:?} != {e:?}",
+                            start + k
+                        );
+                    }
+                }
+            }
+        }
+    }
+
     #[test]
     fn row_kernel_equals_per_site_sum_bitwise() {
         let cases = [

@@ -1492,6 +1492,24 @@ mod tests {
     // reordered loop that keeps each site's order of additions), for every boundary
     // combination, several bases and shells, dilution, boxes of one and two cells, rows
     // long enough for the vector path, and ranges that start and end inside rows.
+    /// `field_range` over several ranges (whole, from the second site, from a site within
+    /// the first row, a middle third, the last site) equals `expected` bit for bit.
+    fn assert_ranges_bitwise(h: &Hamiltonian, spins: &[Vec3], expected: &[Vec3], label: &str) {
+        let n = h.len();
+        for (start, len) in [(0, n), (1, n - 1), (3, n / 2), (n / 3, n / 3 + 1), (n - 1, 1)] {
+            let mut out = vec![[f64::NAN; 3]; len];
+            h.field_range(spins, start, &mut out);
+            for (k, o) in out.iter().enumerate() {
+                let e = expected[start + k];
+                assert!(
+                    (0..3).all(|a| o[a].to_bits() == e[a].to_bits()),
+                    "{label} site {}: {o:?} != {e:?}",
+                    start + k
+                );
+            }
+        }
+    }
+
     /// Pure exchange (every entry an isotropic pair, so for a one-site basis the one pack
     /// and the on-site terms go in one flat pass that starts the sums, with the end cells
     /// of periodic and open rows one by one), bitwise against the per-site loop over the
@@ -1514,18 +1532,12 @@ mod tests {
                 let n = h.len();
                 let spins: Vec<Vec3> = (0..n).map(|i| unit(4, i)).collect();
                 let expected: Vec<Vec3> = (0..n).map(|i| h.field_per_site(&spins, i)).collect();
-                for (start, len) in [(0, n), (1, n - 1), (5, n / 2), (n / 3, n / 3 + 1), (n - 1, 1)] {
-                    let mut out = vec![[f64::NAN; 3]; len];
-                    h.field_range(&spins, start, &mut out);
-                    for (k, o) in out.iter().enumerate() {
-                        let e = expected[start + k];
-                        assert!(
-                            (0..3).all(|a| o[a].to_bits() == e[a].to_bits()),
-                            "{name} {cells:?} axis {anisotropy:?} site {}: {o:?} != {e:?}",
-                            start + k
-                        );
-                    }
-                }
+                assert_ranges_bitwise(
+                    &h,
+                    &spins,
+                    &expected,
+                    &format!("{name} {cells:?} axis {anisotropy:?}"),
+                );
             }
         }
     }
@@ -1606,18 +1618,7 @@ mod tests {
             ] {
                 assert!((a - b).abs() <= 1e-12 * size, "{name} {cells:?} {term}: {a} vs {b}");
             }
-            for (start, len) in [(0, n), (1, n - 1), (3, n / 2), (n / 3, n / 3 + 1), (n - 1, 1)] {
-                let mut out = vec![[f64::NAN; 3]; len];
-                h.field_range(&spins, start, &mut out);
-                for (k, o) in out.iter().enumerate() {
-                    let e = expected[start + k];
-                    assert!(
-                        (0..3).all(|a| o[a].to_bits() == e[a].to_bits()),
-                        "{name} {cells:?} axis {anisotropy:?} site {}: {o:?} != {e:?}",
-                        start + k
-                    );
-                }
-            }
+            assert_ranges_bitwise(&h, &spins, &expected, &format!("{name} {cells:?} axis {anisotropy:?}"));
         }
     }
 }

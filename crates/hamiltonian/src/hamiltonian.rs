@@ -1017,21 +1017,26 @@ impl RowPass<'_> {
         }
     }
 
+    /// The cells `inner_lo .. inner_hi` (within `first .. last`) whose neighbours across
+    /// every bond of `pack` stay inside their rows; the others wrap around the row's ends.
+    #[inline(always)]
+    fn inner(&self, pack: &[RowBond]) -> (i64, i64) {
+        let (mut lo, mut hi) = (self.first, self.last);
+        for r in pack {
+            lo = lo.max(-r.o1).max(-r.o1b);
+            hi = hi.min(self.n1 - r.o1).min(self.n1 - r.o1b);
+        }
+        let lo = lo.min(self.last);
+        (lo, hi.max(lo))
+    }
+
     /// `apply` for a pack of exactly `K` bonds of the kind `KIND`, starting the
     /// sums at zero when `FRESH`.
     #[inline(always)]
     fn pack<const K: usize, const KIND: u8, const FRESH: bool>(&self, out: &mut [Vec3], pack: &[RowBond]) {
         let pack: &[RowBond; K] = pack.try_into().expect("pack of K bonds");
-        let (first, last, n1) = (self.first, self.last, self.n1);
-        // Cells whose neighbours across every bond of the pack stay inside their rows.
-        let mut inner_lo = first;
-        let mut inner_hi = last;
-        for r in pack {
-            inner_lo = inner_lo.max(-r.o1).max(-r.o1b);
-            inner_hi = inner_hi.min(n1 - r.o1).min(n1 - r.o1b);
-        }
-        let inner_lo = inner_lo.min(last);
-        let inner_hi = inner_hi.max(inner_lo);
+        let (first, last) = (self.first, self.last);
+        let (inner_lo, inner_hi) = self.inner(pack);
         self.edges::<KIND>(out, pack, first, inner_lo, FRESH);
         if inner_lo < inner_hi {
             let len = (inner_hi - inner_lo) as usize;
@@ -1143,17 +1148,9 @@ impl RowPass<'_> {
         pack: &[RowBond; K],
         flat: &FlatOnSite,
     ) {
-        let (first, last, n1) = (self.first, self.last, self.n1);
+        let (first, last) = (self.first, self.last);
         let (d, b) = (&flat.d, &flat.b);
-        // Cells whose neighbours across every pair of the pack stay inside their rows.
-        let mut inner_lo = first;
-        let mut inner_hi = last;
-        for r in pack {
-            inner_lo = inner_lo.max(-r.o1).max(-r.o1b);
-            inner_hi = inner_hi.min(n1 - r.o1).min(n1 - r.o1b);
-        }
-        let inner_lo = inner_lo.min(last);
-        let inner_hi = inner_hi.max(inner_lo);
+        let (inner_lo, inner_hi) = self.inner(pack);
         // (Out of line: skipped where there is no such cell, as for pairs along a2 or a3.)
         for (from, to) in [(first, inner_lo), (inner_hi, last)].into_iter().filter(|(from, to)| from < to) {
             self.edges::<PAIR_ISO>(out, pack, from, to, FRESH);

@@ -19,7 +19,13 @@
 //!   so that they share their page offset, as separate large allocations do.
 //!
 //! The step adds `aos consts`: the AoS step reading the damping and gyromagnetic factor
-//! per site from an array of (gamma, alpha, sigma) as `SiteConst`, instead of constants.
+//! per site from an array of (gamma, alpha, sigma) as `SiteConst`, instead of constants;
+//! `aos3`, `aos3 general` and `soa3 general`: the step around those fields (the last two
+//! give the same bits, checked), and three variants of `aos3` that look for what makes its
+//! step dear: the predictor array off the spins' 4 KiB page offset, the predictor's field
+//! in a row on the stack, and the on-site pass over whole vectors of numbers.
+//! `layout-probe halves` times the predictor's and the corrector's pass of `aos` and
+//! `aos3` apart.
 //! The kernels hold their couplings as constants: a lower bound for a general kernel,
 //! not a replacement for one. The rounds alternate the variants in one process, so that
 //! a slow spell of a shared machine hits all of them; compare within a round.
@@ -42,6 +48,8 @@ const B: f64 = 1.0;
 const G: f64 = 174.3;
 const AL: f64 = 0.1;
 const DT: f64 = 1e-4;
+/// Rounds of all variants, alternated.
+const ROUNDS: usize = 9;
 
 type V = [f64; 3];
 
@@ -136,6 +144,36 @@ fn row_aos3(s: &[V], r: usize, o: &mut [V]) {
     }
 }
 
+/// `row_aos3` with its on-site pass over the row's numbers in groups of eight cells, with
+/// constants of period three (as Spindrift's flat on-site pass goes), so that the field
+/// is stored in whole vectors rather than one z component at a time.
+#[inline(always)]
+fn row_aos3_flat(s: &[V], r: usize, o: &mut [V]) {
+    let (ym, yp, zm, zp) = neighbour_rows(r);
+    let z = |at: Option<usize>| at.map_or(&ZERO_V[..], |at| &s[at..at + N1]);
+    let (own, ym, yp, zm, zp) = (&s[r..r + N1], &s[ym..ym + N1], &s[yp..yp + N1], z(zm), z(zp));
+    in_plane_then_z(o, zp, zm, J, |c, up, down| {
+        let (a, b, p, m) = (own[up], own[down], yp[c], ym[c]);
+        let mut h = [0.0; 3];
+        for q in 0..3 {
+            h[q] = J * (a[q] + b[q]) + J * (p[q] + m[q]);
+        }
+        h[0] += DX * (a[2] - b[2]);
+        h[2] -= DX * (a[0] - b[0]);
+        h[1] += DY * (p[2] - m[2]);
+        h[2] -= DY * (p[1] - m[1]);
+        h
+    });
+    let d: [f64; 24] = std::array::from_fn(|i| if i % 3 == 2 { K } else { 0.0 });
+    let b: [f64; 24] = std::array::from_fn(|i| if i % 3 == 2 { B } else { 0.0 });
+    let (o, own) = (o[..N1].as_flattened_mut(), own.as_flattened());
+    for (o, s) in o.chunks_exact_mut(24).zip(own.chunks_exact(24)) {
+        for i in 0..24 {
+            o[i] = o[i] + d[i] * s[i] + b[i];
+        }
+    }
+}
+
 /// `row_aos3` with the row kernel's arithmetic: pairs as `j (s + t) + A (s - t)` with
 /// `e_z = 0` and coefficients from `c`, the on-site terms as `(h + d s) + b` on every
 /// component.
@@ -186,7 +224,7 @@ impl Soa {
     fn new(v: &[V], k: usize, spread: bool) -> Self {
         let at = if spread { [8 * k + 1, 8 * k + 37, 8 * k + 75] } else { [0; 3] };
         let c = std::array::from_fn(|q| {
-            let mut a = vec![0.0; N + 128];
+            let mut a = vec![0.0; N + 256];
             for (i, s) in v.iter().enumerate() {
                 a[at[q] + i] = s[q];
             }
@@ -312,13 +350,47 @@ struct SiteConst {
 /// `None`, the compiled-in ones.
 #[inline(always)]
 fn step_aos(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V], consts: Option<&[SiteConst]>) {
+    step_aos_with(row_aos, s, pred, noise, next, consts)
+}
+
+/// [`step_aos`] with the field of a row from `row`.
+#[inline(always)]
+fn step_aos_with(
+    row: impl Fn(&[V], usize, &mut [V]),
+    s: &[V],
+    pred: &mut [V],
+    noise: &[V],
+    next: &mut [V],
+    consts: Option<&[SiteConst]>,
+) {
+    step_aos_in::<false>(row, s, pred, noise, next, consts)
+}
+
+/// [`step_aos_with`], the predictor's field into a row on the stack when `STACK` (as the
+/// corrector's always goes), else into the predictor's row, which the predictor then
+/// overwrites.
+#[inline(always)]
+fn step_aos_in<const STACK: bool>(
+    row: impl Fn(&[V], usize, &mut [V]),
+    s: &[V],
+    pred: &mut [V],
+    noise: &[V],
+    next: &mut [V],
+    consts: Option<&[SiteConst]>,
+) {
     let c = |k: usize| consts.map_or((G, AL), |c| (c[k].gamma, c[k].alpha));
+    let mut stack = [[0.0; 3]; N1];
     for r in (0..N).step_by(N1) {
         let p = &mut pred[r..r + N1];
-        row_aos(s, r, p);
+        if STACK {
+            row(s, r, &mut stack);
+        } else {
+            row(s, r, p);
+        }
         let (nz, here) = (&noise[r..r + N1], &s[r..r + N1]);
         for k in 0..N1 {
-            let b = std::array::from_fn(|q| p[k][q] + nz[k][q]);
+            let h = if STACK { stack[k] } else { p[k] };
+            let b = std::array::from_fn(|q| h[q] + nz[k][q]);
             let (g, al) = c(k);
             let f = rhs(here[k], b, g, al);
             p[k] = std::array::from_fn(|q| here[k][q] + DT * f[q]);
@@ -326,7 +398,7 @@ fn step_aos(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V], consts: Option
     }
     let mut field = [[0.0; 3]; N1];
     for r in (0..N).step_by(N1) {
-        row_aos(pred, r, &mut field);
+        row(pred, r, &mut field);
         let (nz, here, p, out) = (&noise[r..r + N1], &s[r..r + N1], &pred[r..r + N1], &mut next[r..r + N1]);
         for k in 0..N1 {
             let b = std::array::from_fn(|q| field[k][q] + nz[k][q]);
@@ -348,12 +420,88 @@ fn step_aos_array(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V], consts: 
 
 #[inline(never)]
 fn step_soa(s: &Soa, pred: &mut Soa, noise: &Soa, next: &mut Soa) {
+    step_soa_with(row_soa, s, pred, noise, next)
+}
+
+/// The step of `aos3 general`: its three passes and arithmetic, on 3-vectors.
+#[inline(never)]
+fn step_aos3g(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V], c: &Coef) {
+    step_aos_with(|s, r, o| row_aos3g(s, r, o, c), s, pred, noise, next, None)
+}
+
+/// The step of `aos3`: three passes with the couplings as constants, on 3-vectors.
+#[inline(never)]
+fn step_aos3(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V]) {
+    step_aos_with(row_aos3, s, pred, noise, next, None)
+}
+
+/// One half of [`step_aos_with`]: the predictor pass when `PRED`, else the corrector's.
+#[inline(never)]
+fn halves<const PRED: bool>(
+    row: impl Fn(&[V], usize, &mut [V]),
+    s: &[V],
+    pred: &mut [V],
+    noise: &[V],
+    next: &mut [V],
+) {
+    if PRED {
+        for r in (0..N).step_by(N1) {
+            let p = &mut pred[r..r + N1];
+            row(s, r, p);
+            let (nz, here) = (&noise[r..r + N1], &s[r..r + N1]);
+            for k in 0..N1 {
+                let b = std::array::from_fn(|q| p[k][q] + nz[k][q]);
+                let f = rhs(here[k], b, G, AL);
+                p[k] = std::array::from_fn(|q| here[k][q] + DT * f[q]);
+            }
+        }
+    } else {
+        let mut field = [[0.0; 3]; N1];
+        for r in (0..N).step_by(N1) {
+            row(pred, r, &mut field);
+            let (nz, here, p, out) =
+                (&noise[r..r + N1], &s[r..r + N1], &pred[r..r + N1], &mut next[r..r + N1]);
+            for k in 0..N1 {
+                let b = std::array::from_fn(|q| field[k][q] + nz[k][q]);
+                out[k] = corrected(here[k], p[k], b, G, AL);
+            }
+        }
+    }
+}
+
+/// [`step_aos3`] with [`row_aos3_flat`].
+#[inline(never)]
+fn step_aos3_flat(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V]) {
+    step_aos_with(row_aos3_flat, s, pred, noise, next, None)
+}
+
+/// [`step_aos3`] with the predictor's field in a row on the stack.
+#[inline(never)]
+fn step_aos3_stack(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V]) {
+    step_aos_in::<true>(row_aos3, s, pred, noise, next, None)
+}
+
+/// The step of `soa3 general`: the same on component arrays.
+#[inline(never)]
+fn step_soa3g(s: &Soa, pred: &mut Soa, noise: &Soa, next: &mut Soa, c: &Coef) {
+    step_soa_with(|s, r, o| row_soa3g(s, r, o, c), s, pred, noise, next)
+}
+
+/// [`step_soa`] with the field of a row from `row`.
+#[inline(always)]
+fn step_soa_with(
+    row: impl Fn([&[f64]; 3], usize, [&mut [f64]; 3]),
+    s: &Soa,
+    pred: &mut Soa,
+    noise: &Soa,
+    next: &mut Soa,
+) {
     let ([sx, sy, sz], [nx, ny, nz]) = (s.get(), noise.get());
     {
         let [px, py, pz] = pred.get_mut();
         for r in (0..N).step_by(N1) {
             let (px, py, pz) = (&mut px[r..r + N1], &mut py[r..r + N1], &mut pz[r..r + N1]);
-            row_soa([sx, sy, sz], r, [&mut *px, &mut *py, &mut *pz]);
+            row([sx, sy, sz], r, [&mut *px, &mut *py, &mut *pz]);
             for k in r..r + N1 {
                 let i = k - r;
                 let f = rhs([sx[k], sy[k], sz[k]], [px[i] + nx[k], py[i] + ny[k], pz[i] + nz[k]], G, AL);
@@ -365,7 +513,7 @@ fn step_soa(s: &Soa, pred: &mut Soa, noise: &Soa, next: &mut Soa) {
     let [ox, oy, oz] = next.get_mut();
     let (mut fx, mut fy, mut fz) = ([0.0; N1], [0.0; N1], [0.0; N1]);
     for r in (0..N).step_by(N1) {
-        row_soa([px, py, pz], r, [&mut fx, &mut fy, &mut fz]);
+        row([px, py, pz], r, [&mut fx, &mut fy, &mut fz]);
         for k in r..r + N1 {
             let i = k - r;
             let b = [fx[i] + nx[k], fy[i] + ny[k], fz[i] + nz[k]];
@@ -453,31 +601,70 @@ fn main() {
     let (mut pred, mut next) = (vec![[0.0; 3]; N], vec![[0.0; 3]; N]);
     let (mut spred, sn, mut snext) =
         (Soa::new(&spins, 2, true), Soa::new(&noise, 3, true), Soa::new(&spins, 4, true));
+    let (mut pred_g, mut next_g) = (vec![[0.0; 3]; N + 128], vec![[0.0; 3]; N + 128]);
+    let mut pred_s = vec![[0.0; 3]; N + 128];
+    // 4 KiB page offsets other than the spins' and the noise's.
+    let (pred_g, next_g) = (&mut pred_g[37..37 + N], &mut next_g[75..75 + N]);
+    let pred_s = &mut pred_s[37..37 + N];
+    let (mut spred_g, mut snext_g) = (Soa::new(&spins, 6, true), Soa::new(&spins, 7, true));
 
     let coef = Coef { j: J, e: [[0.0, -DX, 0.0], [DY, 0.0, 0.0]], d: [0.0, 0.0, K], b: [0.0, 0.0, B] };
-    println!("ns per site (best of the calls in a round); 128x128x8, one thread");
-    println!(
-        "round | field: aos  aos3  aos3 general  soa  soa same page offset  soa3 general | step: aos  aos consts  soa"
-    );
-    for round in 0..5 {
+    if std::env::args().nth(1).as_deref() == Some("halves") {
+        for _ in 0..3 {
+            let a = ns(50, || halves::<true>(row_aos, black_box(&spins), &mut pred, &noise, &mut next));
+            let b = ns(50, || halves::<false>(row_aos, black_box(&spins), &mut pred, &noise, &mut next));
+            let c = ns(50, || halves::<true>(row_aos3, black_box(&spins), &mut pred, &noise, &mut next));
+            let d = ns(50, || halves::<false>(row_aos3, black_box(&spins), &mut pred, &noise, &mut next));
+            println!("aos predictor {a:.2} corrector {b:.2}; aos3 predictor {c:.2} corrector {d:.2}");
+        }
+        return;
+    }
+    const FIELDS: [&str; 6] = ["aos", "aos3", "aos3 general", "soa", "soa same page offset", "soa3 general"];
+    const STEPS: [&str; 9] = [
+        "aos",
+        "aos consts",
+        "soa",
+        "aos3 general",
+        "aos3",
+        "aos3 predictor off the spins' page offset",
+        "soa3 general",
+        "aos3, predictor's field on the stack",
+        "aos3, flat on-site pass",
+    ];
+    println!("ns per site, best of the calls in a round; 128x128x8, one thread; {ROUNDS} rounds");
+    let mut rounds = Vec::new();
+    for _ in 0..ROUNDS {
         let f = [
             ns(50, || field_aos(black_box(&spins), &mut out)),
             ns(50, || field_aos3(black_box(&spins), &mut out3)),
+            ns(50, || field_aos3g(black_box(&spins), &mut out3g, black_box(&coef))),
             ns(50, || field_soa(black_box(&soa), &mut soa_out)),
             ns(50, || field_soa(black_box(&flat), &mut flat_out)),
-            ns(50, || field_aos3g(black_box(&spins), &mut out3g, black_box(&coef))),
             ns(50, || field_soa3g(black_box(&soa), &mut soa3g_out, black_box(&coef))),
         ];
         let s = [
             ns(20, || step_aos_const(black_box(&spins), &mut pred, &noise, &mut next)),
             ns(20, || step_aos_array(black_box(&spins), &mut pred, &noise, &mut next, &consts)),
             ns(20, || step_soa(black_box(&soa), &mut spred, &sn, &mut snext)),
+            ns(20, || step_aos3g(black_box(&spins), pred_g, &noise, next_g, black_box(&coef))),
+            ns(20, || step_aos3(black_box(&spins), &mut pred, &noise, &mut next)),
+            ns(20, || step_aos3(black_box(&spins), pred_s, &noise, &mut next)),
+            ns(20, || step_soa3g(black_box(&soa), &mut spred_g, &sn, &mut snext_g, black_box(&coef))),
+            ns(20, || step_aos3_stack(black_box(&spins), &mut pred, &noise, &mut next)),
+            ns(20, || step_aos3_flat(black_box(&spins), &mut pred, &noise, &mut next)),
         ];
-        println!(
-            "{round:5} | {:10.2} {:5.2} {:13.2} {:4.2} {:23.2} {:13.2} | {:9.2} {:11.2} {:4.2}",
-            f[0], f[1], f[4], f[2], f[3], f[5], s[0], s[1], s[2]
-        );
+        rounds.push((f, s));
     }
+    // On a shared machine the fastest round of each variant is the least disturbed.
+    let show = |kind: &str, names: &[&str], column: &dyn Fn(usize) -> Vec<f64>| {
+        for (k, name) in names.iter().enumerate() {
+            let mut t = column(k);
+            t.sort_by(f64::total_cmp);
+            println!("{kind} {name:42} fastest {:6.2}  median {:6.2}", t[0], t[t.len() / 2]);
+        }
+    };
+    show("field", &FIELDS, &|k| rounds.iter().map(|r| r.0[k]).collect());
+    show("step ", &STEPS, &|k| rounds.iter().map(|r| r.1[k]).collect());
     // The layouts compute the same numbers (up to the order of the sums).
     let [x, y, z] = soa_out.get();
     let field_diff =
@@ -489,6 +676,12 @@ fn main() {
         .map(|i| (0..3).map(|q| (out[i][q] - out3g[i][q]).abs()).fold(0.0, f64::max))
         .fold(0.0, f64::max);
     // The same operations in the same order on either layout: the same bits.
+    let [ux, uy, uz] = snext_g.get();
+    let steps_agree = (0..N).all(|i| {
+        next_g[i][0].to_bits() == ux[i].to_bits()
+            && next_g[i][1].to_bits() == uy[i].to_bits()
+            && next_g[i][2].to_bits() == uz[i].to_bits()
+    });
     let layouts_agree = (0..N).all(|i| {
         out3g[i][0].to_bits() == gx[i].to_bits()
             && out3g[i][1].to_bits() == gy[i].to_bits()
@@ -500,6 +693,7 @@ fn main() {
         .fold(0.0, f64::max);
     println!(
         "largest difference between layouts: field {field_diff:.1e} T, {three_diff:.1e} T, general \
-         {general_diff:.1e} T; step {step_diff:.1e}; aos3 general and soa3 general bitwise equal: {layouts_agree}"
+         {general_diff:.1e} T; step {step_diff:.1e}; aos3 general and soa3 general bitwise equal: field \
+         {layouts_agree}, step {steps_agree}"
     );
 }

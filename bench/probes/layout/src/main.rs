@@ -121,9 +121,10 @@ fn in_plane_then_z(o: &mut [V], zp: &[V], zm: &[V], j: f64, cell: impl Fn(usize,
     }
 }
 
-/// `row_aos` in three passes: in-plane pairs, then the out-of-plane pair, then on-site.
+/// The first two passes of `row_aos3` (in-plane pairs, then the out-of-plane pair) into
+/// `o`; returns the row's own spins.
 #[inline(always)]
-fn row_aos3(s: &[V], r: usize, o: &mut [V]) {
+fn aos3_pairs<'s>(s: &'s [V], r: usize, o: &mut [V]) -> &'s [V] {
     let (ym, yp, zm, zp) = neighbour_rows(r);
     let z = |at: Option<usize>| at.map_or(&ZERO_V[..], |at| &s[at..at + N1]);
     let (own, ym, yp, zm, zp) = (&s[r..r + N1], &s[ym..ym + N1], &s[yp..yp + N1], z(zm), z(zp));
@@ -139,6 +140,13 @@ fn row_aos3(s: &[V], r: usize, o: &mut [V]) {
         h[2] -= DY * (p[1] - m[1]);
         h
     });
+    own
+}
+
+/// `row_aos` in three passes: in-plane pairs, then the out-of-plane pair, then on-site.
+#[inline(always)]
+fn row_aos3(s: &[V], r: usize, o: &mut [V]) {
+    let own = aos3_pairs(s, r, o);
     for c in 0..N1 {
         o[c][2] += K * own[c][2] + B;
     }
@@ -149,21 +157,7 @@ fn row_aos3(s: &[V], r: usize, o: &mut [V]) {
 /// is stored in whole vectors rather than one z component at a time.
 #[inline(always)]
 fn row_aos3_flat(s: &[V], r: usize, o: &mut [V]) {
-    let (ym, yp, zm, zp) = neighbour_rows(r);
-    let z = |at: Option<usize>| at.map_or(&ZERO_V[..], |at| &s[at..at + N1]);
-    let (own, ym, yp, zm, zp) = (&s[r..r + N1], &s[ym..ym + N1], &s[yp..yp + N1], z(zm), z(zp));
-    in_plane_then_z(o, zp, zm, J, |c, up, down| {
-        let (a, b, p, m) = (own[up], own[down], yp[c], ym[c]);
-        let mut h = [0.0; 3];
-        for q in 0..3 {
-            h[q] = J * (a[q] + b[q]) + J * (p[q] + m[q]);
-        }
-        h[0] += DX * (a[2] - b[2]);
-        h[2] -= DX * (a[0] - b[0]);
-        h[1] += DY * (p[2] - m[2]);
-        h[2] -= DY * (p[1] - m[1]);
-        h
-    });
+    let own = aos3_pairs(s, r, o);
     let d: [f64; 24] = std::array::from_fn(|i| if i % 3 == 2 { K } else { 0.0 });
     let b: [f64; 24] = std::array::from_fn(|i| if i % 3 == 2 { B } else { 0.0 });
     let (o, own) = (o[..N1].as_flattened_mut(), own.as_flattened());
@@ -379,6 +373,20 @@ fn step_aos_in<const STACK: bool>(
     consts: Option<&[SiteConst]>,
 ) {
     let c = |k: usize| consts.map_or((G, AL), |c| (c[k].gamma, c[k].alpha));
+    predictor_aos::<STACK>(&row, s, pred, noise, c);
+    corrector_aos(&row, s, pred, noise, next, c);
+}
+
+/// The predictor's pass of [`step_aos_in`], site `k` of a row taking its constants from
+/// `c(k)`.
+#[inline(always)]
+fn predictor_aos<const STACK: bool>(
+    row: &impl Fn(&[V], usize, &mut [V]),
+    s: &[V],
+    pred: &mut [V],
+    noise: &[V],
+    c: impl Fn(usize) -> (f64, f64),
+) {
     let mut stack = [[0.0; 3]; N1];
     for r in (0..N).step_by(N1) {
         let p = &mut pred[r..r + N1];
@@ -396,6 +404,18 @@ fn step_aos_in<const STACK: bool>(
             p[k] = std::array::from_fn(|q| here[k][q] + DT * f[q]);
         }
     }
+}
+
+/// The corrector's pass of [`step_aos_in`].
+#[inline(always)]
+fn corrector_aos(
+    row: &impl Fn(&[V], usize, &mut [V]),
+    s: &[V],
+    pred: &[V],
+    noise: &[V],
+    next: &mut [V],
+    c: impl Fn(usize) -> (f64, f64),
+) {
     let mut field = [[0.0; 3]; N1];
     for r in (0..N).step_by(N1) {
         row(pred, r, &mut field);
@@ -445,27 +465,9 @@ fn halves<const PRED: bool>(
     next: &mut [V],
 ) {
     if PRED {
-        for r in (0..N).step_by(N1) {
-            let p = &mut pred[r..r + N1];
-            row(s, r, p);
-            let (nz, here) = (&noise[r..r + N1], &s[r..r + N1]);
-            for k in 0..N1 {
-                let b = std::array::from_fn(|q| p[k][q] + nz[k][q]);
-                let f = rhs(here[k], b, G, AL);
-                p[k] = std::array::from_fn(|q| here[k][q] + DT * f[q]);
-            }
-        }
+        predictor_aos::<false>(&row, s, pred, noise, |_| (G, AL));
     } else {
-        let mut field = [[0.0; 3]; N1];
-        for r in (0..N).step_by(N1) {
-            row(pred, r, &mut field);
-            let (nz, here, p, out) =
-                (&noise[r..r + N1], &s[r..r + N1], &pred[r..r + N1], &mut next[r..r + N1]);
-            for k in 0..N1 {
-                let b = std::array::from_fn(|q| field[k][q] + nz[k][q]);
-                out[k] = corrected(here[k], p[k], b, G, AL);
-            }
-        }
+        corrector_aos(&row, s, pred, noise, next, |_| (G, AL));
     }
 }
 

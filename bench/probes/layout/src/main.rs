@@ -344,23 +344,11 @@ struct SiteConst {
 /// `None`, the compiled-in ones.
 #[inline(always)]
 fn step_aos(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V], consts: Option<&[SiteConst]>) {
-    step_aos_with(row_aos, s, pred, noise, next, consts)
+    step_aos_in::<false>(row_aos, s, pred, noise, next, consts)
 }
 
-/// [`step_aos`] with the field of a row from `row`.
-#[inline(always)]
-fn step_aos_with(
-    row: impl Fn(&[V], usize, &mut [V]),
-    s: &[V],
-    pred: &mut [V],
-    noise: &[V],
-    next: &mut [V],
-    consts: Option<&[SiteConst]>,
-) {
-    step_aos_in::<false>(row, s, pred, noise, next, consts)
-}
-
-/// [`step_aos_with`], the predictor's field into a row on the stack when `STACK` (as the
+/// [`step_aos`] with the field of a row from `row`, the predictor's field into a row on
+/// the stack when `STACK` (as the
 /// corrector's always goes), else into the predictor's row, which the predictor then
 /// overwrites.
 #[inline(always)]
@@ -446,35 +434,19 @@ fn step_soa(s: &Soa, pred: &mut Soa, noise: &Soa, next: &mut Soa) {
 /// The step of `aos3 general`: its three passes and arithmetic, on 3-vectors.
 #[inline(never)]
 fn step_aos3g(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V], c: &Coef) {
-    step_aos_with(|s, r, o| row_aos3g(s, r, o, c), s, pred, noise, next, None)
+    step_aos_in::<false>(|s, r, o| row_aos3g(s, r, o, c), s, pred, noise, next, None)
 }
 
 /// The step of `aos3`: three passes with the couplings as constants, on 3-vectors.
 #[inline(never)]
 fn step_aos3(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V]) {
-    step_aos_with(row_aos3, s, pred, noise, next, None)
-}
-
-/// One half of [`step_aos_with`]: the predictor pass when `PRED`, else the corrector's.
-#[inline(never)]
-fn halves<const PRED: bool>(
-    row: impl Fn(&[V], usize, &mut [V]),
-    s: &[V],
-    pred: &mut [V],
-    noise: &[V],
-    next: &mut [V],
-) {
-    if PRED {
-        predictor_aos::<false>(&row, s, pred, noise, |_| (G, AL));
-    } else {
-        corrector_aos(&row, s, pred, noise, next, |_| (G, AL));
-    }
+    step_aos_in::<false>(row_aos3, s, pred, noise, next, None)
 }
 
 /// [`step_aos3`] with [`row_aos3_flat`].
 #[inline(never)]
 fn step_aos3_flat(s: &[V], pred: &mut [V], noise: &[V], next: &mut [V]) {
-    step_aos_with(row_aos3_flat, s, pred, noise, next, None)
+    step_aos_in::<false>(row_aos3_flat, s, pred, noise, next, None)
 }
 
 /// [`step_aos3`] with the predictor's field in a row on the stack.
@@ -613,11 +585,12 @@ fn main() {
     let coef = Coef { j: J, e: [[0.0, -DX, 0.0], [DY, 0.0, 0.0]], d: [0.0, 0.0, K], b: [0.0, 0.0, B] };
     if std::env::args().nth(1).as_deref() == Some("halves") {
         for _ in 0..3 {
-            let a = ns(50, || halves::<true>(row_aos, black_box(&spins), &mut pred, &noise, &mut next));
-            let b = ns(50, || halves::<false>(row_aos, black_box(&spins), &mut pred, &noise, &mut next));
-            let c = ns(50, || halves::<true>(row_aos3, black_box(&spins), &mut pred, &noise, &mut next));
-            let d = ns(50, || halves::<false>(row_aos3, black_box(&spins), &mut pred, &noise, &mut next));
-            println!("aos predictor {a:.2} corrector {b:.2}; aos3 predictor {c:.2} corrector {d:.2}");
+            let c = |_| (G, AL);
+            let a = ns(50, || predictor_aos::<false>(&row_aos, black_box(&spins), &mut pred, &noise, c));
+            let b = ns(50, || corrector_aos(&row_aos, black_box(&spins), &pred, &noise, &mut next, c));
+            let c3 = ns(50, || predictor_aos::<false>(&row_aos3, black_box(&spins), &mut pred, &noise, c));
+            let d = ns(50, || corrector_aos(&row_aos3, black_box(&spins), &pred, &noise, &mut next, c));
+            println!("aos predictor {a:.2} corrector {b:.2}; aos3 predictor {c3:.2} corrector {d:.2}");
         }
         return;
     }

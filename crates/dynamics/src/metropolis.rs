@@ -117,7 +117,7 @@ use crate::moment::{component_units, MomentTally};
 use crate::slabs::Slabs;
 use rayon::prelude::*;
 use spindrift_hamiltonian::constants::K_B;
-use spindrift_hamiltonian::{Hamiltonian, CHUNK};
+use spindrift_hamiltonian::{Hamiltonian, TrialScratch, CHUNK};
 use spindrift_lattice::{dot, Vec3};
 use spindrift_noise::{NoiseStream, STREAM_METROPOLIS};
 use std::ops::Range;
@@ -799,6 +799,8 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
     let mut units = [0.0; DRAWS];
     // Acceptance masks, all ones for an accepted move.
     let mut keep = [0u64; DRAWS];
+    // The energy kernel's sums, cleared once here rather than for every group.
+    let mut scratch = TrialScratch::default();
     for (g, sites) in sites.chunks(DRAWS).enumerate() {
         let n = sites.len();
         let (pick, accept) = (&mut pick[..n], &mut accept[..n]);
@@ -835,7 +837,7 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
             }
         }
         let (o, t) = (old.each_ref().map(|c| &c[..n]), trials.each_ref().map(|c| &c[..n]));
-        h.energy_changes_in(spins, origin, sites, o, t, de);
+        h.energy_changes_with(spins, origin, sites, o, t, de, &mut scratch);
         // `|` rather than `||`: the factor is computed for every site, so the loop has
         // no branch. A NaN change (a move of zero length) fails both tests.
         for k in 0..n {

@@ -23,6 +23,8 @@ use spindrift_lattice::{cross, dot, wrap_coordinate, BondList, Supercell, Vec3};
 
 mod trials;
 
+pub use trials::TrialScratch;
+
 /// Sites per parallel work item. Fixed, so that reductions add the same partial sums in
 /// the same order whatever the number of threads.
 pub const CHUNK: usize = 4096;

@@ -123,6 +123,21 @@ type Coords = [[u32; LANES]; 3];
 /// Pair fields of the sites of a block, component-major, T per unit spin.
 type Fields = [[f64; LANES]; 3];
 
+/// Scratch of [`Hamiltonian::energy_changes_with`]: the pair fields of a block of trials
+/// (1.5 KiB). It is zero between calls: the kernel adds each block's fields to zero sums
+/// and zeroes them as it reads them, so a caller that keeps one scratch for many blocks
+/// spares a `memset` of the sums per block of 64 trials (2% of a sweep's time in perf).
+#[derive(Debug, Clone)]
+pub struct TrialScratch {
+    h: Fields,
+}
+
+impl Default for TrialScratch {
+    fn default() -> Self {
+        Self { h: [[0.0; LANES]; 3] }
+    }
+}
+
 /// The spins of sites `origin .. origin + spins.len()` (see
 /// [`Hamiltonian::energy_changes_in`]); the kernel indexes it by site.
 #[derive(Clone, Copy)]
@@ -226,6 +241,24 @@ impl Hamiltonian {
         new: [&[f64]; 3],
         out: &mut [f64],
     ) {
+        self.energy_changes_with(window, origin, sites, old, new, out, &mut TrialScratch::default());
+    }
+
+    /// [`Hamiltonian::energy_changes_in`] with the kernel's scratch handed in: a caller
+    /// that decides many blocks of trials keeps one [`TrialScratch`] for all of them, so
+    /// that no call clears its sums (the same bits either way).
+    #[allow(clippy::too_many_arguments)]
+    #[inline(always)]
+    pub fn energy_changes_with(
+        &self,
+        window: &[Vec3],
+        origin: usize,
+        sites: &[u32],
+        old: [&[f64]; 3],
+        new: [&[f64]; 3],
+        out: &mut [f64],
+        scratch: &mut TrialScratch,
+    ) {
         let n = sites.len();
         assert!(
             old.iter().chain(&new).all(|c| c.len() == n) && out.len() == n,
@@ -243,7 +276,7 @@ impl Hamiltonian {
         for (b, (s, d)) in sites.chunks(LANES).zip(out.chunks_mut(LANES)).enumerate() {
             let block = b * LANES..b * LANES + s.len();
             let (o, t) = (old.map(|c| &c[block.clone()]), new.map(|c| &c[block.clone()]));
-            self.energy_changes_block_from(spins, s, o, t, d);
+            self.energy_changes_block_from(spins, s, o, t, d, &mut scratch.h);
         }
     }
 
@@ -257,6 +290,7 @@ impl Hamiltonian {
         old: [&[f64]; 3],
         new: [&[f64]; 3],
         out: &mut [f64],
+        h: &mut Fields,
     ) {
         let len = sites.len().min(LANES);
         let (sites, out) = (&sites[..len], &mut out[..len]);
@@ -293,16 +327,17 @@ impl Hamiltonian {
 
         for b in passes {
             let bu = b as usize;
-            // Phase 2: the pair field sum_j M_ij S_j, T per unit spin.
-            let mut h: Fields = [[0.0; LANES]; 3];
+            // Phase 2: the pair field sum_j M_ij S_j, T per unit spin, added to `h`, which
+            // is zero here (see `TrialScratch`).
+            debug_assert!(h.iter().all(|c| c.iter().all(|&x| x == 0.0)), "a zero scratch");
             let mut generic = [mixed; LANES];
             if !mixed {
-                self.add_bonds_by_runs(spins, sites, bu, &mut h, &mut generic);
+                self.add_bonds_by_runs(spins, sites, bu, h, &mut generic);
             }
             if generic[..len].iter().fold(false, |any, &g| any | g) {
                 let c = c.get_or_insert_with(coordinates);
                 for entry in &self.entries[bu] {
-                    with_kind!(entry.kind, K => self.add_entry::<K>(spins, bu, entry, c, &generic, &mut h, len));
+                    with_kind!(entry.kind, K => self.add_entry::<K>(spins, bu, entry, c, &generic, h, len));
                 }
             }
             // Phase 3: the energy change, as in `energy_change`.
@@ -314,8 +349,12 @@ impl Hamiltonian {
                 let p = dot(s, e);
                 -k_b * (p * p) - mu * dot(field, s)
             };
+            // Each sum is zeroed as it is read, which leaves the scratch zero for the next
+            // pass or call (a loop that reads what it clears is not turned into a `memset`).
+            let [h0, h1, h2] = &mut *h;
             for k in 0..len {
-                let hm = [h[0][k] * mu, h[1][k] * mu, h[2][k] * mu];
+                let hm = [h0[k] * mu, h1[k] * mu, h2[k] * mu];
+                (h0[k], h1[k], h2[k]) = (0.0, 0.0, 0.0);
                 let (s, t) = ([ox[k], oy[k], oz[k]], [nx[k], ny[k], nz[k]]);
                 let ds = [t[0] - s[0], t[1] - s[1], t[2] - s[2]];
                 let de = -dot(ds, hm) + onsite(t) - onsite(s);
@@ -626,7 +665,7 @@ mod tests {
     }
 
     // The block kernel must give the one-site energy change bit for bit, with or without the
-    // present spins handed in (the one-site change is checked
+    // present spins handed in and with a scratch kept from call to call (the one-site change is checked
     // against total energy differences in tests/hamiltonian.rs), whichever path a site takes:
     // strided runs of step 1 and 2 (all sites, every other site, one sublattice), runs cut by
     // row ends and periodic wraps, scattered and descending lists (per-site path), blocks
@@ -671,6 +710,20 @@ mod tests {
                     let e = h.energy_change(&spins, i as usize, *t);
                     assert_eq!(o.to_bits(), e.to_bits(), "{name} {cells:?} site {i}: {o} != {e}");
                 }
+                // One scratch kept over calls of 37 sites (blocks that split runs and
+                // basis sites; the kernel leaves the scratch zero), the same bits.
+                let mut scratch = TrialScratch::default();
+                let mut again = vec![f64::NAN; sites.len()];
+                for k0 in (0..sites.len()).step_by(37) {
+                    let r = k0..(k0 + 37).min(sites.len());
+                    let (o, t) = (parts(&o).map(|c| &c[r.clone()]), parts(&t).map(|c| &c[r.clone()]));
+                    h.energy_changes_with(&spins, 0, &sites[r.clone()], o, t, &mut again[r], &mut scratch);
+                }
+                assert_eq!(
+                    out.iter().map(|x| x.to_bits()).collect::<Vec<_>>(),
+                    again.iter().map(|x| x.to_bits()).collect::<Vec<_>>(),
+                    "{name} {cells:?} with a kept scratch"
+                );
             }
         }
     }

@@ -703,10 +703,6 @@ impl Hamiltonian {
         partial.iter().sum()
     }
 
-    fn energy_total_range(&self, spins: &[Vec3], start: usize, len: usize) -> f64 {
-        energy_total_kernel(self, spins, start, len)
-    }
-
     /// Walks sites `start .. start + len` in blocks of at most [`ENERGY_BLOCK`] sites, each
     /// within one row of cells, in order: `f(c23, row_start, lo, hi)` for the block
     /// `lo .. hi` of the row `(*, c2, c3)` that starts at site `row_start`.
@@ -725,15 +721,17 @@ impl Hamiltonian {
         }
     }
 
-    #[inline(always)]
-    fn energy_total_range_portable(&self, spins: &[Vec3], start: usize, len: usize) -> f64 {
+    /// The total energy of the sites `start .. start + len`. The bond fields go through
+    /// [`pair_field_block`], compiled per instruction-set level; the sums over the sites
+    /// are sequential, so the same on every level.
+    fn energy_total_range(&self, spins: &[Vec3], start: usize, len: usize) -> f64 {
         let nb = self.cell.basis_len();
         let rows = FlatRows::new(self, spins);
         let mut h = [[0.0; 3]; ENERGY_BLOCK];
         let mut total = 0.0;
         self.row_blocks(start, len, |c23, row_start, lo, hi| {
             let h = &mut h[..hi - lo];
-            self.field_row::<false, _>(&rows, c23, row_start, lo, h, (&self.fused, &self.entries));
+            pair_field_block(self, &rows, c23, row_start, lo, h, (&self.fused, &self.entries));
             let mut b = lo % nb;
             for (k, hk) in h.iter().enumerate() {
                 let s = spins[lo + k];
@@ -758,13 +756,14 @@ impl Hamiltonian {
         let partial: Vec<EnergyTerms> = spins
             .par_chunks(CHUNK)
             .enumerate()
-            .map(|(k, chunk)| energy_terms_kernel(self, spins, k * CHUNK, chunk.len()))
+            .map(|(k, chunk)| self.energy_terms_range(spins, k * CHUNK, chunk.len()))
             .collect();
         partial.iter().fold(EnergyTerms::default(), |acc, e| acc.add(e))
     }
 
-    #[inline(always)]
-    fn energy_terms_range_portable(&self, spins: &[Vec3], start: usize, len: usize) -> EnergyTerms {
+    /// The energy by term of the sites `start .. start + len`, with the bond fields of
+    /// each part through [`pair_field_block`] (see [`Hamiltonian::energy_total_range`]).
+    fn energy_terms_range(&self, spins: &[Vec3], start: usize, len: usize) -> EnergyTerms {
         let nb = self.cell.basis_len();
         let rows = FlatRows::new(self, spins);
         let [exchange, dmi] = &self.parts;
@@ -784,7 +783,7 @@ impl Hamiltonian {
             for (part, sum) in [(exchange, &mut e.exchange), (dmi, &mut e.dmi)] {
                 if !part.is_empty() {
                     let set = (part.fused.as_slice(), part.entries.as_slice());
-                    self.field_row::<false, _>(&rows, c23, row_start, lo, h, set);
+                    pair_field_block(self, &rows, c23, row_start, lo, h, set);
                     *sum += pair(h);
                 }
             }
@@ -858,16 +857,22 @@ spindrift_isa::multiversion! {
 }
 
 spindrift_isa::multiversion! {
-    /// The energy by term of a chunk, compiled per instruction-set level.
-    fn energy_terms_kernel(h: &Hamiltonian, spins: &[Vec3], start: usize, len: usize) -> EnergyTerms {
-        h.energy_terms_range_portable(spins, start, len)
-    }
-}
-
-spindrift_isa::multiversion! {
-    /// The total energy of a chunk, compiled per instruction-set level.
-    fn energy_total_kernel(h: &Hamiltonian, spins: &[Vec3], start: usize, len: usize) -> f64 {
-        h.energy_total_range_portable(spins, start, len)
+    /// The bond fields (no on-site terms) of the sites `lo .. lo + out.len()` of one row,
+    /// over the bond set `set`, for the energies: [`Hamiltonian::field_row`] compiled per
+    /// instruction-set level, called once per block of [`ENERGY_BLOCK`] sites. (The
+    /// energies' loops over blocks once sat inside per-level kernels, but as a closure
+    /// that the compiler left out of line, which compiles for the baseline level only;
+    /// dispatching here instead keeps one copy of the row kernel per level, as before.)
+    fn pair_field_block(
+        h: &Hamiltonian,
+        rows: &FlatRows<'_>,
+        c23: [usize; 2],
+        row_start: usize,
+        lo: usize,
+        out: &mut [Vec3],
+        set: (&[Vec<FusedBond>], &[Vec<Entry>])
+    ) {
+        h.field_row::<false, FlatRows<'_>>(rows, c23, row_start, lo, out, set)
     }
 }
 

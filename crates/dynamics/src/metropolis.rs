@@ -805,7 +805,7 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
         let n = sites.len();
         let (pick, accept) = (&mut pick[..n], &mut accept[..n]);
         let (de, units, keep) = (&mut de[..n], &mut units[..n], &mut keep[..n]);
-        stream.fill_trial_at(step, sites, kick.each_mut().map(|c| &mut c[..n]), pick, accept);
+        stream.fill_trial_at_in(step, sites, kick.each_mut().map(|c| &mut c[..n]), pick, accept);
         let (spins, origin) = (to.spins(), to.origin());
         let stretch = pair_stretch(sites, origin, spins.len());
         {

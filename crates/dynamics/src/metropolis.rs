@@ -837,7 +837,7 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
             }
         }
         let (o, t) = (old.each_ref().map(|c| &c[..n]), trials.each_ref().map(|c| &c[..n]));
-        h.energy_changes_with(spins, origin, sites, o, t, de, &mut scratch);
+        h.energy_changes_in(spins, origin, sites, o, t, de, &mut scratch);
         // `|` rather than `||`: the factor is computed for every site, so the loop has
         // no branch. A NaN change (a move of zero length) fails both tests.
         for k in 0..n {

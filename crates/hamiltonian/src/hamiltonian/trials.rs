@@ -123,7 +123,7 @@ type Coords = [[u32; LANES]; 3];
 /// Pair fields of the sites of a block, component-major, T per unit spin.
 type Fields = [[f64; LANES]; 3];
 
-/// Scratch of [`Hamiltonian::energy_changes_with`]: the pair fields of a block of trials
+/// Scratch of [`Hamiltonian::energy_changes_in`]: the pair fields of a block of trials
 /// (1.5 KiB). It is zero between calls: the kernel adds each block's fields to zero sums
 /// and zeroes them as it reads them, so a caller that keeps one scratch for many blocks
 /// spares a `memset` of the sums per block of 64 trials (2% of a sweep's time in perf).
@@ -222,34 +222,21 @@ impl Hamiltonian {
         new: [&[f64]; 3],
         out: &mut [f64],
     ) {
-        self.energy_changes_in(spins, 0, sites, old, new, out);
+        self.energy_changes_in(spins, 0, sites, old, new, out, &mut TrialScratch::default());
     }
 
     /// [`Hamiltonian::energy_changes_from`] given a window of the spins: `window[j]` is the
     /// spin of site `origin + j`. Every neighbour that a bond of a listed site reaches
     /// must lie in the window (sites and results are as for the whole array); this lets
     /// a thread decide the trials of its own part of the lattice while it writes that part,
-    /// without a view of the spins other threads write. Panics if the four lengths differ
-    /// or a site or a neighbour lies outside the window; `old` is not checked.
-    #[inline(always)]
-    pub fn energy_changes_in(
-        &self,
-        window: &[Vec3],
-        origin: usize,
-        sites: &[u32],
-        old: [&[f64]; 3],
-        new: [&[f64]; 3],
-        out: &mut [f64],
-    ) {
-        self.energy_changes_with(window, origin, sites, old, new, out, &mut TrialScratch::default());
-    }
-
-    /// [`Hamiltonian::energy_changes_in`] with the kernel's scratch handed in: a caller
-    /// that decides many blocks of trials keeps one [`TrialScratch`] for all of them, so
-    /// that no call clears its sums (the same bits either way).
+    /// without a view of the spins other threads write. The kernel's sums live in
+    /// `scratch`, which a caller deciding many blocks of trials keeps for all of them, so
+    /// that no call clears them (the same bits with a new scratch). Panics if the four
+    /// lengths differ or a site or a neighbour lies outside the window; `old` is not
+    /// checked.
     #[allow(clippy::too_many_arguments)]
     #[inline(always)]
-    pub fn energy_changes_with(
+    pub fn energy_changes_in(
         &self,
         window: &[Vec3],
         origin: usize,
@@ -717,7 +704,7 @@ mod tests {
                 for k0 in (0..sites.len()).step_by(37) {
                     let r = k0..(k0 + 37).min(sites.len());
                     let (o, t) = (parts(&o).map(|c| &c[r.clone()]), parts(&t).map(|c| &c[r.clone()]));
-                    h.energy_changes_with(&spins, 0, &sites[r.clone()], o, t, &mut again[r], &mut scratch);
+                    h.energy_changes_in(&spins, 0, &sites[r.clone()], o, t, &mut again[r], &mut scratch);
                 }
                 assert_eq!(
                     out.iter().map(|x| x.to_bits()).collect::<Vec<_>>(),
@@ -759,7 +746,15 @@ mod tests {
                 let (o, t) = (split(&old), split(&new));
                 let (mut whole, mut part) = (vec![f64::NAN; sites.len()], vec![f64::NAN; sites.len()]);
                 h.energy_changes_from(&spins, &sites, parts(&o), parts(&t), &mut whole);
-                h.energy_changes_in(window, 2 * layer, &sites, parts(&o), parts(&t), &mut part);
+                h.energy_changes_in(
+                    window,
+                    2 * layer,
+                    &sites,
+                    parts(&o),
+                    parts(&t),
+                    &mut part,
+                    &mut TrialScratch::default(),
+                );
                 for ((&i, a), b) in sites.iter().zip(&whole).zip(&part) {
                     assert_eq!(a.to_bits(), b.to_bits(), "{name} site {i}");
                 }
@@ -785,7 +780,15 @@ mod tests {
             let (o, t) = (split(&old), split(&new));
             let mut out = vec![0.0; sites.len()];
             let call = std::panic::AssertUnwindSafe(|| {
-                h.energy_changes_in(window, 3 * layer, &sites, parts(&o), parts(&t), &mut out)
+                h.energy_changes_in(
+                    window,
+                    3 * layer,
+                    &sites,
+                    parts(&o),
+                    parts(&t),
+                    &mut out,
+                    &mut TrialScratch::default(),
+                )
             });
             assert!(std::panic::catch_unwind(call).is_err(), "sites {sites:?}");
         }

@@ -470,6 +470,15 @@ impl Hamiltonian {
             return;
         }
         let far = self.side(&bonds[entry.opposite], run);
+        if let (Some(js), Some(jt)) = (near.whole(run.len), far.whole(run.len)) {
+            // Both sides one stretch over the whole run (no cut, no wrap), as for the bonds
+            // of a checkerboard class that do not run along a1: the one segment the cuts
+            // below would find, without sorting them.
+            add_strided_pair::<D>(window, spins.at(js), spins.at(jt), h, run.k0, run.len, |s, t| {
+                entry_term::<KIND>(&s, &t, m, j, e)
+            });
+            return;
+        }
         let mut cuts = [0, near.lo, near.split, near.hi, far.lo, far.split, far.hi, run.len];
         cuts.sort_unstable();
         for w in cuts.windows(2) {
@@ -555,6 +564,13 @@ struct Side {
 }
 
 impl Side {
+    /// The neighbour's index of the run's first site when every site of the run (`len` of
+    /// them) has a neighbour and their indices step alike throughout (no wrap).
+    #[inline(always)]
+    fn whole(&self, len: usize) -> Option<usize> {
+        (self.lo == 0 && self.split == len && self.hi == len).then(|| self.at(0)).flatten()
+    }
+
     /// The neighbour's index of site `k` of the run, if it has one.
     #[inline(always)]
     fn at(&self, k: usize) -> Option<usize> {

@@ -126,7 +126,8 @@ type Fields = [[f64; LANES]; 3];
 /// Scratch of [`Hamiltonian::energy_changes_in`]: the pair fields of a block of trials
 /// (1.5 KiB). It is zero between calls: the kernel adds each block's fields to zero sums
 /// and zeroes them as it reads them, so a caller that keeps one scratch for many blocks
-/// spares a `memset` of the sums per block of 64 trials (2% of a sweep's time in perf).
+/// spares a `memset` of the sums per block of 64 trials (which had 2% of a sweep's perf
+/// samples).
 #[derive(Debug, Clone)]
 pub struct TrialScratch {
     h: Fields,
@@ -234,6 +235,8 @@ impl Hamiltonian {
     /// that no call clears them (the same bits with a new scratch). Panics if the four
     /// lengths differ or a site or a neighbour lies outside the window; `old` is not
     /// checked.
+    // Eight arguments: the window and its origin, the trials (sites, old and new spins), the
+    // output and the scratch; a struct for them would only be unpacked again here.
     #[allow(clippy::too_many_arguments)]
     #[inline(always)]
     pub fn energy_changes_in(
@@ -668,8 +671,9 @@ mod tests {
     }
 
     // The block kernel must give the one-site energy change bit for bit, with or without the
-    // present spins handed in and with a scratch kept from call to call (the one-site change is checked
-    // against total energy differences in tests/hamiltonian.rs), whichever path a site takes:
+    // present spins handed in and with a scratch kept from call to call (the one-site change
+    // is checked against total energy differences in tests/hamiltonian.rs), whichever path a
+    // site takes:
     // strided runs of step 1 and 2 (all sites, every other site, one sublattice), runs cut by
     // row ends and periodic wraps, scattered and descending lists (per-site path), blocks
     // mixing basis sites; on every boundary combination, bases of one to four sites,

@@ -831,9 +831,14 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
             let [ox, oy, oz] = old.each_ref().map(|c| &c[..n]);
             let [kx, ky, kz] = kick.each_ref().map(|c| &c[..n]);
             let [tx, ty, tz] = trials.each_mut().map(|c| &mut c[..n]);
-            for k in 0..n {
-                let (s, g) = ([ox[k], oy[k], oz[k]], [kx[k], ky[k], kz[k]]);
-                [tx[k], ty[k], tz[k]] = trial_spin(s, pick[k], g, sigma);
+            // Zipped slices, not indices: indexed, the compiler ran the last eight trials of
+            // every group (a whole vector) through a scalar copy of the loop, one square root
+            // and division at a time.
+            let olds = ox.iter().zip(oy).zip(oz);
+            let kicks = kx.iter().zip(ky).zip(kz).zip(pick.iter());
+            let outs = tx.iter_mut().zip(ty.iter_mut()).zip(tz.iter_mut());
+            for (((tx, ty), tz), (((ox, oy), oz), (((kx, ky), kz), pick))) in outs.zip(olds.zip(kicks)) {
+                [*tx, *ty, *tz] = trial_spin([*ox, *oy, *oz], *pick, [*kx, *ky, *kz], sigma);
             }
         }
         let (o, t) = (old.each_ref().map(|c| &c[..n]), trials.each_ref().map(|c| &c[..n]));

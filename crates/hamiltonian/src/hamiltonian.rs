@@ -946,6 +946,19 @@ const FLAT_LEN: usize = 3 * 64;
 /// on-site constants and a whole number of vectors at every level.
 const GROUP: usize = 3 * 8;
 
+/// One period ([`GROUP`] numbers) of flat on-site constants `c`, built from its first three
+/// numbers so that the compiler knows the values repeat (see [`RowPass::pairs_and_onsite`]).
+/// A function, not a closure, so that it is inlined into the per-level kernels.
+#[inline(always)]
+fn period(c: &[f64; FLAT_LEN]) -> [f64; GROUP] {
+    let c3 = [c[0], c[1], c[2]];
+    let mut p = [0.0; GROUP];
+    for (l, x) in p.iter_mut().enumerate() {
+        *x = c3[l % 3];
+    }
+    p
+}
+
 /// The on-site constants of one basis site as flat rows, for the pass over a row of
 /// cells when the lattice has one basis site (consecutive sites, so consecutive numbers)
 /// and [`OnSite::diagonal`] holds: `d[3 k + a] = k_field e_a e_a` and `b[3 k + a] = B_a`.
@@ -1165,14 +1178,6 @@ impl RowPass<'_> {
         // 0.971 with AVX2, where the build against itself gave 0.964 and 1.005. With more
         // pairs AVX2 runs out of registers (three pairs spilled to the stack and took 1.11
         // and 1.13 times as long), so there the constants stay in memory.
-        let period = |c: &[f64; FLAT_LEN]| {
-            let c3 = [c[0], c[1], c[2]];
-            let mut p = [0.0; GROUP];
-            for (l, x) in p.iter_mut().enumerate() {
-                *x = c3[l % 3];
-            }
-            p
-        };
         let local = if K == 1 { (period(&flat.d), period(&flat.b)) } else { ([0.0; GROUP], [0.0; GROUP]) };
         let (d, b): (&[f64], &[f64]) = if K == 1 { (&local.0, &local.1) } else { (&flat.d, &flat.b) };
         let (inner_lo, inner_hi) = self.inner(pack);

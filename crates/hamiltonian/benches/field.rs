@@ -4,7 +4,9 @@
 //! bond (the reference), by term and in total through the row kernel; then the fused
 //! kernel on as many sites in rows of 32, 128 and 2048 cells, which shows what each row's
 //! set-up and end cells cost, and in one layer of rows of 128 (a monolayer: no bonds
-//! between layers, the on-site terms in a pass of their own).
+//! between layers, the on-site terms in a pass of their own); then lattices with two sites
+//! per cell (bcc 64 x 64 x 16 and honeycomb 128 x 128 x 4, as many sites, one shell, with
+//! and without DMI), whose rows hold the two sites interleaved.
 //! Single-threaded (`field_range` over the whole array) so the figures are per core;
 //! criterion reports elements (sites) per second. Seeded spins, set-up outside the timing.
 
@@ -98,6 +100,40 @@ fn bench(c: &mut Criterion) {
         });
     }
     group.finish();
+
+    // Lattices with two sites per cell (the rows' sites interleaved), with and without
+    // DMI: 131072 sites as above.
+    let mut group = c.benchmark_group("field, two sites per cell, 131072 sites");
+    group.sample_size(20);
+    for (lattice, cells, dmi) in [
+        ("bcc", [64, 64, 16], true),
+        ("bcc", [64, 64, 16], false),
+        ("honeycomb", [128, 128, 4], false),
+        ("honeycomb", [128, 128, 4], true),
+    ] {
+        let h = system_on(lattice, cells, dmi);
+        let spins = random_spins(h.len());
+        let mut out = vec![[0.0; 3]; h.len()];
+        group.throughput(Throughput::Elements(h.len() as u64));
+        let what = if dmi { "exchange and DMI" } else { "exchange only" };
+        group.bench_function(format!("{lattice} {}x{}x{}, {what}", cells[0], cells[1], cells[2]), |b| {
+            b.iter(|| h.field_range(black_box(&spins), 0, &mut out))
+        });
+    }
+    group.finish();
+}
+
+/// One shell of exchange (and interfacial DMI, normal z, when `dmi`) on `lattice`, periodic
+/// in-plane and open along z.
+fn system_on(lattice: &str, cells: [usize; 3], dmi: bool) -> Hamiltonian {
+    let cell = Supercell::new(preset(lattice, 3.0, None).unwrap(), cells, [true, true, false], 0).unwrap();
+    let mut bonds = BondList::new(cell.basis_len());
+    let dmi = dmi.then_some((1.0, DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] }));
+    let spec = ShellCoupling { shell: ShellRef::Index(1), j: 5.0, dmi, pair: None };
+    add_shell(&cell, &mut bonds, &spec).unwrap();
+    let species =
+        vec![Species { name: "M".into(), moment: 2.0, damping: 0.1, anisotropy: 0.2, axis: [0.0, 0.0, 1.0] }];
+    Hamiltonian::new(cell, species, bonds, [0.0, 0.0, 1.0]).unwrap()
 }
 
 criterion_group!(benches, bench);

@@ -26,9 +26,14 @@ fn system(shells: usize, cells: [usize; 3]) -> Hamiltonian {
 
 /// [`system`], with DMI on the first shell or without.
 fn system_with(shells: usize, cells: [usize; 3], with_dmi: bool) -> Hamiltonian {
-    let cell =
-        Supercell::new(preset("simple-cubic", 3.0, None).unwrap(), cells, [true, true, false], 0).unwrap();
-    let mut bonds = BondList::new(1);
+    lattice_system("simple-cubic", shells, cells, with_dmi)
+}
+
+/// Exchange on the first `shells` shells (J = 5 meV / shell), interfacial DMI (normal z)
+/// on the first when `with_dmi`, on `lattice` with `cells` (periodic in-plane, open along z).
+fn lattice_system(lattice: &str, shells: usize, cells: [usize; 3], with_dmi: bool) -> Hamiltonian {
+    let cell = Supercell::new(preset(lattice, 3.0, None).unwrap(), cells, [true, true, false], 0).unwrap();
+    let mut bonds = BondList::new(cell.basis_len());
     for shell in 1..=shells {
         let dmi = (with_dmi && shell == 1).then_some((1.0, DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] }));
         let spec = ShellCoupling { shell: ShellRef::Index(shell), j: 5.0 / shell as f64, dmi, pair: None };
@@ -111,7 +116,7 @@ fn bench(c: &mut Criterion) {
         ("honeycomb", [128, 128, 4], false),
         ("honeycomb", [128, 128, 4], true),
     ] {
-        let h = system_on(lattice, cells, dmi);
+        let h = lattice_system(lattice, 1, cells, dmi);
         let spins = random_spins(h.len());
         let mut out = vec![[0.0; 3]; h.len()];
         group.throughput(Throughput::Elements(h.len() as u64));
@@ -121,19 +126,6 @@ fn bench(c: &mut Criterion) {
         });
     }
     group.finish();
-}
-
-/// One shell of exchange (and interfacial DMI, normal z, when `dmi`) on `lattice`, periodic
-/// in-plane and open along z.
-fn system_on(lattice: &str, cells: [usize; 3], dmi: bool) -> Hamiltonian {
-    let cell = Supercell::new(preset(lattice, 3.0, None).unwrap(), cells, [true, true, false], 0).unwrap();
-    let mut bonds = BondList::new(cell.basis_len());
-    let dmi = dmi.then_some((1.0, DmiKind::Interfacial { normal: [0.0, 0.0, 1.0] }));
-    let spec = ShellCoupling { shell: ShellRef::Index(1), j: 5.0, dmi, pair: None };
-    add_shell(&cell, &mut bonds, &spec).unwrap();
-    let species =
-        vec![Species { name: "M".into(), moment: 2.0, damping: 0.1, anisotropy: 0.2, axis: [0.0, 0.0, 1.0] }];
-    Hamiltonian::new(cell, species, bonds, [0.0, 0.0, 1.0]).unwrap()
 }
 
 criterion_group!(benches, bench);

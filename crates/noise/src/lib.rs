@@ -226,15 +226,20 @@ impl NoiseStream {
             *g = self.dense_site(step, first_site + k as u64, scale);
         }
         let mut site = first_site + head as u64;
+        // A group's words and single-precision parts, made once per call: zeroing them per
+        // group cost two calls of `memset` each time (the compiler does not see that the
+        // loops overwrite them), and each call made the loop reload its constants into the
+        // vector registers, which a call clobbers.
+        let mut w = [[0u32; DENSE_BLOCKS]; 4];
+        let mut r = [[0f32; DENSE_BLOCKS]; 2];
+        let mut cs = [[0f32; DENSE_BLOCKS]; 4];
         // Groups of DENSE_SITES sites: 3/4 as many blocks, whose deviates are the group's
         // components in order.
         let mut groups = rest.chunks_exact_mut(DENSE_SITES);
         for group in &mut groups {
-            let w = self.words_lanes::<DENSE_BLOCKS>(step, site / 4 * 3);
+            self.words_lanes::<DENSE_BLOCKS>(step, site / 4 * 3, &mut w);
             // The single-precision parts in loops of their own, so that they run on twice as
             // many lanes per vector as the double-precision products after them.
-            let mut r = [[0f32; DENSE_BLOCKS]; 2];
-            let mut cs = [[0f32; DENSE_BLOCKS]; 4];
             for j in 0..DENSE_BLOCKS {
                 r[0][j] = box_muller_radius(w[0][j]);
                 r[1][j] = box_muller_radius(w[2][j]);
@@ -277,11 +282,10 @@ impl NoiseStream {
         w
     }
 
-    /// Philox words of `L` consecutive sites, as four word arrays (word-major), so that
-    /// the transforms after it run as plain loops over lanes.
+    /// Philox words of `L` consecutive sites into `w`, as four word arrays (word-major), so
+    /// that the transforms after it run as plain loops over lanes.
     #[inline(always)]
-    fn words_lanes<const L: usize>(&self, step: u64, first_site: u64) -> [[u32; L]; 4] {
-        let mut w = [[0u32; L]; 4];
+    fn words_lanes<const L: usize>(&self, step: u64, first_site: u64, w: &mut [[u32; L]; 4]) {
         // Whole independent Philox evaluations per lane: the compiler vectorises this loop
         // across lanes. Interleaving the rounds of all lanes by hand ran out of registers
         // and measured three times slower.
@@ -291,7 +295,6 @@ impl NoiseStream {
                 w[i][j] = v[i];
             }
         }
-        w
     }
 }
 

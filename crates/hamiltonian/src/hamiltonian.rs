@@ -80,6 +80,8 @@ pub enum HamiltonianError {
 struct FusedBond {
     to: usize,
     offset: [i32; 3],
+    /// Cartesian bond vector, Å: what finds each bond's opposite (see [`Entry`]).
+    vector: Vec3,
     /// Linear index difference to the neighbour when no boundary is crossed.
     delta: isize,
     /// How the offset moves a cell coordinate along each axis of this supercell (for the
@@ -100,14 +102,16 @@ struct FusedBond {
 /// One term of a site's bond sum in the row kernel (see `Hamiltonian::field_row`): a
 /// single bond, or a bond and its opposite taken together.
 ///
-/// A bond to `offset` whose matrix is `M = j 1 + A` (isotropic exchange plus DMI: `A`
-/// antisymmetric) and a bond to the same basis site at `-offset` whose matrix is `M^T =
-/// j 1 - A`, as translation symmetry gives every same-sublattice pair, add
+/// A bond whose matrix is `M = j 1 + A` (isotropic exchange plus DMI: `A` antisymmetric)
+/// and its opposite, the bond to the same basis site along the negated bond vector, whose
+/// matrix is `M^T = j 1 - A` (the coupling seen from the other end, as in every
+/// centrosymmetric arrangement: for a same-sublattice pair the cell offset negated, for
+/// one between sublattices, as in bcc or fcc, another offset), add
 /// `M s+ + M^T s- = j (s+ + s-) + A (s+ - s-)` to the sum: with `A` written as the vector
 /// `e = (A_yz, A_zx, A_xy)`, 9 to 15 products and sums per pair of bonds instead of 12 to
 /// 18 per bond (the same sum, grouped otherwise, so its last bits differ from the
-/// bond-by-bond sum). Bonds with an anisotropic tensor, and bonds without an opposite,
-/// stay single.
+/// bond-by-bond sum). Bonds with an anisotropic tensor, and bonds without an opposite
+/// (a honeycomb layer's first shell), stay single.
 #[derive(Debug, Clone, Copy)]
 struct Entry {
     /// [`MATRIX`], [`IN_PLANE`] or [`ISO`] for a single bond; [`PAIR`], [`PAIR_PLANAR`] or
@@ -144,11 +148,13 @@ fn entries_of(fused: &[FusedBond]) -> Vec<Entry> {
             continue;
         }
         used[p] = true;
-        let negated = bond.offset.map(|o| -o);
         let opposite = split(&bond.m).and_then(|je| {
             let q = (p + 1..fused.len()).find(|&q| {
                 let other = &fused[q];
-                !used[q] && other.to == bond.to && other.offset == negated && other.m == transpose(&bond.m)
+                !used[q]
+                    && other.to == bond.to
+                    && opposite_vectors(&bond.vector, &other.vector)
+                    && other.m == transpose(&bond.m)
             })?;
             Some((q, je))
         });
@@ -178,6 +184,14 @@ fn entries_of(fused: &[FusedBond]) -> Vec<Entry> {
     }
     entries.sort_by_key(|e| e.kind);
     entries
+}
+
+/// Whether the bond vectors `a` and `b` (Å) are opposite: `a + b = 0` up to the rounding
+/// of the lattice's positions (1e-9 of the bond's length), which may leave the two ends of
+/// a pair between sublattices a few units in the last place apart.
+fn opposite_vectors(a: &Vec3, b: &Vec3) -> bool {
+    let sum = [a[0] + b[0], a[1] + b[1], a[2] + b[2]];
+    dot(sum, sum) <= 1e-18 * dot(*a, *a)
 }
 
 /// A bond set in the form the row kernel reads: per basis site, the compiled bonds and
@@ -285,7 +299,11 @@ impl Hamiltonian {
         let k_field: Vec<f64> = (0..nb).map(|b| 2.0 * k[b] / mu_mev[b]).collect();
         let (cells, periodic) = (cell.cells(), cell.periodic());
         let [n1, n2, _] = cells;
-        let fuse = |b: usize, to: usize, o: [i32; 3], j: f64, d: Vec3, tensor: Option<[Vec3; 3]>| {
+        let fuse = |b: usize,
+                    (to, o, vector): (usize, [i32; 3], Vec3),
+                    j: f64,
+                    d: Vec3,
+                    tensor: Option<[Vec3; 3]>| {
             let delta = ((o[2] as isize * n2 as isize + o[1] as isize) * n1 as isize + o[0] as isize)
                 * nb as isize
                 + to as isize
@@ -307,7 +325,7 @@ impl Hamiltonian {
             let diagonal = (0..3).all(|p| (0..3).all(|q| p == q || m[p][q] == 0.0));
             let iso = (diagonal && m[1][1] == m[0][0] && m[2][2] == m[0][0]).then_some(m[0][0]);
             let steps = std::array::from_fn(|a| trials::AxisStep::new(o[a], cells[a], periodic[a]));
-            FusedBond { to, offset: o, delta, steps, m, iso, j, d, tensor }
+            FusedBond { to, offset: o, vector, delta, steps, m, iso, j, d, tensor }
         };
         // Matrix bonds before isotropic ones (otherwise in list order): the row kernel
         // applies runs of one kind together, so fewer runs mean fewer passes.
@@ -319,7 +337,7 @@ impl Hamiltonian {
             .map(|b| {
                 let all = bonds.from_basis(b).iter().map(|x| {
                     let c = &x.coupling;
-                    fuse(b, x.to, x.offset, c.j, c.d, c.tensor)
+                    fuse(b, (x.to, x.offset, x.vector), c.j, c.d, c.tensor)
                 });
                 sorted(all.collect())
             })
@@ -332,7 +350,9 @@ impl Hamiltonian {
                 .enumerate()
                 .map(|(b, f)| {
                     let kept = f.iter().filter(|x| x.j != 0.0 || x.tensor.is_some());
-                    sorted(kept.map(|x| fuse(b, x.to, x.offset, x.j, [0.0; 3], x.tensor)).collect())
+                    sorted(
+                        kept.map(|x| fuse(b, (x.to, x.offset, x.vector), x.j, [0.0; 3], x.tensor)).collect(),
+                    )
                 })
                 .collect(),
         );
@@ -342,7 +362,7 @@ impl Hamiltonian {
                 .enumerate()
                 .map(|(b, f)| {
                     let kept = f.iter().filter(|x| x.d != [0.0; 3]);
-                    sorted(kept.map(|x| fuse(b, x.to, x.offset, 0.0, x.d, None)).collect())
+                    sorted(kept.map(|x| fuse(b, (x.to, x.offset, x.vector), 0.0, x.d, None)).collect())
                 })
                 .collect(),
         );
@@ -1084,7 +1104,9 @@ impl RowPass<'_> {
                     let o = &mut out[k0 + k * nb];
                     let mut h = if FRESH { [0.0; 3] } else { *o };
                     for p in 0..K {
-                        let (s, t) = (&pack[p].row[j0[p] + k * nb], &pack[p].row2[j1[p] + k * nb]);
+                        let s = &pack[p].row[j0[p] + k * nb];
+                        // A single bond has no second row: no index (and no bounds check).
+                        let t = if is_pair(KIND) { &pack[p].row2[j1[p] + k * nb] } else { s };
                         add_entry::<KIND>(&mut h, s, t, &m[p], j[p], &e[p]);
                     }
                     *o = h;
@@ -1491,8 +1513,9 @@ mod tests {
         [r * phi.cos(), r * phi.sin(), z]
     }
 
-    // Same-sublattice bonds pair up with their opposites (translation symmetry gives
-    // `M_ji = M_ij^T`, common practice); tensor bonds and bonds between sublattices stay
+    // Bonds pair up with their opposites along the negated bond vector (the coupling seen
+    // from the other end is `M^T`, common practice), within a sublattice and between
+    // sublattices (bcc); tensor bonds and bonds without an opposite (honeycomb) stay
     // single. Fails if the pairing finds nothing (the kernel would then run bond by bond).
     #[test]
     fn opposite_bonds_pair_up() {
@@ -1510,9 +1533,21 @@ mod tests {
         // pairs remain.
         let h = test_system("simple-cubic", [4, 4, 4], [true; 3], 1, 1.0, c(0.0, true));
         assert_eq!(kinds(&h, 0), vec![MATRIX, MATRIX, PAIR_ISO, PAIR_ISO]);
-        // Honeycomb: every first-shell bond joins the two sublattices, so none pairs.
+        // Honeycomb: a first-shell bond has no bond along its negated vector, so none pairs.
         let h = test_system("honeycomb", [4, 4, 1], [true, true, false], 1, 1.0, c(0.0, false));
         assert!(kinds(&h, 0).iter().all(|&k| !is_pair(k)));
+        // bcc: the eight first-shell bonds join the two sublattices at eight cell offsets,
+        // (0,0,0) opposite (-1,-1,-1) and so on: four pairs per site, with interfacial DMI
+        // (normal z) planar ones.
+        for b in 0..2 {
+            let h = test_system("bcc", [4, 4, 4], [true; 3], 1, 1.0, c(0.7, false));
+            assert_eq!(kinds(&h, b), vec![PAIR_PLANAR; 4], "basis site {b}");
+            for entry in &h.entries[b] {
+                let (x, y) = (&h.fused[b][entry.bond], &h.fused[b][entry.opposite]);
+                assert_eq!(x.to, y.to);
+                assert!((0..3).all(|a| x.vector[a] == -y.vector[a]), "{:?} {:?}", x.vector, y.vector);
+            }
+        }
     }
 
     // The row kernel must reproduce the per-site sum bit for bit (common practice for a

@@ -1538,14 +1538,16 @@ mod tests {
         assert!(kinds(&h, 0).iter().all(|&k| !is_pair(k)));
         // bcc: the eight first-shell bonds join the two sublattices at eight cell offsets,
         // (0,0,0) opposite (-1,-1,-1) and so on: four pairs per site, with interfacial DMI
-        // (normal z) planar ones.
-        for b in 0..2 {
-            let h = test_system("bcc", [4, 4, 4], [true; 3], 1, 1.0, c(0.7, false));
-            assert_eq!(kinds(&h, b), vec![PAIR_PLANAR; 4], "basis site {b}");
-            for entry in &h.entries[b] {
-                let (x, y) = (&h.fused[b][entry.bond], &h.fused[b][entry.opposite]);
-                assert_eq!(x.to, y.to);
-                assert!((0..3).all(|a| x.vector[a] == -y.vector[a]), "{:?} {:?}", x.vector, y.vector);
+        // (normal z) planar ones; fcc (four sites per cubic cell): twelve bonds, six pairs.
+        for (name, sites, pairs) in [("bcc", 2, 4), ("fcc", 4, 6)] {
+            let h = test_system(name, [4, 4, 4], [true; 3], 1, 1.0, c(0.7, false));
+            for b in 0..sites {
+                assert_eq!(kinds(&h, b), vec![PAIR_PLANAR; pairs], "{name} basis site {b}");
+                for entry in &h.entries[b] {
+                    let (x, y) = (&h.fused[b][entry.bond], &h.fused[b][entry.opposite]);
+                    assert_eq!(x.to, y.to);
+                    assert!((0..3).all(|a| x.vector[a] == -y.vector[a]), "{:?} {:?}", x.vector, y.vector);
+                }
             }
         }
     }

@@ -982,6 +982,7 @@ fn period(c: &[f64; FLAT_LEN]) -> [f64; GROUP] {
 /// The on-site constants of one basis site as flat rows, for the pass over a row of
 /// cells when the lattice has one basis site (consecutive sites, so consecutive numbers)
 /// and [`OnSite::diagonal`] holds: `d[3 k + a] = k_field e_a e_a` and `b[3 k + a] = B_a`.
+/// With several basis sites their first three numbers serve the per-site form.
 #[derive(Debug, Clone)]
 struct FlatOnSite {
     d: [f64; FLAT_LEN],
@@ -1280,9 +1281,24 @@ impl RowPass<'_> {
                 }
             }
         } else {
+            // One cell's sites at a time, the site of this basis site first.
             let nb = self.nb as usize;
-            for k in 0..len {
-                onsite.add(&mut out[k0 + k * nb], &self.own[(self.first as usize + k) * nb]);
+            let sums = out[k0..].chunks_mut(nb).take(len);
+            let spins = self.own[self.first as usize * nb..].chunks(nb);
+            if let Some(flat) = flat {
+                // The Cartesian axis's form, `(h_a + d_a s_a) + B_a` per component: the same
+                // bits, without the dot product.
+                let (d, b) = ([flat.d[0], flat.d[1], flat.d[2]], [flat.b[0], flat.b[1], flat.b[2]]);
+                for (o, s) in sums.zip(spins) {
+                    let (o, s) = (&mut o[0], &s[0]);
+                    for a in 0..3 {
+                        o[a] = o[a] + d[a] * s[a] + b[a];
+                    }
+                }
+            } else {
+                for (o, s) in sums.zip(spins) {
+                    onsite.add(&mut o[0], &s[0]);
+                }
             }
         }
     }

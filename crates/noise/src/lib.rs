@@ -289,10 +289,26 @@ impl NoiseStream {
         // Whole independent Philox evaluations per lane: the compiler vectorises this loop
         // across lanes. Interleaving the rounds of all lanes by hand ran out of registers
         // and measured three times slower.
-        for j in 0..L {
-            let v = self.words(step, first_site.wrapping_add(j as u64));
-            for i in 0..4 {
-                w[i][j] = v[i];
+        let [lo, hi, s0, s1] = counter(step, first_site);
+        if lo.checked_add(L as u32 - 1).is_some() {
+            // No lane carries into the site's high word, so that word is one value for the
+            // whole group, and the compiler sees it: besides the first round's product of
+            // the step's low word (the same in every lane anyway), the word that round makes
+            // from the high word, the step and the key, the second round's product of it and
+            // the exclusive-ors around them are computed once per group instead of once per
+            // lane. The same words (the bulk test covers groups with and without a carry).
+            for j in 0..L {
+                let v = philox4x32_10([lo + j as u32, hi, s0, s1], self.key);
+                for i in 0..4 {
+                    w[i][j] = v[i];
+                }
+            }
+        } else {
+            for j in 0..L {
+                let v = self.words(step, first_site.wrapping_add(j as u64));
+                for i in 0..4 {
+                    w[i][j] = v[i];
+                }
             }
         }
     }

@@ -303,12 +303,16 @@ fn components_sites_and_steps_are_uncorrelated() {
 
 // The dense layout's bulk fill against its per-site call, bit for bit, for every offset of
 // the first site within a group of four, lengths around the group sizes, and first sites
-// that carry into the high counter word or make the call wrap around 2^64; with scale 1
-// (the public per-site values) and another scale, which multiplies each radius.
+// whose Philox blocks (three per four sites, the block index in the counter's site words)
+// carry into the high counter word within a group of 48 blocks (5726623032: block
+// 2^32 - 22) or have a nonzero high word without a carry (5 2^32), or that make the call
+// wrap around 2^64; with scale 1 (the public per-site values) and another scale, which
+// multiplies each radius.
 #[test]
 fn dense_bulk_fill_equals_per_site_calls_bit_for_bit() {
     let s = NoiseStream::new(7, STREAM_LLG_THERMAL);
-    for &first in &[0u64, 1, 2, 3, 5, (1 << 32) - 3, u64::MAX - 40, u64::MAX - 4] {
+    let carry = (((1u64 << 32) - 22) / 3) * 4;
+    for &first in &[0u64, 1, 2, 3, 5, (1 << 32) - 3, carry, carry + 2, 5 << 32, u64::MAX - 40, u64::MAX - 4] {
         for len in [0usize, 1, 3, 4, 5, 31, 32, 33, 35, 64, 100, 1001] {
             for scale in [1.0, 0.37] {
                 let mut g = vec![[f64::NAN; 3]; len];

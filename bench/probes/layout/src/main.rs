@@ -18,6 +18,15 @@
 //!   from one another within a 4 KiB page; `soa same page offset` allocates them plainly,
 //!   so that they share their page offset, as separate large allocations do.
 //!
+//! * `aos3 packed (run-time shape)` and `soa3 packed (run-time shape)`: `aos3 general` built
+//!   the way the row kernel is: a pack of the two in-plane pairs over the cells whose a1
+//!   neighbours stay in the row, the row's length and the a1 offsets known only at run
+//!   time and each entry's rows sliced to the pass's cells (`PackAos`, `PackSoa`,
+//!   `pass_aos`, `pass_soa`), the two end cells one by one, then the out-of-plane pair and
+//!   the on-site terms as passes of their own; on 3-vectors and on component arrays (the
+//!   same bits as each other and as `aos3 general`, checked), which tells whether the
+//!   layout's gain survives a kernel whose shape is a run-time value.
+//!
 //! The step adds `aos consts`: the AoS step reading the damping and gyromagnetic factor
 //! per site from an array of (gamma, alpha, sigma) as `SiteConst`, instead of constants;
 //! `aos3`, `aos3 general` and `soa3 general`: the step around those fields (the last two
@@ -536,6 +545,153 @@ fn field_soa3g(s: &Soa, out: &mut Soa, c: &Coef) {
     }
 }
 
+/// `j (s + t) + A (s - t)` added to `h`, the row kernel's pair with `e_z = 0`.
+#[inline(always)]
+fn pair_add(h: &mut V, s: &V, t: &V, j: f64, e: &V) {
+    let g = [s[0] + t[0], s[1] + t[1], s[2] + t[2]];
+    let d = [s[0] - t[0], s[1] - t[1], s[2] - t[2]];
+    h[0] += j * g[0] - e[1] * d[2];
+    h[1] += j * g[1] + e[0] * d[2];
+    h[2] += j * g[2] + (e[1] * d[0] - e[0] * d[1]);
+}
+
+/// One entry of a pack as the row kernel holds it: the two sides' rows already sliced to
+/// the pass's cells (3-vectors), and the coefficients read at run time.
+struct PackAos<'a> {
+    s: &'a [V],
+    t: &'a [V],
+    j: f64,
+    e: V,
+}
+
+/// The same on component arrays.
+struct PackSoa<'a> {
+    s: [&'a [f64]; 3],
+    t: [&'a [f64]; 3],
+    j: f64,
+    e: V,
+}
+
+/// One pass of a pack of `K` entries over cells whose count and offsets are run-time
+/// values, as the row kernel's `RowPass::pack` goes for one basis site.
+#[inline(always)]
+fn pass_aos<const K: usize>(o: &mut [V], pack: &[PackAos; K], fresh: bool) {
+    for (k, oc) in o.iter_mut().enumerate() {
+        let mut h = if fresh { [0.0; 3] } else { *oc };
+        for e in pack {
+            pair_add(&mut h, &e.s[k], &e.t[k], e.j, &e.e);
+        }
+        *oc = h;
+    }
+}
+
+#[inline(always)]
+fn pass_soa<const K: usize>(o: [&mut [f64]; 3], pack: &[PackSoa; K], fresh: bool) {
+    let [ox, oy, oz] = o;
+    let len = ox.len();
+    let (oy, oz) = (&mut oy[..len], &mut oz[..len]);
+    for k in 0..len {
+        let mut h = if fresh { [0.0; 3] } else { [ox[k], oy[k], oz[k]] };
+        for e in pack {
+            let s = [e.s[0][k], e.s[1][k], e.s[2][k]];
+            let t = [e.t[0][k], e.t[1][k], e.t[2][k]];
+            pair_add(&mut h, &s, &t, e.j, &e.e);
+        }
+        ox[k] = h[0];
+        oy[k] = h[1];
+        oz[k] = h[2];
+    }
+}
+
+/// Run-time shape of the packed variants: cells per row and the a1 offsets of the
+/// in-plane pair along a1 (`black_box`ed, so the compiler knows none of them).
+#[derive(Clone, Copy)]
+struct Shape {
+    n1: usize,
+    up: usize,
+    dn: usize,
+}
+
+/// `aos3 general` as the row kernel is built: a pack of the two in-plane pairs over the
+/// cells whose a1 neighbours stay in the row (slices cut at run time), the two end cells
+/// one by one, then the out-of-plane pair and the on-site terms as passes of their own.
+#[inline(never)]
+fn field_aos3p(s: &[V], out: &mut [V], c: &Coef, sh: Shape) {
+    let n1 = sh.n1;
+    for r in (0..N).step_by(n1) {
+        let (ym, yp, zm, zp) = neighbour_rows(r);
+        let z = |at: Option<usize>| at.map_or(&ZERO_V[..], |at| &s[at..at + n1]);
+        let (own, ymr, ypr, zmr, zpr) = (&s[r..r + n1], &s[ym..ym + n1], &s[yp..yp + n1], z(zm), z(zp));
+        let o = &mut out[r..r + n1];
+        let (lo, hi) = (sh.dn, n1 - sh.up);
+        let len = hi - lo;
+        let pack = [
+            PackAos {
+                s: &own[lo + sh.up..lo + sh.up + len],
+                t: &own[lo - sh.dn..lo - sh.dn + len],
+                j: c.j,
+                e: c.e[0],
+            },
+            PackAos { s: &ypr[lo..lo + len], t: &ymr[lo..lo + len], j: c.j, e: c.e[1] },
+        ];
+        pass_aos(&mut o[lo..hi], &pack, true);
+        for (cc, up, dn) in [(0, 1, n1 - 1), (n1 - 1, 0, n1 - 2)] {
+            let mut h = [0.0; 3];
+            pair_add(&mut h, &own[up], &own[dn], c.j, &c.e[0]);
+            pair_add(&mut h, &ypr[cc], &ymr[cc], c.j, &c.e[1]);
+            o[cc] = h;
+        }
+        let zpack = [PackAos { s: zpr, t: zmr, j: c.j, e: [0.0; 3] }];
+        pass_aos(o, &zpack, false);
+        for (oc, sc) in o.iter_mut().zip(own) {
+            for q in 0..3 {
+                oc[q] = oc[q] + c.d[q] * sc[q] + c.b[q];
+            }
+        }
+    }
+}
+
+/// `field_aos3p` on component arrays: the same passes, slices and arithmetic.
+#[inline(never)]
+fn field_soa3p(s: &Soa, out: &mut Soa, c: &Coef, sh: Shape) {
+    let n1 = sh.n1;
+    let s = s.get();
+    let [ox, oy, oz] = out.get_mut();
+    for r in (0..N).step_by(n1) {
+        let (ym, yp, zm, zp) = neighbour_rows(r);
+        let row = |at: usize| -> [&[f64]; 3] { std::array::from_fn(|q| &s[q][at..at + n1]) };
+        let zrow = |at: Option<usize>| -> [&[f64]; 3] {
+            std::array::from_fn(|q| at.map_or(&ZERO_F[..], |at| &s[q][at..at + n1]))
+        };
+        let (own, ymr, ypr, zmr, zpr) = (row(r), row(ym), row(yp), zrow(zm), zrow(zp));
+        let (ox, oy, oz) = (&mut ox[r..r + n1], &mut oy[r..r + n1], &mut oz[r..r + n1]);
+        let (lo, hi) = (sh.dn, n1 - sh.up);
+        let len = hi - lo;
+        fn cut(a: [&[f64]; 3], from: usize, len: usize) -> [&[f64]; 3] {
+            a.map(|x| &x[from..from + len])
+        }
+        let pack = [
+            PackSoa { s: cut(own, lo + sh.up, len), t: cut(own, lo - sh.dn, len), j: c.j, e: c.e[0] },
+            PackSoa { s: cut(ypr, lo, len), t: cut(ymr, lo, len), j: c.j, e: c.e[1] },
+        ];
+        pass_soa([&mut ox[lo..hi], &mut oy[lo..hi], &mut oz[lo..hi]], &pack, true);
+        let at = |a: [&[f64]; 3], k: usize| -> V { [a[0][k], a[1][k], a[2][k]] };
+        for (cc, up, dn) in [(0, 1, n1 - 1), (n1 - 1, 0, n1 - 2)] {
+            let mut h = [0.0; 3];
+            pair_add(&mut h, &at(own, up), &at(own, dn), c.j, &c.e[0]);
+            pair_add(&mut h, &at(ypr, cc), &at(ymr, cc), c.j, &c.e[1]);
+            (ox[cc], oy[cc], oz[cc]) = (h[0], h[1], h[2]);
+        }
+        let zpack = [PackSoa { s: zpr, t: zmr, j: c.j, e: [0.0; 3] }];
+        pass_soa([&mut *ox, &mut *oy, &mut *oz], &zpack, false);
+        for (q, o) in [ox, oy, oz].into_iter().enumerate() {
+            for (o, sc) in o.iter_mut().zip(own[q]) {
+                *o = *o + c.d[q] * sc + c.b[q];
+            }
+        }
+    }
+}
+
 /// Nanoseconds per site of `f`, the best of `reps` calls.
 fn ns(reps: usize, mut f: impl FnMut()) -> f64 {
     (0..reps)
@@ -594,7 +750,19 @@ fn main() {
         }
         return;
     }
-    const FIELDS: [&str; 6] = ["aos", "aos3", "aos3 general", "soa", "soa same page offset", "soa3 general"];
+    const FIELDS: [&str; 8] = [
+        "aos",
+        "aos3",
+        "aos3 general",
+        "soa",
+        "soa same page offset",
+        "soa3 general",
+        "aos3 packed (run-time shape)",
+        "soa3 packed (run-time shape)",
+    ];
+    let shape = black_box(Shape { n1: N1, up: 1, dn: 1 });
+    let mut out3p = vec![[0.0; 3]; N];
+    let mut soa3p_out = Soa::new(&spins, 6, true);
     const STEPS: [&str; 9] = [
         "aos",
         "aos consts",
@@ -616,6 +784,8 @@ fn main() {
             ns(50, || field_soa(black_box(&soa), &mut soa_out)),
             ns(50, || field_soa(black_box(&flat), &mut flat_out)),
             ns(50, || field_soa3g(black_box(&soa), &mut soa3g_out, black_box(&coef))),
+            ns(50, || field_aos3p(black_box(&spins), &mut out3p, black_box(&coef), shape)),
+            ns(50, || field_soa3p(black_box(&soa), &mut soa3p_out, black_box(&coef), shape)),
         ];
         let s = [
             ns(20, || step_aos_const(black_box(&spins), &mut pred, &noise, &mut next)),
@@ -662,6 +832,16 @@ fn main() {
             && out3g[i][1].to_bits() == gy[i].to_bits()
             && out3g[i][2].to_bits() == gz[i].to_bits()
     });
+    let [px, py, pz] = soa3p_out.get();
+    let packed_agree = (0..N).all(|i| {
+        out3p[i][0].to_bits() == px[i].to_bits()
+            && out3p[i][1].to_bits() == py[i].to_bits()
+            && out3p[i][2].to_bits() == pz[i].to_bits()
+    });
+    let packed_diff = (0..N)
+        .map(|i| (0..3).map(|q| (out3g[i][q] - out3p[i][q]).abs()).fold(0.0, f64::max))
+        .fold(0.0, f64::max);
+    println!("packed: aos3 and soa3 bitwise equal {packed_agree}; largest difference from aos3 general {packed_diff:.1e} T");
     let [x, y, z] = snext.get();
     let step_diff = (0..N)
         .map(|i| (next[i][0] - x[i]).abs().max((next[i][1] - y[i]).abs()).max((next[i][2] - z[i]).abs()))

@@ -185,18 +185,10 @@ fn row_aos3g(s: &[V], r: usize, o: &mut [V], c: &Coef) {
     let (ym, yp, zm, zp) = neighbour_rows(r);
     let z = |at: Option<usize>| at.map_or(&ZERO_V[..], |at| &s[at..at + N1]);
     let (own, ym, yp, zm, zp) = (&s[r..r + N1], &s[ym..ym + N1], &s[yp..yp + N1], z(zm), z(zp));
-    let pair = |h: &mut V, s: &V, t: &V, j: f64, e: &V| {
-        let g = [s[0] + t[0], s[1] + t[1], s[2] + t[2]];
-        let d = [s[0] - t[0], s[1] - t[1], s[2] - t[2]];
-        let a = [j * g[0] - e[1] * d[2], j * g[1] + e[0] * d[2], j * g[2] + (e[1] * d[0] - e[0] * d[1])];
-        h[0] += a[0];
-        h[1] += a[1];
-        h[2] += a[2];
-    };
     in_plane_then_z(o, zp, zm, c.j, |cc, up, down| {
         let mut h = [0.0; 3];
-        pair(&mut h, &own[up], &own[down], c.j, &c.e[0]);
-        pair(&mut h, &yp[cc], &ym[cc], c.j, &c.e[1]);
+        pair_add(&mut h, &own[up], &own[down], c.j, &c.e[0]);
+        pair_add(&mut h, &yp[cc], &ym[cc], c.j, &c.e[1]);
         h
     });
     for cc in 0..N1 {
@@ -291,20 +283,14 @@ fn row_soa3g(s: [&[f64]; 3], r: usize, o: [&mut [f64]; 3], c: &Coef) {
     let (own, ymr, ypr, zmr, zpr) = (row(r), row(ym), row(yp), zrow(zm), zrow(zp));
     let [ox, oy, oz] = o;
     let (ox, oy, oz) = (&mut ox[..N1], &mut oy[..N1], &mut oz[..N1]);
-    let pair = |s: V, t: V, e: &V| -> V {
-        let g = [s[0] + t[0], s[1] + t[1], s[2] + t[2]];
-        let d = [s[0] - t[0], s[1] - t[1], s[2] - t[2]];
-        [c.j * g[0] - e[1] * d[2], c.j * g[1] + e[0] * d[2], c.j * g[2] + (e[1] * d[0] - e[0] * d[1])]
-    };
     let at = |r: [&[f64]; 3], k: usize| -> V { [r[0][k], r[1][k], r[2][k]] };
     macro_rules! cell {
         ($c:expr, $up:expr, $dn:expr) => {{
             let (cc, up, dn) = ($c, $up, $dn);
-            let a = pair(at(own, up), at(own, dn), &c.e[0]);
-            let b = pair(at(ypr, cc), at(ymr, cc), &c.e[1]);
-            ox[cc] = 0.0 + a[0] + b[0];
-            oy[cc] = 0.0 + a[1] + b[1];
-            oz[cc] = 0.0 + a[2] + b[2];
+            let mut h = [0.0; 3];
+            pair_add(&mut h, &at(own, up), &at(own, dn), c.j, &c.e[0]);
+            pair_add(&mut h, &at(ypr, cc), &at(ymr, cc), c.j, &c.e[1]);
+            (ox[cc], oy[cc], oz[cc]) = (h[0], h[1], h[2]);
         }};
     }
     cell!(0, 1, N1 - 1);

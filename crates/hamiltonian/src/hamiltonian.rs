@@ -1215,6 +1215,11 @@ impl RowPass<'_> {
                 }
             }
         }
+        // A piece of a row with fewer cells than the bonds reach along it has no inner
+        // cells, and its neighbours' offsets below could then fall outside the rows.
+        if inner_lo >= inner_hi {
+            return;
+        }
         let lo = inner_lo as usize;
         let len = (inner_hi - inner_lo) as usize;
         let k0 = (inner_lo + self.shift) as usize;
@@ -1610,6 +1615,9 @@ mod tests {
             ("simple-cubic", [21, 3, 3], [true, true, false], 3),
             ("simple-cubic", [19, 2, 2], [false, true, true], 2),
             ("simple-cubic", [150, 2, 2], [true, false, true], 1),
+            // Four shells reach two cells along the row: the ranges that start or end one
+            // cell from a row's end leave pieces with no inner cell.
+            ("simple-cubic", [21, 3, 3], [true, true, false], 4),
             ("triangular", [17, 3, 2], [true, true, false], 2),
             ("fcc", [17, 2, 2], [true, false, true], 3),
             ("bcc", [9, 2, 2], [true, true, true], 2),

@@ -126,52 +126,6 @@ fn bench(c: &mut Criterion) {
         });
     }
     group.finish();
-
-    // The same sums on spins kept as three component arrays (`field_range_components`)
-    // against 3-vectors, sc 128x128x8 with and without DMI and in rows of 2048 cells: the arrays start at different
-    // offsets within a 4 KiB page (a common offset makes a store to one array and a load
-    // from another alias; see DEVELOPERS.md, Heun step).
-    let mut group = c.benchmark_group("field by layout, sc, 131072 sites");
-    group.sample_size(20);
-    for (cells, dmi) in [([128, 128, 8], true), ([128, 128, 8], false), ([2048, 8, 8], true)] {
-        let h = system_with(1, cells, dmi);
-        let n = h.len();
-        let spins = random_spins(n);
-        let mut out = vec![[0.0; 3]; n];
-        let what = format!(
-            "{}x{}x{}, {}",
-            cells[0],
-            cells[1],
-            cells[2],
-            if dmi { "exchange and DMI" } else { "exchange only" }
-        );
-        group.throughput(Throughput::Elements(n as u64));
-        group.bench_function(format!("3-vectors, {what}"), |b| {
-            b.iter(|| h.field_range(black_box(&spins), 0, &mut out))
-        });
-        let spread = |k: usize| [8 * k + 1, 8 * k + 37, 8 * k + 75];
-        let arrays = |k: usize, fill: &dyn Fn(usize, usize) -> f64| -> [Vec<f64>; 3] {
-            std::array::from_fn(|a| {
-                let mut v = vec![0.0; n + 128];
-                for i in 0..n {
-                    v[spread(k)[a] + i] = fill(i, a);
-                }
-                v
-            })
-        };
-        let s = arrays(0, &|i, a| spins[i][a]);
-        let mut o = arrays(6, &|_, _| 0.0);
-        let (si, oi) = (spread(0), spread(6));
-        group.bench_function(format!("component arrays, {what}"), |b| {
-            b.iter(|| {
-                let sc = [&s[0][si[0]..si[0] + n], &s[1][si[1]..si[1] + n], &s[2][si[2]..si[2] + n]];
-                let [x, y, z] = &mut o;
-                let oc = [&mut x[oi[0]..oi[0] + n], &mut y[oi[1]..oi[1] + n], &mut z[oi[2]..oi[2] + n]];
-                h.field_range_components(black_box(sc), 0, oc)
-            })
-        });
-    }
-    group.finish();
 }
 
 criterion_group!(benches, bench);

@@ -21,7 +21,6 @@ use crate::zeeman::Zeeman;
 use rayon::prelude::*;
 use spindrift_lattice::{cross, dot, wrap_coordinate, BondList, Supercell, Vec3};
 
-mod components;
 mod trials;
 
 pub use trials::TrialScratch;
@@ -1420,20 +1419,12 @@ fn neighbour_row<'r, R: SpinRows>(
     periodic: [bool; 3],
     bond: &FusedBond,
 ) -> Option<&'r [Vec3]> {
-    let [c2, c3] = neighbour_offsets(c23, cells, periodic, bond)?;
-    Some(&rows.row(c2, c3)[bond.to..])
-}
-
-/// The row of cells `(c2, c3)` that `bond` reaches from the row `c23`, or none where an
-/// open face cuts it.
-#[inline(always)]
-fn neighbour_offsets(c23: [usize; 2], cells: [usize; 3], periodic: [bool; 3], bond: &FusedBond) -> Option<[usize; 2]> {
     let mut t = [0usize; 2];
     for k in 0..2 {
         let x = c23[k] as i64 + bond.offset[k + 1] as i64;
         t[k] = wrap_coordinate(x, cells[k + 1] as i64, periodic[k + 1])? as usize;
     }
-    Some(t)
+    Some(&rows.row(t[0], t[1])[bond.to..])
 }
 
 #[cfg(test)]

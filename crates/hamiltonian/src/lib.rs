@@ -33,7 +33,7 @@ pub use dmi::{bulk_vector, interfacial_vector, Dmi};
 pub use energy::EnergyTerms;
 pub use exchange::Exchange;
 pub use hamiltonian::{Hamiltonian, HamiltonianError, TrialScratch, CHUNK};
-pub use rows::{ComponentRows, FlatComponents, FlatRows, SpinRows};
+pub use rows::{FlatRows, SpinRows};
 pub use species::Species;
 pub use term::Term;
 pub use zeeman::Zeeman;

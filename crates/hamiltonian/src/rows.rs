@@ -42,39 +42,3 @@ impl SpinRows for FlatRows<'_> {
         &self.spins[start..start + self.row_len]
     }
 }
-
-/// The spins of whole rows of cells as three arrays of components (x, y, z), for kernels
-/// that keep the spins so: loops over component arrays vectorise without regrouping
-/// 3-vectors into vector registers (see `Hamiltonian::field_range_components`).
-pub trait ComponentRows {
-    /// The x, y and z components of the `n1 * nb` spins of the row of cells `(*, c2, c3)`,
-    /// in site order.
-    fn row(&self, c2: usize, c3: usize) -> [&[f64]; 3];
-}
-
-/// Every site's spin as three component arrays in site order.
-#[derive(Debug, Clone, Copy)]
-pub struct FlatComponents<'a> {
-    spins: [&'a [f64]; 3],
-    /// Sites per row, `n1 * nb`.
-    row_len: usize,
-    /// Rows per plane, `n2`.
-    n2: usize,
-}
-
-impl<'a> FlatComponents<'a> {
-    /// The rows of `spins` (x, y and z, one number per site of `h`'s supercell each).
-    pub fn new(h: &Hamiltonian, spins: [&'a [f64]; 3]) -> Self {
-        let [n1, n2, _] = h.cell().cells();
-        Self { spins, row_len: n1 * h.cell().basis_len(), n2 }
-    }
-}
-
-impl ComponentRows for FlatComponents<'_> {
-    #[inline(always)]
-    fn row(&self, c2: usize, c3: usize) -> [&[f64]; 3] {
-        let start = (c3 * self.n2 + c2) * self.row_len;
-        let end = start + self.row_len;
-        [&self.spins[0][start..end], &self.spins[1][start..end], &self.spins[2][start..end]]
-    }
-}

@@ -1578,10 +1578,15 @@ mod tests {
     // combination, several bases and shells, dilution, boxes of one and two cells, rows
     // long enough for the vector path, and ranges that start and end inside rows.
     /// `field_range` over several ranges (whole, from the second site, from a site within
-    /// the first row, a middle third, the last site) equals `expected` bit for bit.
+    /// the first row, a middle third, the last site, and one and two sites from every site
+    /// of the first two rows, so that pieces of rows shorter than the bonds' reach along
+    /// them start and end at every cell) equals `expected` bit for bit.
     fn assert_ranges_bitwise(h: &Hamiltonian, spins: &[Vec3], expected: &[Vec3], label: &str) {
         let n = h.len();
-        for (start, len) in [(0, n), (1, n - 1), (3, n / 2), (n / 3, n / 3 + 1), (n - 1, 1)] {
+        let row = h.cell().cells()[0] * h.cell().basis_len();
+        let short = (0..(2 * row).min(n)).flat_map(|start| [(start, 1), (start, 2.min(n - start))]);
+        let ranges = [(0, n), (1, n - 1), (3, n / 2), (n / 3, n / 3 + 1), (n - 1, 1)];
+        for (start, len) in ranges.into_iter().chain(short) {
             let mut out = vec![[f64::NAN; 3]; len];
             h.field_range(spins, start, &mut out);
             for (k, o) in out.iter().enumerate() {

@@ -73,6 +73,14 @@ fn bad_input_is_reported_with_exit_code_2() {
         (good.replace("cells = [8, 8, 1]", "cells = [100000, 100000, 1000]"), "memory"),
         (good.replace("duration = 0.01", "duration = \"10 mT\""), "stage.0.duration"),
         (good.replace("duration = 0.01", "duration = 0.01\ndt = \"1 ps\""), "recommended"),
+        // An LLG scan of 6 steps sampled every 10 (the default) would have no samples.
+        (
+            good.replace(
+                "kind = \"evolve\"\nduration = 0.01",
+                "kind = \"temperature-scan\"\nmethod = \"llg\"\ntemperatures = [10]\nmeasure = 6",
+            ),
+            "c11.toml:15: stage.0.measure: 6 steps sampled every 10",
+        ),
         (good.replace("[[stage]]", "[[bond_table]]\npath = \"table.dat\"\n[[stage]]"), "table.dat"),
     ];
     std::fs::write(dir.join("table.dat"), "0 0 1 0 0 1.0\n0 0 0 1 x 1.0\n").unwrap();

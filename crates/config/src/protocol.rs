@@ -351,6 +351,21 @@ pub fn build(
         if observe_every == 0 {
             return Err(loaded.error_at(&format!("{key}.observe_every"), "must be at least 1"));
         }
+        // An LLG scan samples every `observe_every` steps of its `measure` steps (Monte
+        // Carlo samples every sweep), so the pair must give the averages two samples;
+        // caught here rather than after the first point's equilibration.
+        if let StageKind::TemperatureScan { method: ScanMethod::Llg, measure, .. } = &kind {
+            if measure / observe_every < 2 {
+                return Err(loaded.error_at(
+                    &format!("{key}.measure"),
+                    format!(
+                        "{measure} steps sampled every {observe_every} (`observe_every`) give {} samples; \
+                         an LLG scan needs at least 2 per temperature for averages and errors",
+                        measure / observe_every
+                    ),
+                ));
+            }
+        }
         stages.push(Stage {
             kind,
             temperature,

@@ -54,6 +54,51 @@ fn bond_table_in_mry_gives_the_expected_couplings() {
     let mf = j0 / (3.0 * 8.617333262e-2);
     let got = v["curie_mean_field"].as_f64().unwrap();
     assert!((got - mf).abs() < 1e-9 * mf, "{got} vs {mf}");
+    assert_eq!(v["warnings"].as_array().map(Vec::len), Some(0), "{}", v["warnings"]);
+}
+
+/// The same bulk table on a film one cell thick (the two layers of bcc's conventional
+/// cell): the rows that cross the open faces are left out with a warning, not refused, so
+/// one table serves the bulk and films. Each site keeps 4 of its 8 first and 4 of its 6
+/// second neighbours, so the mean-field estimate is the in-plane coupling sum over 3 kB
+/// (classical mean field, common practice; both sites alike, so the largest eigenvalue of
+/// the coupling matrix is that sum).
+#[test]
+fn bulk_bond_table_on_a_film_leaves_out_the_cut_rows() {
+    for periodic in ["[true,true,false]", "[true,true,true]"] {
+        let o = spindrift(&[
+            "check",
+            "tests/configs/table.toml",
+            "--json",
+            "--set",
+            "lattice.cells=[6,6,1]",
+            "--set",
+            &format!("lattice.periodic={periodic}"),
+        ]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+        let j0 = (4.0 * 1.2 + 4.0 * 0.3) * 13.605693122994;
+        let mf = j0 / (3.0 * 8.617333262e-2);
+        let got = v["curie_mean_field"].as_f64().unwrap();
+        assert!((got - mf).abs() < 1e-9 * mf, "{periodic}: {got} vs {mf}");
+        let w = v["warnings"].to_string();
+        assert!(w.contains("bond_table.0: 6 of the 14 rows") && w.contains("line 6"), "{periodic}: {w}");
+    }
+    // An explicit interlayer bond on a monolayer: left out the same way.
+    let dir = temp_dir("cut-bond");
+    let p = write_config(
+        &dir,
+        "c.toml",
+        "[lattice]\npreset = \"square\"\na = 3.0\ncells = [4, 4, 1]\nperiodic = [true, true, false]\n\
+         [[species]]\nname = \"A\"\nmoment = 2.0\n[[exchange]]\nshell = 1\nj = 5.0\n\
+         [[bond]]\nfrom = 0\nto = 0\ncell = [0, 0, 1]\nj = 9.0\n",
+    );
+    let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let mf = 4.0 * 5.0 / (3.0 * 8.617333262e-2);
+    assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf, "{}", v["curie_mean_field"]);
+    assert!(v["warnings"].to_string().contains("bond.0: the bond reaches beyond"), "{}", v["warnings"]);
 }
 
 /// Bad input gets exit code 2 and a message naming the key, file or line; never a panic.

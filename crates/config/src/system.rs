@@ -284,17 +284,12 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
             o[2] as f64 + pt[2] - pf[2],
         ])
     };
-    let check_offset = |key: &str, o: [i32; 3]| -> Result<(), ConfigError> {
-        if cell.offset_allowed(o) {
-            Ok(())
-        } else {
-            Err(loaded.error_at(
-                &format!("{key}.cell"),
-                format!(
-                    "cell offset {o:?} does not fit in the supercell {cells:?} with periodic = {periodic:?}"
-                ),
-            ))
-        }
+    // A bond that cannot exist in this supercell (longer than an open axis's box, as a bulk
+    // table's interlayer bonds in a monolayer, or off the only cell of a periodic axis) is
+    // left out with a warning, as the shells' cut bonds are: the same table serves the bulk
+    // and films of any thickness.
+    let beyond = |o: [i32; 3]| {
+        format!("reaches beyond the supercell (cells {cells:?}, periodic {periodic:?}) at cell offset {o:?}")
     };
     for (k, b) in raw.bond.iter().enumerate() {
         let key = format!("bond.{k}");
@@ -310,7 +305,6 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
         if b.from == b.to && o == [0, 0, 0] {
             return Err(loaded.error_at(&key, "a site cannot be bonded to itself"));
         }
-        check_offset(&key, o)?;
         let mut c = Coupling::default();
         if let Some(t) = &b.tensor {
             if b.j.is_some() || b.dmi.is_some() {
@@ -353,6 +347,11 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
                 .unwrap_or([0.0; 3]);
         }
         let v = bond_vector(b.from, b.to, o);
+        if !cell.offset_allowed(o) {
+            warnings.push(format!("{key}: the bond {}; it is left out", beyond(o)));
+            couplings.push(CouplingReport { key, distance: spindrift_lattice::norm(v), pairs: 0 });
+            continue;
+        }
         bonds.add_pair(b.from, b.to, o, v, c).map_err(|e| loaded.error_at(&key, e.to_string()))?;
         couplings.push(CouplingReport { key, distance: spindrift_lattice::norm(v), pairs: 1 });
     }
@@ -374,21 +373,28 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
             t.ferromagnetic.unwrap_or(FerroSign::Positive),
             nb,
         )?;
+        let mut left_out = Vec::new();
         for r in &rows {
             if !cell.offset_allowed(r.cell) {
-                return Err(ConfigError::new(
-                    &path,
-                    &key,
-                    Some(r.line),
-                    format!("cell offset {:?} does not fit in the supercell {cells:?}", r.cell),
-                ));
+                left_out.push(r);
+                continue;
             }
             let v = bond_vector(r.from, r.to, r.cell);
             bonds
                 .add_pair(r.from, r.to, r.cell, v, Coupling { j: r.j, d: r.d, tensor: None })
                 .map_err(|e| loaded.error_at(&key, e.to_string()))?;
         }
-        couplings.push(CouplingReport { key, distance: 0.0, pairs: rows.len() });
+        if let Some(first) = left_out.first() {
+            warnings.push(format!(
+                "{key}: {} of the {} rows of {} are left out: the first, line {}, {}",
+                left_out.len(),
+                rows.len(),
+                path.display(),
+                first.line,
+                beyond(first.cell)
+            ));
+        }
+        couplings.push(CouplingReport { key, distance: 0.0, pairs: rows.len() - left_out.len() });
     }
     bonds.prune();
     let field = match raw.field.as_ref().and_then(|f| f.b.as_ref()) {

@@ -134,7 +134,16 @@ impl Relaxer {
         self.has_previous = false;
     }
 
-    /// Iterations taken since construction.
+    /// As [`Relaxer::reset`], and sets the count of iterations taken, whose parity picks
+    /// the long or the short Barzilai-Borwein step of each iteration. A caller that resets
+    /// between runs of iterations (a field loop, at each field) and is resumed between
+    /// two of them sets the count it had reached, so as to continue bit for bit.
+    pub fn reset_at(&mut self, iterations: u64) {
+        self.has_previous = false;
+        self.iteration = iterations;
+    }
+
+    /// Iterations taken since construction (or as set by [`Relaxer::reset_at`]).
     pub fn iterations(&self) -> u64 {
         self.iteration
     }

@@ -74,7 +74,9 @@ pub(crate) fn run(
         let b = fields[k];
         r.h.set_field([b * direction[0], b * direction[1], b * direction[2]]);
         if let Some(relaxer) = relaxer.as_mut() {
-            relaxer.reset();
+            // The relaxer has taken `steps` iterations in this stage (a resumed stage's
+            // relaxer starts afresh): the count's parity chooses its step lengths.
+            relaxer.reset_at(steps);
             let start = relaxer.iterations();
             loop {
                 let torque =
@@ -118,6 +120,11 @@ pub(crate) fn run(
         if let Some(reason) = stop {
             return Ok(StageEnd::Stopped(reason));
         }
+    }
+    // The final state is taken at the loop's last field, also when a resumed stage had no
+    // field left to apply (the runner set the stage's own field before calling).
+    if let Some(&b) = fields.last() {
+        r.h.set_field([b * direction[0], b * direction[1], b * direction[2]]);
     }
     let (coercive, remanence) = loop_features(&fields, &m_par, points);
     let final_state = r.final_state(0.0)?;

@@ -15,7 +15,8 @@ use spindrift_engine::{Control, MemorySink, Monitor, Outcome, Runner, Silent, St
 use std::sync::atomic::{AtomicI32, Ordering};
 use std::sync::Arc;
 
-/// Every stage kind, with the relaxing and the settling field loop and both scan methods.
+/// Every stage kind, with the relaxing and the settling field loop, both scan methods and
+/// an evolve stage with temperature and field ramps.
 /// Small and short; a field loop's relaxation needs several iterations per field so that
 /// a stop between fields meets a relaxer part-way through its step-length sequence.
 const ALL_KINDS: &str = r#"
@@ -89,6 +90,13 @@ dt = "1 fs"
 temperature = 30
 observe_every = 6
 snapshot_every = 12
+[[stage]]
+kind = "evolve"
+duration = "30 fs"
+dt = "1 fs"
+temperature_ramp = [60, 10]
+field_ramp = { from = [0, 0, 1], to = [0.5, 0, -1] }
+observe_every = 4
 "#;
 
 /// Asks for a stop (as SIGTERM would) at its `at`-th progress update.

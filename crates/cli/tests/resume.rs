@@ -15,8 +15,9 @@ use spindrift_engine::{Control, MemorySink, Monitor, Outcome, Runner, Silent, St
 use std::sync::atomic::{AtomicI32, Ordering};
 use std::sync::Arc;
 
-/// Every stage kind, with the relaxing and the settling field loop, both scan methods and
-/// an evolve stage with temperature and field ramps.
+/// Every stage kind: a relaxation cut at `max_steps` and one that converges, the relaxing
+/// and the settling field loop, both scan methods and an evolve stage with temperature and
+/// field ramps.
 /// Small and short; a field loop's relaxation needs several iterations per field so that
 /// a stop between fields meets a relaxer part-way through its step-length sequence.
 const ALL_KINDS: &str = r#"
@@ -46,6 +47,11 @@ state = "random"
 kind = "relax"
 max_steps = 40
 observe_every = 3
+[[stage]]
+kind = "relax"
+max_steps = 1000
+torque_tolerance = 0.05
+observe_every = 1
 [[stage]]
 kind = "field-loop"
 direction = [0.1, 0, 1]

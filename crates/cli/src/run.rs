@@ -42,6 +42,10 @@ pub fn header(loaded: &Loaded, v: &Validated) -> RunHeader {
 }
 
 pub fn run(args: &RunArgs) -> Outcome {
+    // Before anything else, so that a signal while a large system is being built stops
+    // the run at its first safe point (exit 130/143 with a checkpoint) instead of ending
+    // the process by the signal's default action.
+    let stop = signals::install().map_err(|e| output(anyhow!("cannot install signal handlers: {e}")))?;
     let (loaded, v) = load_system(&args.config, &args.set)?;
     if v.protocol.stages.is_empty() {
         return Err(bad_input(anyhow!(
@@ -62,7 +66,6 @@ pub fn run(args: &RunArgs) -> Outcome {
         .transpose()
         .map_err(|e| bad_input(anyhow!("--max-wall: {}", e.message_for("--max-wall"))))?;
     let started = Instant::now();
-    let stop = signals::install().map_err(|e| output(anyhow!("cannot install signal handlers: {e}")))?;
     let control = Control::new(stop, max_wall.map(|d| started + d), v.checkpoint_every);
     let mut progress = Progress::new(args.quiet);
     let spins = v.hamiltonian.spin_count();

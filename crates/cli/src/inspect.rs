@@ -6,7 +6,16 @@ use serde_json::{json, Value};
 use spindrift_io::{read_summary, RunReader};
 
 pub fn inspect(args: &InspectArgs) -> Outcome {
-    let reader = RunReader::open(&args.run_dir).map_err(bad_input)?;
+    let dir = &args.run_dir;
+    if dir.join("sweep.json").is_file() && !dir.join("run.h5").exists() {
+        return Err(bad_input(anyhow::anyhow!(
+            "{}: a sweep folder, not a run; inspect one of its points ({}) or collect them with: spindrift merge {}",
+            dir.display(),
+            dir.join("point_0000").display(),
+            dir.display()
+        )));
+    }
+    let reader = RunReader::open(dir).map_err(bad_input)?;
     let attrs = reader.attributes().map_err(bad_input)?;
     let lattice = reader.lattice().map_err(bad_input)?;
     let mut stages = Vec::new();

@@ -496,6 +496,10 @@ fn sweep_shards_merge_to_the_same_table() {
     let o = spindrift(&["plot", whole.to_str().unwrap()]);
     assert!(o.status.success(), "{}", stderr(&o));
     assert!(whole.join("plots/sweep.png").exists());
+    // `inspect` of the sweep folder itself points to its runs.
+    let o = spindrift(&["inspect", whole.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("a sweep folder, not a run"), "{}", stderr(&o));
     // Bad keys and values: exit 2, naming the key, and no point folder made.
     let bad = dir.join("bad");
     let o = spindrift(&["sweep", c, "--out", bad.to_str().unwrap(), "--vary", "stage.0.tempreature=1,2"]);

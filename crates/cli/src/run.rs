@@ -183,6 +183,13 @@ pub fn run(args: &RunArgs) -> Outcome {
 
 fn engine_failure(e: EngineError) -> Failure {
     match e {
+        EngineError::Sink(ref s)
+            if ["No space left on device", "Disk quota exceeded"].iter().any(|m| s.message.contains(m)) =>
+        {
+            output(anyhow!(
+                "{e}. The disk is full: the run file was closed with the rows written before the failure and the last state in /final (the run's disk reserve made room for them); free space, then run again or --resume from a checkpoint if one was written"
+            ))
+        }
         EngineError::Sink(_) => output(e),
         EngineError::NonFinite { .. } => numerical(e),
         _ => bad_input(e),

@@ -8,8 +8,10 @@ use thiserror::Error;
 #[non_exhaustive]
 pub enum EngineError {
     /// Records could not be stored.
+    // Not `#[from]`: that would make the message a `source` too, and a report of the
+    // error chain (`{:#}`) would print it twice.
     #[error("output: {0}")]
-    Sink(#[from] SinkError),
+    Sink(SinkError),
     /// The spins became non-finite; the last good state was saved.
     #[error("stage {stage}: spin {site} became non-finite at step {step} (time step too large, or couplings too strong?); the last good state was saved")]
     NonFinite {
@@ -28,4 +30,10 @@ pub enum EngineError {
         /// What went wrong.
         message: String,
     },
+}
+
+impl From<SinkError> for EngineError {
+    fn from(e: SinkError) -> Self {
+        EngineError::Sink(e)
+    }
 }

@@ -94,7 +94,9 @@ impl IoError {
     }
 
     pub(crate) fn hdf5(path: &Path, what: impl Into<String>, err: hdf5::Error) -> Self {
-        IoError::Hdf5 { path: path.to_path_buf(), what: what.into(), detail: err.to_string() }
+        // The library's message spans lines (its error stack); one line reads better.
+        let detail = err.to_string().split('\n').map(str::trim).collect::<Vec<_>>().join(" ");
+        IoError::Hdf5 { path: path.to_path_buf(), what: what.into(), detail }
     }
 
     pub(crate) fn os(path: &Path, what: impl Into<String>, source: std::io::Error) -> Self {

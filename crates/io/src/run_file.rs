@@ -43,6 +43,7 @@ use crate::layout::{
     parse_stage_group_name, stage_group_name, RUN_FILE, RUN_FORMAT, RUN_FORMAT_VERSION, UNIT_LENGTH,
     UNIT_MOMENT, UNIT_NONE,
 };
+use crate::reserve::{reserve_bytes, Reserve};
 use crate::stage::StageWriter;
 use crate::xdmf::write_xdmf;
 
@@ -64,6 +65,8 @@ pub struct RunFile {
     stages: BTreeMap<usize, StageWriter>,
     block_rows: usize,
     compress_snapshots: bool,
+    /// Disk space held until the first failed write or the close (see `reserve.rs`).
+    reserve: Option<Reserve>,
 }
 
 impl RunFile {
@@ -85,6 +88,7 @@ impl RunFile {
             stages: BTreeMap::new(),
             block_rows: DEFAULT_BLOCK_ROWS,
             compress_snapshots: true,
+            reserve: None,
         })
     }
 
@@ -139,6 +143,7 @@ impl RunFile {
             file.unlink("final").ctx(&path, || "removing /final, written after the checkpoint")?;
         }
         file.flush().ctx(&path, || "flushing")?;
+        let reserve = sites.map(|n| Reserve::create(dir, reserve_bytes(n))).transpose()?;
         Ok(RunFile {
             dir: dir.to_path_buf(),
             path,
@@ -147,6 +152,7 @@ impl RunFile {
             stages,
             block_rows: DEFAULT_BLOCK_ROWS,
             compress_snapshots: true,
+            reserve,
         })
     }
 
@@ -201,6 +207,9 @@ impl RunFile {
 
     /// Writes pending rows, closes the file and syncs it to disk.
     pub fn close(mut self) -> Result<(), IoError> {
+        if let Some(r) = self.reserve.take() {
+            r.release();
+        }
         self.flush_file()?;
         self.stages.clear();
         if let Some(file) = self.file.take() {
@@ -266,6 +275,9 @@ impl RunFile {
         set_attr(&g, "layer_count", &(h.layer_count as u64))
             .ctx(&path, || "writing /lattice attribute layer_count")?;
         self.sites = Some(n);
+        if self.reserve.is_none() {
+            self.reserve = Some(Reserve::create(&self.dir, reserve_bytes(n))?);
+        }
         Ok(())
     }
 
@@ -322,6 +334,18 @@ impl RunFile {
         Ok(())
     }
 
+    /// Passes `r` on; a failed write first gives the disk reserve back, so that the writes
+    /// a failing run still makes (its last state, the pending rows, the metadata on closing)
+    /// find room if the disk is full.
+    fn guard<T>(&mut self, r: Result<T, IoError>) -> Result<T, SinkError> {
+        if r.is_err() {
+            if let Some(reserve) = self.reserve.take() {
+                reserve.release();
+            }
+        }
+        Ok(r?)
+    }
+
     fn flush_file(&mut self) -> Result<(), IoError> {
         let path = self.path.clone();
         for stage in self.stages.values_mut() {
@@ -338,35 +362,42 @@ pub(crate) fn sync_file(path: &Path) -> Result<(), IoError> {
 
 impl Sink for RunFile {
     fn header(&mut self, header: &RunHeader) -> Result<(), SinkError> {
-        Ok(self.write_header(header)?)
+        let r = self.write_header(header);
+        self.guard(r)
     }
 
     fn begin_stage(&mut self, info: &StageInfo) -> Result<(), SinkError> {
-        Ok(self.begin(info)?)
+        let r = self.begin(info);
+        self.guard(r)
     }
 
     fn series(&mut self, stage: usize, row: &SeriesRow) -> Result<(), SinkError> {
         let (path, block) = (self.path.clone(), self.block_rows);
-        Ok(self.stage_mut(stage)?.series(row, block, &path)?)
+        let r = self.stage_mut(stage).and_then(|s| s.series(row, block, &path));
+        self.guard(r)
     }
 
     fn point(&mut self, stage: usize, row: &PointRow) -> Result<(), SinkError> {
         let (path, block) = (self.path.clone(), self.block_rows);
-        Ok(self.stage_mut(stage)?.point(row, block, &path)?)
+        let r = self.stage_mut(stage).and_then(|s| s.point(row, block, &path));
+        self.guard(r)
     }
 
     fn snapshot(&mut self, stage: usize, step: u64, time: f64, spins: &[[f64; 3]]) -> Result<(), SinkError> {
         let path = self.path.clone();
-        Ok(self.stage_mut(stage)?.snapshot(step, time, spins, &path)?)
+        let r = self.stage_mut(stage).and_then(|s| s.snapshot(step, time, spins, &path));
+        self.guard(r)
     }
 
     fn end_stage(&mut self, summary: &StageSummary) -> Result<(), SinkError> {
         let path = self.path.clone();
-        Ok(self.stage_mut(summary.index)?.write_pending(&path)?)
+        let r = self.stage_mut(summary.index).and_then(|s| s.write_pending(&path));
+        self.guard(r)
     }
 
     fn final_spins(&mut self, spins: &[[f64; 3]]) -> Result<(), SinkError> {
-        Ok(self.write_final(spins)?)
+        let r = self.write_final(spins);
+        self.guard(r)
     }
 
     /// Flushes the run file and syncs it to disk first, so the checkpoint never counts rows
@@ -389,18 +420,24 @@ impl Sink for RunFile {
             )
             .into());
         }
-        self.flush_file()?;
-        sync_file(&self.path)?;
-        Ok(write_checkpoint(&self.dir, checkpoint)?)
+        let r = self
+            .flush_file()
+            .and_then(|()| sync_file(&self.path))
+            .and_then(|()| write_checkpoint(&self.dir, checkpoint));
+        self.guard(r)
     }
 
     fn flush(&mut self) -> Result<(), SinkError> {
-        Ok(self.flush_file()?)
+        let r = self.flush_file();
+        self.guard(r)
     }
 }
 
 impl Drop for RunFile {
     fn drop(&mut self) {
+        if let Some(r) = self.reserve.take() {
+            r.release();
+        }
         if self.file.is_some() {
             // Errors cannot be reported from drop; `close` is the way to see them.
             let _ = self.flush_file();

@@ -423,7 +423,7 @@ fn full_disk_keeps_the_rows_written() {
     let steps = r.read_1d("/stage_000/series/step").unwrap();
     let snaps = r.shape("/stage_000/snapshots/spins").unwrap()[0];
     // Cut short, with the rows before the cut: steps 0, 5, 10, ... without a gap.
-    assert!(snaps >= 10 && snaps < 101, "{snaps} snapshots");
+    assert!((10..101).contains(&snaps), "{snaps} snapshots");
     assert!(steps.len() >= 2 * snaps, "{} rows", steps.len());
     assert!(steps.iter().enumerate().all(|(k, &s)| s == 5.0 * k as f64), "{steps:?}");
     let last = r.final_spins().unwrap().expect("the last state in /final");

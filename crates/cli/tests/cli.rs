@@ -376,17 +376,20 @@ fn max_wall_stops_with_a_checkpoint() {
 /// A disk that fills mid-run: exit 4, and the run file opens with the rows written before
 /// the failure (a prefix of the run) and the last state, where without the disk reserve the
 /// failed flush on closing left a file HDF5 could not open (every row lost). The disk is a
-/// 12 MiB tmpfs in a private mount namespace (`unshare -rm`, util-linux), so no privilege is
-/// needed where user namespaces are allowed; everything that reads the small disk runs
+/// 12 MiB tmpfs in a private mount namespace (`unshare`, util-linux; as another user than root
+/// through a user namespace, where the system allows them); everything that reads the small disk runs
 /// inside it, and the run file is copied out for the checks.
 #[test]
 fn full_disk_keeps_the_rows_written() {
     let dir = temp_dir("full-disk");
-    let probe = std::process::Command::new("unshare").args(["-rm", "true"]).status();
-    if !probe.is_ok_and(|s| s.success()) {
-        eprintln!("full_disk_keeps_the_rows_written: this machine allows no private mount namespace (unshare -rm); not run");
+    // `-m` alone for root (no /proc needed for a user mapping), `-rm` for other users.
+    let flags = ["-m", "-rm"].into_iter().find(|f| {
+        std::process::Command::new("unshare").args([f, "true"]).status().is_ok_and(|s| s.success())
+    });
+    let Some(flags) = flags else {
+        eprintln!("full_disk_keeps_the_rows_written: this machine allows no private mount namespace (unshare); not run");
         return;
-    }
+    };
     // 8192 spins: 196 KiB per snapshot, uncompressed, 101 snapshots: far more than the disk.
     let cfg = write_config(
         &dir,
@@ -406,7 +409,7 @@ fn full_disk_keeps_the_rows_written() {
         c = cfg.display(),
         d = dir.display()
     );
-    let o = std::process::Command::new("unshare").args(["-rm", "sh", "-c", &script]).output().unwrap();
+    let o = std::process::Command::new("unshare").args([flags, "sh", "-c", &script]).output().unwrap();
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let read = |name: &str| std::fs::read_to_string(dir.join(name)).unwrap();
     assert_eq!(read("code").trim(), "4", "{}", read("err"));

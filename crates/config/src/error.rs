@@ -92,7 +92,12 @@ pub fn edit_distance(a: &str, b: &str) -> usize {
 /// length (but always two, which covers a swapped pair of letters). Ties go to the earlier candidate.
 pub fn closest<'a>(word: &str, candidates: impl IntoIterator<Item = &'a str>) -> Option<&'a str> {
     let len = word.chars().count();
-    let limit = if len <= 3 { 1 } else { (len / 3).max(2) };
+    // One letter for another is no evidence of a typo (`J` is not a misspelt `Å`).
+    let limit = match len {
+        0 | 1 => 0,
+        2 | 3 => 1,
+        _ => (len / 3).max(2),
+    };
     let mut best: Option<(usize, &str)> = None;
     for c in candidates {
         let d = if c.eq_ignore_ascii_case(word) { 0 } else { edit_distance(word, c) };
@@ -330,6 +335,9 @@ mod tests {
         assert_eq!(closest("dtt", keys), Some("dt"));
         assert_eq!(closest("Kind", keys), Some("kind"));
         assert_eq!(closest("colour", keys), None);
+        // A single letter matches only itself, in either case.
+        assert_eq!(closest("J", ["Å", "T", "K"]), None);
+        assert_eq!(closest("t", ["Å", "T", "K"]), Some("T"));
     }
 
     #[test]

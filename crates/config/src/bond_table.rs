@@ -78,7 +78,7 @@ pub fn read_table(
                     path,
                     key,
                     Some(line),
-                    format!("column {} ({what}) is not a number: `{}`", k + 1, fields[k]),
+                    format!("column {} ({what}) is not a finite number: `{}`", k + 1, fields[k]),
                 )
             })
         };

@@ -38,10 +38,15 @@ pub fn load_system(config: &Path, sets: &[String]) -> Result<(Loaded, Validated)
     Ok((loaded, v))
 }
 
+/// The latest state a run folder holds: its final spins, else (a run stopped before its
+/// end) the checkpoint's spins, else its last snapshot.
 fn read_final_spins(dir: &Path) -> anyhow::Result<Vec<[f64; 3]>> {
     let reader = spindrift_io::RunReader::open(dir)?;
     if let Some(s) = reader.final_spins()? {
         return Ok(s);
+    }
+    if dir.join("checkpoint.h5").exists() {
+        return Ok(spindrift_io::read_checkpoint(dir)?.spins);
     }
     match reader.last_snapshot()? {
         Some(s) => Ok(s.spins),

@@ -652,7 +652,8 @@ fn snapshot_compression_can_be_turned_off() {
 
 /// `[initial] state = "file"` starts from the final spins of an earlier run folder (path
 /// relative to the config's folder): the second run's first row has the first run's
-/// final energy; a run folder of another size is refused with exit 2.
+/// final energy; a run folder of another size is refused with exit 2; a stopped run gives
+/// its checkpoint's spins.
 #[test]
 fn initial_state_from_an_earlier_run() {
     let dir = temp_dir("from-file");
@@ -672,6 +673,28 @@ fn initial_state_from_an_earlier_run() {
     let o = spindrift(&["check", cfg.to_str().unwrap(), "--set", "lattice.cells=[10,10,1]"]);
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("initial.path"), "{}", stderr(&o));
+    // A run stopped before its end (no /final, no snapshot): the checkpoint's spins.
+    let stopped = dir.join("stopped");
+    let o = spindrift(&[
+        "run",
+        first.to_str().unwrap(),
+        "--out",
+        stopped.to_str().unwrap(),
+        "-q",
+        "--max-wall",
+        "0.001 s",
+    ]);
+    assert_eq!(o.status.code(), Some(75), "{}", stderr(&o));
+    let spins = spindrift_io::read_checkpoint(&stopped).unwrap().spins;
+    let third = SWEEP_CONFIG.replace("state = \"random\"", "state = \"file\"\npath = \"stopped\"");
+    let cfg = write_config(&dir, "third.toml", &third);
+    let o = spindrift(&["run", cfg.to_str().unwrap(), "--out", dir.join("third").to_str().unwrap(), "-q"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let m0 =
+        RunReader::open(&dir.join("third")).unwrap().read_flat("/stage_000/series/magnetization").unwrap().1;
+    let n = spins.len() as f64;
+    let mz = spins.iter().map(|s| s[2]).sum::<f64>() / n;
+    assert!((m0[2] - mz).abs() < 1e-12, "{} vs {mz}", m0[2]);
 }
 
 /// A run folder that cannot be written is an output failure, exit 4 (INTERFACE.md).

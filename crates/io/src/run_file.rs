@@ -24,7 +24,9 @@
 //! to that flush. HDF5 1.10 has no journal: a kill *during* a flush, or a power cut before
 //! the operating system wrote its buffers, can still damage the file. That is why the
 //! checkpoint is a separate file replaced atomically, and why resuming cuts this file back
-//! to the checkpoint's row counts.
+//! to the checkpoint's row counts. A full disk is met by the reserve of `reserve.rs`: once
+//! the header is written the run holds disk space back, and gives it up at the first failed
+//! write, so that the last state and the flush on closing still fit.
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};

@@ -128,16 +128,13 @@ impl Relaxer {
         }
     }
 
-    /// Forgets the previous iterate, so that the next step length is chosen afresh. Call
-    /// it after changing the spins or the Hamiltonian (e.g. the field) between iterations.
-    pub fn reset(&mut self) {
-        self.has_previous = false;
-    }
-
-    /// As [`Relaxer::reset`], and sets the count of iterations taken, whose parity picks
-    /// the long or the short Barzilai-Borwein step of each iteration. A caller that resets
-    /// between runs of iterations (a field loop, at each field) and is resumed between
-    /// two of them sets the count it had reached, so as to continue bit for bit.
+    /// Forgets the previous iterate, so that the next step length is chosen afresh, and
+    /// sets the count of iterations taken, whose parity picks the long or the short
+    /// Barzilai-Borwein step of each iteration. Call it after changing the spins or the
+    /// Hamiltonian (e.g. the field) between iterations, with the count reached so far
+    /// ([`Relaxer::iterations`]); a caller resumed from a checkpoint between two such
+    /// changes (a field loop, between fields) passes the count it had reached before the
+    /// stop, so as to continue bit for bit.
     pub fn reset_at(&mut self, iterations: u64) {
         self.has_previous = false;
         self.iteration = iterations;

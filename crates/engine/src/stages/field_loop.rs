@@ -61,6 +61,7 @@ pub(crate) fn run(
         unreachable!("dispatched on kind")
     };
     let fields = loop_fields(max, points);
+    let along = |b: f64| [b * direction[0], b * direction[1], b * direction[2]];
     let mut m_par = cursor.array("m_parallel");
     let mut k = cursor.counter("point") as usize;
     let mut steps = cursor.counter("steps");
@@ -71,8 +72,7 @@ pub(crate) fn run(
     // Resuming lands between two fields, whose observations are all written.
     r.skip_observation = false;
     while k < fields.len() {
-        let b = fields[k];
-        r.h.set_field([b * direction[0], b * direction[1], b * direction[2]]);
+        r.h.set_field(along(fields[k]));
         if let Some(relaxer) = relaxer.as_mut() {
             // The relaxer has taken `steps` iterations in this stage (a resumed stage's
             // relaxer starts afresh): the count's parity chooses its step lengths.
@@ -124,7 +124,7 @@ pub(crate) fn run(
     // The final state is taken at the loop's last field, also when a resumed stage had no
     // field left to apply (the runner set the stage's own field before calling).
     if let Some(&b) = fields.last() {
-        r.h.set_field([b * direction[0], b * direction[1], b * direction[2]]);
+        r.h.set_field(along(b));
     }
     let (coercive, remanence) = loop_features(&fields, &m_par, points);
     let final_state = r.final_state(0.0)?;

@@ -78,6 +78,7 @@ impl<'a> Report<'a> {
             "couplings": couplings,
             "bonds_per_cell": h.bonds().directed_len() / 2,
             "memory_estimate_bytes": self.v.memory_estimate_bytes,
+            "disk_reserve_bytes": spindrift_io::reserve_bytes(self.v.hamiltonian.len()),
             "energy_initial": {
                 "total": self.energy.total(),
                 "exchange": self.energy.exchange,
@@ -178,6 +179,10 @@ impl<'a> Report<'a> {
         say!("run");
         say!("  recommended dt  {} fs", self.v.recommended_dt * 1e3);
         say!("  memory          about {}", human_bytes(self.v.memory_estimate_bytes));
+        say!(
+            "  disk reserve    {} held in the run folder while it runs (room for the last writes if the disk fills)",
+            human_bytes(spindrift_io::reserve_bytes(self.v.hamiltonian.len()))
+        );
         for (k, s) in self.v.protocol.stages.iter().enumerate() {
             let what = match &s.kind {
                 StageKind::Evolve { duration, dt, .. } => {

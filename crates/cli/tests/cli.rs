@@ -35,6 +35,8 @@ fn check_json_has_the_interface_keys() {
         assert!(v["energy_initial"][k].is_number(), "energy_initial.{k}");
     }
     assert_eq!(v["spins"], 4096);
+    // The run's disk reserve, as the README gives it: 8 MiB plus 48 bytes per spin.
+    assert_eq!(v["disk_reserve_bytes"], 8 * 1024 * 1024 + 48 * 4096);
     // J0 = 6 (6.0 - 0.4) meV over two shells of six neighbours.
     let mf = 6.0 * (6.0 - 0.4) / (3.0 * 8.617333262e-2);
     assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf);

@@ -128,6 +128,13 @@ fn bad_input_is_reported_with_exit_code_2() {
             ),
             "c11.toml:15: stage.0.measure: 6 steps sampled every 10",
         ),
+        // A longer array is refused, not cut to its first three elements.
+        (good.replace("cells = [8, 8, 1]", "cells = [8, 8, 1, 2]"), "lattice.cells: invalid length 4"),
+        // A table's place holding a number: no Rust type name in the message.
+        (
+            format!("stage = [5]\n{}", good.split("[[stage]]").next().unwrap()),
+            "stage.0: invalid type: integer `5`, expected a table",
+        ),
         (good.replace("[[stage]]", "[[bond_table]]\npath = \"table.dat\"\n[[stage]]"), "table.dat"),
     ];
     std::fs::write(dir.join("table.dat"), "0 0 1 0 0 1.0\n0 0 0 1 x 1.0\n").unwrap();

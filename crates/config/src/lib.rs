@@ -18,6 +18,7 @@
 
 mod bond_table;
 mod error;
+mod exact;
 mod load;
 mod overrides;
 pub mod protocol;

@@ -207,6 +207,10 @@ fn rewrite_message(message: &str) -> String {
         unknown("value", rest)
     } else if let Some(rest) = message.strip_prefix("missing field ") {
         format!("missing key {rest}")
+    } else if let Some(at) = message.find("expected struct Raw") {
+        // serde names the Rust type a table deserialises into (`RawStage`), which is no
+        // name of the config's.
+        format!("{}expected a table", &message[..at])
     } else {
         message.to_string()
     }

@@ -65,10 +65,13 @@ pub struct RawLattice {
     /// Second lattice constant (length, Å): the stacking distance of 2-D presets and the `c` of `hexagonal`.
     pub c: Option<Quantity>,
     /// Cartesian primitive vectors, one per row (lengths, Å); exclusive with `preset`.
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub vectors: Option<[QVec3; 3]>,
     /// Unit cells of the supercell along each primitive vector.
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub cells: Option<[usize; 3]>,
     /// Periodicity along each primitive vector (default all true).
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub periodic: Option<[bool; 3]>,
 }
 
@@ -120,6 +123,7 @@ pub struct RawSpecies {
     /// Uniaxial anisotropy constant k per atom (energy, meV); `k > 0` is an easy axis.
     pub anisotropy: Option<Quantity>,
     /// Anisotropy axis (direction, normalised by the validator).
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub axis: Option<[f64; 3]>,
 }
 
@@ -130,6 +134,7 @@ pub struct RawSite {
     /// Name of a `[[species]]`. Required.
     pub species: String,
     /// Fractional coordinates in the primitive cell. Required.
+    #[serde(deserialize_with = "crate::exact::array")]
     pub position: [f64; 3],
     /// Probability that the site is occupied (default 1; below 1 dilutes at random from the seed).
     pub occupancy: Option<f64>,
@@ -146,6 +151,7 @@ pub struct RawExchange {
     /// Exchange constant J (energy, meV); `J > 0` is ferromagnetic. Required.
     pub j: Quantity,
     /// Restrict to pairs of these two species.
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub pair: Option<[String; 2]>,
 }
 
@@ -162,8 +168,10 @@ pub struct RawDmi {
     /// Interfacial or bulk form.
     pub kind: Option<DmiKind>,
     /// Interface normal n of interfacial DMI (direction).
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub normal: Option<[f64; 3]>,
     /// Restrict to pairs of these two species.
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub pair: Option<[String; 2]>,
 }
 
@@ -186,12 +194,14 @@ pub struct RawBond {
     /// Basis site index of the second end. Required.
     pub to: usize,
     /// Cell offset of `to` (default `[0, 0, 0]`).
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub cell: Option<[i32; 3]>,
     /// Isotropic exchange J (energy, meV).
     pub j: Option<Quantity>,
     /// DMI vector D (energy, meV).
     pub dmi: Option<QVec3>,
     /// Full 3x3 exchange tensor, one row per line (energy, meV); replaces `j` and `dmi`.
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub tensor: Option<[QVec3; 3]>,
 }
 
@@ -244,14 +254,17 @@ pub struct RawInitial {
     /// The kind of initial state.
     pub state: Option<InitialState>,
     /// Direction of a uniform state or the background of a skyrmion (direction).
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub direction: Option<[f64; 3]>,
     /// Skyrmion centre in fractions of the supercell.
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub center: Option<[f64; 2]>,
     /// Skyrmion radius (length, Å).
     pub radius: Option<Quantity>,
     /// Skyrmion helicity (angle, degrees); by default the one the DMI favours.
     pub helicity: Option<Quantity>,
     /// Helix wavevector (1/Å; plain numbers only).
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub wavevector: Option<[f64; 3]>,
     /// Run folder to read spins from, relative to the config file's folder.
     pub path: Option<String>,
@@ -296,10 +309,12 @@ pub struct RawStage {
     /// `evolve`, `field-loop`, `temperature-scan` with `llg`: time step (time, ps).
     pub dt: Option<Quantity>,
     /// `evolve`: temperature ramped linearly from the first to the second value (temperature, K).
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub temperature_ramp: Option<[Quantity; 2]>,
     /// `evolve`: field ramped linearly (field, T).
     pub field_ramp: Option<RawFieldRamp>,
     /// `field-loop`: field direction (direction).
+    #[serde(default, deserialize_with = "crate::exact::option")]
     pub direction: Option<[f64; 3]>,
     /// `field-loop`: largest field magnitude (field, T).
     pub max: Option<Quantity>,

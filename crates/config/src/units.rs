@@ -441,7 +441,7 @@ impl QVec3 {
 
 impl<'de> Deserialize<'de> for QVec3 {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
-        <[Quantity; 3]>::deserialize(deserializer).map(QVec3)
+        crate::exact::array(deserializer).map(QVec3)
     }
 }
 

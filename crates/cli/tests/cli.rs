@@ -103,6 +103,38 @@ fn bulk_bond_table_on_a_film_leaves_out_the_cut_rows() {
     assert!(v["warnings"].to_string().contains("bond.0: the bond reaches beyond"), "{}", v["warnings"]);
 }
 
+/// A shell given twice adds the two couplings (mean field 4 (5 + 2) / 3 kB on the square
+/// lattice: classical mean field, common practice) and says so in a warning; shells of
+/// different species pairs do not.
+#[test]
+fn a_shell_given_twice_adds_with_a_warning() {
+    let dir = temp_dir("twice");
+    let base = "[lattice]\npreset = \"square\"\na = 3.0\ncells = [4, 4, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\n\
+                [[exchange]]\nshell = 1\nj = 5.0\n";
+    let p = write_config(&dir, "c.toml", &format!("{base}[[exchange]]\nshell = 1\nj = 2.0\n"));
+    let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let mf = 4.0 * 7.0 / (3.0 * 8.617333262e-2);
+    assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf, "{}", v["curie_mean_field"]);
+    let w = v["warnings"].to_string();
+    assert!(w.contains("exchange.1: the pairs at 3.0000 Å are also coupled by exchange.0"), "{w}");
+    let two = base.replace("moment = 2.0\n", "moment = 2.0\n[[species]]\nname = \"B\"\nmoment = 1.0\n")
+        + "[[site]]\nspecies = \"A\"\nposition = [0, 0, 0]\n[[site]]\nspecies = \"B\"\nposition = [0.5, 0.5, 0]\n";
+    let p = write_config(
+        &dir,
+        "d.toml",
+        &two.replace(
+            "j = 5.0\n",
+            "j = 5.0\npair = [\"A\", \"A\"]\n[[exchange]]\nshell = 1\nj = 3.0\npair = [\"B\", \"B\"]\n",
+        ),
+    );
+    let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    assert_eq!(v["warnings"].as_array().map(Vec::len), Some(0), "{}", v["warnings"]);
+}
+
 /// Bad input gets exit code 2 and a message naming the key, file or line; never a panic.
 #[test]
 fn bad_input_is_reported_with_exit_code_2() {

@@ -235,6 +235,10 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
             })
             .transpose()
     };
+    // Exchange entries met so far: (key, distance in Å, species pair). Two entries on the
+    // same pairs add their couplings, which is allowed (a J split into parts) but more
+    // often a slip (a shell given twice): said as a warning.
+    let mut seen: Vec<(String, f64, Option<(usize, usize)>)> = Vec::new();
     for (k, e) in raw.exchange.iter().enumerate() {
         let key = format!("exchange.{k}");
         let spec = ShellCoupling {
@@ -244,7 +248,23 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
             pair: pair_of(&key, &e.pair)?,
         };
         match add_shell(&cell, &mut bonds, &spec) {
-            Ok(found) => couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs }),
+            Ok(found) => {
+                let same_pairs = |p: Option<(usize, usize)>, q: Option<(usize, usize)>| match (p, q) {
+                    (Some((a, b)), Some((c, d))) => (a, b) == (c, d) || (a, b) == (d, c),
+                    _ => true,
+                };
+                if let Some((other, ..)) = seen
+                    .iter()
+                    .find(|(_, d, p)| (d - found.distance).abs() < 1e-6 && same_pairs(*p, spec.pair))
+                {
+                    warnings.push(format!(
+                        "{key}: the pairs at {:.4} Å are also coupled by {other}; the two couplings add",
+                        found.distance
+                    ));
+                }
+                seen.push((key.clone(), found.distance, spec.pair));
+                couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs })
+            }
             Err(err) => absent(loaded, &cell, &spec, &key, err, &mut warnings)?,
         }
     }

@@ -238,7 +238,8 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
     // Exchange entries met so far: (key, distance in Å, species pair). Two entries on the
     // same pairs add their couplings, which is allowed (a J split into parts) but more
     // often a slip (a shell given twice): said as a warning.
-    let mut seen: Vec<(String, f64, Option<(usize, usize)>)> = Vec::new();
+    type Pair = Option<(usize, usize)>;
+    let mut seen: Vec<(String, f64, Pair)> = Vec::new();
     for (k, e) in raw.exchange.iter().enumerate() {
         let key = format!("exchange.{k}");
         let spec = ShellCoupling {
@@ -249,7 +250,7 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
         };
         match add_shell(&cell, &mut bonds, &spec) {
             Ok(found) => {
-                let same_pairs = |p: Option<(usize, usize)>, q: Option<(usize, usize)>| match (p, q) {
+                let same_pairs = |p: Pair, q: Pair| match (p, q) {
                     (Some((a, b)), Some((c, d))) => (a, b) == (c, d) || (a, b) == (d, c),
                     _ => true,
                 };

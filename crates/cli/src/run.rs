@@ -183,6 +183,9 @@ pub fn run(args: &RunArgs) -> Outcome {
 
 fn engine_failure(e: EngineError) -> Failure {
     match e {
+        // The sink's error is a message (HDF5 reports errno as text), so a full disk is
+        // recognised by its words. (A disk too full for the reserve fails earlier, when
+        // the run file is made, with its own message.)
         EngineError::Sink(ref s)
             if ["No space left on device", "Disk quota exceeded"].iter().any(|m| s.message.contains(m)) =>
         {

@@ -5,7 +5,8 @@
 //! become `[64, 64, 8]` and `b = [0, 0, 1, 5]` a field of 1 T. The config's fixed-length
 //! keys go through these functions instead, which read the whole array and refuse any
 //! other length, with serde's own "invalid length" wording (and so the key and line, as
-//! every other type error).
+//! every other type error). A new fixed-length key in `raw.rs` takes the same attribute,
+//! `#[serde(default, deserialize_with = "crate::exact::option")]` (or `array` when required).
 
 use serde::de::{Deserialize, Deserializer, Error};
 

@@ -103,6 +103,30 @@ fn bulk_bond_table_on_a_film_leaves_out_the_cut_rows() {
     assert!(v["warnings"].to_string().contains("bond.0: the bond reaches beyond"), "{}", v["warnings"]);
 }
 
+/// An initial skyrmion wider than the box is warned about; one that fits is not.
+#[test]
+fn a_skyrmion_wider_than_the_box_is_warned_about() {
+    let dir = temp_dir("wide-skyrmion");
+    let text = |r: f64| {
+        format!(
+            "[lattice]\npreset = \"square\"\na = 3.0\ncells = [16, 12, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\n\
+             [[exchange]]\nshell = 1\nj = 5.0\n[[dmi]]\nshell = 1\nd = 1.0\n[initial]\nstate = \"skyrmion\"\nradius = {r}\n"
+        )
+    };
+    for (r, warned) in [(5.0, false), (500.0, true)] {
+        let p = write_config(&dir, "c.toml", &text(r));
+        let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+        let w = v["warnings"].to_string();
+        assert_eq!(
+            w.contains("initial.radius: a skyrmion of radius 500 Å does not fit in the box (48.0 x 36.0 Å"),
+            warned,
+            "{w}"
+        );
+    }
+}
+
 /// A shell given twice adds the two couplings (mean field 4 (5 + 2) / 3 kB on the square
 /// lattice: classical mean field, common practice) and says so in a warning; shells of
 /// different species pairs do not.

@@ -5,7 +5,8 @@ use crate::load::Loaded;
 use crate::protocol::{self, SystemDefaults};
 use crate::system::{self, CouplingReport};
 use spindrift_dynamics::Heun;
-use spindrift_engine::Protocol;
+use spindrift_dynamics::InitialState;
+use spindrift_engine::{Initial, Protocol};
 use spindrift_hamiltonian::timestep::recommended_dt;
 use spindrift_hamiltonian::Hamiltonian;
 use std::time::Duration;
@@ -44,6 +45,9 @@ pub fn validate(loaded: &Loaded, memory_limit: Option<u64>) -> Result<Validated,
     let dt = recommended_dt(&h);
     let mut warnings = sys.warnings;
     let protocol = protocol::build(loaded, &SystemDefaults { dt, field: h.field() }, &mut warnings)?;
+    if let Some(w) = skyrmion_fit(&h, &protocol) {
+        warnings.push(w);
+    }
     let bonds: u64 = (0..h.cell().basis_len()).map(|b| h.bonds().from_basis(b).len() as u64).sum();
     // The rings of the fused step (one per thread; 1.4 MiB each for 1000 x 1000 x 10) for
     // as many threads as the machine runs by default: `--threads` is not known here, and
@@ -74,5 +78,22 @@ pub fn validate(loaded: &Loaded, memory_limit: Option<u64>) -> Result<Validated,
         checkpoint_every: loaded.raw.run.as_ref().and_then(|r| r.checkpoint_every.as_ref()).map(|d| d.0),
         snapshot_compression: loaded.raw.output.as_ref().and_then(|o| o.snapshot_compression).unwrap_or(true),
         warnings,
+    })
+}
+
+/// A warning when an initial skyrmion is wider than the box in the plane: its edge then
+/// meets the box's faces (or its own periodic images), and a radius beyond both sides
+/// leaves the whole film reversed, which a mistyped unit or radius easily gives.
+fn skyrmion_fit(h: &Hamiltonian, protocol: &Protocol) -> Option<String> {
+    let Initial::State(InitialState::Skyrmion { radius, .. }) = &protocol.initial else { return None };
+    let cell = h.cell();
+    let (v, n) = (cell.crystal().vectors, cell.cells());
+    let side = |k: usize| n[k] as f64 * spindrift_lattice::norm(v[k]);
+    (2.0 * radius > side(0).min(side(1))).then(|| {
+        format!(
+            "initial.radius: a skyrmion of radius {radius} Å does not fit in the box ({:.1} x {:.1} Å in the plane); it is cut by the box's edges",
+            side(0),
+            side(1)
+        )
     })
 }

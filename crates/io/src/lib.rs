@@ -40,7 +40,7 @@ mod xdmf;
 pub use checkpoint::{read_checkpoint, write_checkpoint};
 pub use error::IoError;
 pub use reader::{DatasetEntry, LatticeData, RunAttributes, RunReader, Snapshot, StageEntry};
-pub use reserve::{reserve_bytes, RESERVE_FILE};
+pub use reserve::reserve_bytes;
 pub use run_file::{RunFile, DEFAULT_BLOCK_ROWS};
 pub use summary::{read_summary, summary_json, write_summary, RunSummary};
 pub use table::write_table;

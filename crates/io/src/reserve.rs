@@ -20,7 +20,7 @@ use std::path::{Path, PathBuf};
 use crate::error::IoError;
 
 /// Name of the reserve file inside the run folder.
-pub const RESERVE_FILE: &str = ".spindrift-reserve";
+pub(crate) const RESERVE_FILE: &str = ".spindrift-reserve";
 
 /// Bytes held for HDF5's metadata and the small tables, beyond the per-site part.
 const FIXED_BYTES: u64 = 8 << 20;
@@ -33,7 +33,7 @@ pub fn reserve_bytes(sites: usize) -> u64 {
     FIXED_BYTES + BYTES_PER_SITE * sites as u64
 }
 
-/// A reserve file, deleted by [`Reserve::release`] or on drop.
+/// A reserve file, deleted when dropped.
 #[derive(Debug)]
 pub(crate) struct Reserve {
     path: PathBuf,
@@ -66,9 +66,6 @@ impl Reserve {
         f.sync_all().map_err(fail)?;
         Ok(reserve)
     }
-
-    /// Deletes the file, giving its blocks back.
-    pub(crate) fn release(self) {}
 }
 
 impl Drop for Reserve {

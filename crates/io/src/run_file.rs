@@ -209,9 +209,7 @@ impl RunFile {
 
     /// Writes pending rows, closes the file and syncs it to disk.
     pub fn close(mut self) -> Result<(), IoError> {
-        if let Some(r) = self.reserve.take() {
-            r.release();
-        }
+        self.reserve = None; // deletes the file, giving its blocks to the last writes
         self.flush_file()?;
         self.stages.clear();
         if let Some(file) = self.file.take() {
@@ -341,9 +339,7 @@ impl RunFile {
     /// find room if the disk is full.
     fn guard<T>(&mut self, r: Result<T, IoError>) -> Result<T, SinkError> {
         if r.is_err() {
-            if let Some(reserve) = self.reserve.take() {
-                reserve.release();
-            }
+            self.reserve = None; // deletes the file (`Reserve`'s drop)
         }
         Ok(r?)
     }
@@ -437,9 +433,7 @@ impl Sink for RunFile {
 
 impl Drop for RunFile {
     fn drop(&mut self) {
-        if let Some(r) = self.reserve.take() {
-            r.release();
-        }
+        self.reserve = None;
         if self.file.is_some() {
             // Errors cannot be reported from drop; `close` is the way to see them.
             let _ = self.flush_file();

@@ -211,6 +211,13 @@ fn rewrite_message(message: &str) -> String {
         // serde names the Rust type a table deserialises into (`RawStage`), which is no
         // name of the config's.
         format!("{}expected a table", &message[..at])
+    } else if let Some(head) = message.strip_suffix("expected f64") {
+        format!("{head}expected a number")
+    } else if let Some(head) =
+        ["expected u64", "expected usize", "expected u32"].iter().find_map(|t| message.strip_suffix(t))
+    {
+        // The Rust integer type says "a whole number, not negative", which is what the user needs.
+        format!("{head}expected a whole number of at least 0")
     } else {
         message.to_string()
     }

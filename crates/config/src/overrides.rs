@@ -59,11 +59,28 @@ fn parse_value(raw: &str) -> Result<Value, String> {
             // reported instead of silently becoming a string.
             if text.starts_with(['[', '{', '"', '\'']) {
                 Err(format!("cannot read `{text}` as a TOML value: {}", e.message().trim()))
+            } else if let Some(x) = number_toml_refuses(text) {
+                // `1e400` overflows and `.5` lacks the digit TOML wants before its point: both were
+                // meant as numbers, not as the string the key's type would then complain of.
+                if x.is_finite() {
+                    Ok(Value::Float(x))
+                } else {
+                    Err(format!("`{text}` is not a finite number"))
+                }
             } else {
                 Ok(Value::String(text.to_string()))
             }
         }
     }
+}
+
+/// A number as Rust reads it (`.5`, `5.`, `1e400`) that TOML did not: text starting with a digit, a
+/// sign or a point. Words Rust also reads as numbers (`inf`, `NaN`) stay strings unless TOML took them.
+fn number_toml_refuses(text: &str) -> Option<f64> {
+    if !text.starts_with(|c: char| c.is_ascii_digit() || matches!(c, '+' | '-' | '.')) {
+        return None;
+    }
+    text.parse::<f64>().ok()
 }
 
 /// The normalised dotted key path of a `KEY=VALUE` override (`" stage.0.dt = 2"` gives `stage.0.dt`).
@@ -246,6 +263,23 @@ temperature = 10
         assert!(e.message.contains("`newtable.x` does not exist"), "{e}");
         // The document is unchanged by failed sets, even those that got part of the way.
         assert_eq!(d, doc());
+    }
+
+    /// Our own behaviour: numbers TOML refuses (a missing digit by the point, an overflow) are read
+    /// as numbers, or refused as such, rather than passed on as strings; words stay strings.
+    #[test]
+    fn numbers_toml_refuses_are_numbers() {
+        let mut d = doc();
+        apply_set(&mut d, "stage.1.temperature=.5").unwrap();
+        assert_eq!(get(&d, "stage.1.temperature"), &Value::Float(0.5));
+        apply_set(&mut d, "stage.1.temperature=-5.").unwrap();
+        assert_eq!(get(&d, "stage.1.temperature"), &Value::Float(-5.0));
+        let e = apply_set(&mut d, "stage.1.temperature=1e400").unwrap_err();
+        assert!(e.message.contains("`1e400` is not a finite number"), "{e}");
+        apply_set(&mut d, "title=infinity").unwrap();
+        assert_eq!(get(&d, "title"), &Value::String("infinity".into()));
+        apply_set(&mut d, "stage.1.dt=1.5fs").unwrap();
+        assert_eq!(get(&d, "stage.1.dt"), &Value::String("1.5fs".into()));
     }
 
     #[test]

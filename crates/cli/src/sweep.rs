@@ -2,7 +2,8 @@
 //!
 //! A sweep is the Cartesian product of the `--vary` values; point `k` runs in
 //! `DIR/point_kkkk/` with the config's seed replaced by one derived from the base seed
-//! and `k`, so a point's result does not depend on which machine or shard ran it.
+//! and `k`, so a point's result does not depend on which machine or shard ran it. A sweep
+//! that varies `seed` itself runs each point with its swept seed instead.
 //! `DIR/sweep.json` lists the points and their values (every shard writes the same
 //! content, atomically); each point's own `status.json` says whether it finished, so
 //! shards on a shared filesystem never write the same file. Re-running a sweep skips
@@ -154,7 +155,11 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
         for (v, x) in varies.iter().zip(values) {
             sets.push(format!("{}={x}", v.key));
         }
-        sets.push(format!("seed={}", point_seed(base_seed, k)));
+        // A swept seed is the user's choice for that point (repeats of a run with the seeds
+        // they name); replacing it by the derived one would make the swept values mean nothing.
+        if !varies.iter().any(|v| v.key == "seed") {
+            sets.push(format!("seed={}", point_seed(base_seed, k)));
+        }
         let loaded = load(&args.config, &sets)
             .map_err(|e| bad_input(anyhow!("point {k} ({}): {e}", describe(&varies, values))))?;
         validate(&loaded, available_memory())

@@ -124,7 +124,7 @@ pub fn build(
     warnings: &mut Vec<String>,
 ) -> Result<Protocol, ConfigError> {
     let raw = &loaded.raw;
-    let initial = initial(loaded)?;
+    let initial = initial(loaded, warnings)?;
     let mut stages = Vec::new();
     for (k, s) in raw.stage.iter().enumerate() {
         let key = format!("stage.{k}");
@@ -151,8 +151,7 @@ pub fn build(
             .as_ref()
             .map(|v| loaded.vector(&format!("{key}.field"), v, Dimension::Field))
             .transpose()?;
-        let relax_limits = |warn: &mut Vec<String>| -> Result<(u64, f64), ConfigError> {
-            let _ = warn;
+        let relax_limits = || -> Result<(u64, f64), ConfigError> {
             let max_steps = s.max_steps.unwrap_or(100_000);
             if max_steps == 0 {
                 return Err(loaded.error_at(&format!("{key}.max_steps"), "must be at least 1"));
@@ -173,7 +172,7 @@ pub fn build(
                         "a `relax` stage is at zero temperature; use `evolve` for finite temperature",
                     ));
                 }
-                let (max_steps, torque_tolerance) = relax_limits(warnings)?;
+                let (max_steps, torque_tolerance) = relax_limits()?;
                 StageKind::Relax { max_steps, torque_tolerance }
             }
             RawKind::Evolve => {
@@ -253,7 +252,7 @@ pub fn build(
                     return Err(loaded.error_at(&format!("{key}.temperature"), "relaxing at each field is a zero-temperature loop; give `settle` for a finite-temperature loop"));
                 }
                 let dt = time_step(loaded, &format!("{key}.dt"), s.dt.as_ref(), defaults, warnings)?;
-                let (max_steps, torque_tolerance) = relax_limits(warnings)?;
+                let (max_steps, torque_tolerance) = relax_limits()?;
                 StageKind::FieldLoop {
                     direction,
                     max,
@@ -387,7 +386,10 @@ fn measure(loaded: &Loaded, key: &str, m: Option<u64>) -> Result<u64, ConfigErro
     Ok(m)
 }
 
-fn initial(loaded: &Loaded) -> Result<Initial, ConfigError> {
+/// The initial state. Keys of another state (a skyrmion's `radius` under `state = "uniform"`) are
+/// left unused with a warning rather than refused, so that one config can be swept or `--set`
+/// over its initial states.
+fn initial(loaded: &Loaded, warnings: &mut Vec<String>) -> Result<Initial, ConfigError> {
     let Some(i) = &loaded.raw.initial else {
         return Ok(Initial::State(InitialState::Uniform { direction: [0.0, 0.0, 1.0] }));
     };
@@ -407,11 +409,12 @@ fn initial(loaded: &Loaded) -> Result<Initial, ConfigError> {
         RawInitial::Helix => &["wavevector"],
         RawInitial::File => &["path"],
     };
+    let state_name = format!("{state:?}").to_lowercase();
     for (name, here) in used {
         if here && !ok.contains(&name) {
-            return Err(loaded.error_at(
-                &format!("initial.{name}"),
-                format!("`{name}` does not apply to the initial state `{state:?}`").to_lowercase(),
+            let takes = if ok.is_empty() { "no other key".to_string() } else { ok.join(", ") };
+            warnings.push(format!(
+                "initial.{name}: not used by the initial state `{state_name}` (it takes: {takes})"
             ));
         }
     }

@@ -127,6 +127,35 @@ fn a_skyrmion_wider_than_the_box_is_warned_about() {
     }
 }
 
+/// A key of another initial state (a skyrmion's radius under `state = "uniform"`) is left
+/// unused with a warning, so that one config serves both states (`--set` or a sweep over
+/// `initial.state`); our own behaviour. The energy printed is that of the state named.
+#[test]
+fn keys_of_another_initial_state_are_warned_about() {
+    let dir = temp_dir("other-state");
+    let text = "[lattice]\npreset = \"square\"\na = 3.0\ncells = [16, 16, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\n\
+                [[exchange]]\nshell = 1\nj = 5.0\n[initial]\nstate = \"skyrmion\"\nradius = 6.0\n";
+    let p = write_config(&dir, "c.toml", text);
+    let energy = |state: &str| {
+        let o =
+            spindrift(&["check", p.to_str().unwrap(), "--json", "--set", &format!("initial.state={state}")]);
+        assert!(o.status.success(), "{state}: {}", stderr(&o));
+        let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+        (v["energy_initial"]["exchange"].as_f64().unwrap(), v["warnings"].to_string())
+    };
+    let (skyrmion, w) = energy("skyrmion");
+    assert!(!w.contains("not used"), "{w}");
+    let (uniform, w) = energy("uniform");
+    assert!(
+        w.contains("initial.radius: not used by the initial state `uniform` (it takes: direction)"),
+        "{w}"
+    );
+    // The uniform state's exchange energy is -z J / 2 per spin on the periodic square
+    // lattice, z = 4 (the Heisenberg energy of the aligned state, textbook).
+    assert!((uniform + 4.0 * 5.0 / 2.0).abs() < 1e-9, "{uniform}");
+    assert!(skyrmion > uniform + 0.1, "{skyrmion} {uniform}");
+}
+
 /// A shell given twice adds the two couplings (mean field 4 (5 + 2) / 3 kB on the square
 /// lattice: classical mean field, common practice) and says so in a warning; shells of
 /// different species pairs do not.
@@ -191,6 +220,15 @@ fn bad_input_is_reported_with_exit_code_2() {
             format!("stage = [5]\n{}", good.split("[[stage]]").next().unwrap()),
             "stage.0: invalid type: integer `5`, expected a table",
         ),
+        // A number's or a count's place holding text: said in words, not as a Rust type.
+        (
+            good.replace("moment = 2.0", "moment = 2.0\ndamping = \"big\""),
+            "species.0.damping: invalid type: string \"big\", expected a number",
+        ),
+        (
+            good.replace("duration = 0.01", "duration = 0.01\nobserve_every = -3"),
+            "stage.0.observe_every: invalid value: integer `-3`, expected a whole number of at least 0",
+        ),
         (good.replace("[[stage]]", "[[bond_table]]\npath = \"table.dat\"\n[[stage]]"), "table.dat"),
     ];
     std::fs::write(dir.join("table.dat"), "0 0 1 0 0 1.0\n0 0 0 1 x 1.0\n").unwrap();
@@ -210,6 +248,13 @@ fn bad_input_is_reported_with_exit_code_2() {
     assert_eq!(spindrift(&["check", "no/such.toml"]).status.code(), Some(2));
     let o = spindrift(&["check", "configs/demo.toml", "--set", "lattice.cells.7=3"]);
     assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    // A number TOML cannot hold is refused as a number, not as a string in a number's place.
+    let o = spindrift(&["check", "configs/demo.toml", "--set", "species.0.damping=1e400"]);
+    assert!(
+        stderr(&o).contains("species.0.damping: --set: `1e400` is not a finite number"),
+        "{}",
+        stderr(&o)
+    );
     assert_eq!(
         spindrift(&["run", "configs/demo.toml", "--threads", "0", "--out", dir.join("x").to_str().unwrap()])
             .status
@@ -635,6 +680,27 @@ fn sweep_shards_merge_to_the_same_table() {
     assert_eq!(o.status.code(), Some(2));
     assert!(!bad.join("point_0000").exists());
     let _ = repo();
+}
+
+/// A sweep over `seed` runs each point with the seed it names (our own behaviour: other sweeps
+/// derive each point's seed from the config's), so that a point is repeated by `run --set seed=`.
+#[test]
+fn a_swept_seed_is_the_points_seed() {
+    let dir = temp_dir("sweep-seed");
+    let cfg = write_config(&dir, "s.toml", SWEEP_CONFIG);
+    let c = cfg.to_str().unwrap();
+    let out = dir.join("seeds");
+    let o = spindrift(&["sweep", c, "--out", out.to_str().unwrap(), "--vary", "seed=11,12"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let alone = dir.join("alone");
+    let o = spindrift(&["run", c, "--out", alone.to_str().unwrap(), "--set", "seed=12", "-q"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    for (k, seed) in [(0, 11), (1, 12)] {
+        let o = spindrift(&["inspect", out.join(format!("point_{k:04}")).to_str().unwrap(), "--json"]);
+        let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+        assert_eq!(v["seed"].as_u64(), Some(seed), "{v}");
+    }
+    assert_same_run(&out.join("point_0001"), &alone);
 }
 
 /// A point stopped mid-run is resumed by re-running the sweep; finished points are not

@@ -1,7 +1,9 @@
 //! SIGINT and SIGTERM ask the run to stop at its next safe point with a checkpoint; a
-//! second signal ends the process at once.
+//! second signal ends the process at once. SIGXFSZ, which a write past a per-file size limit
+//! (`ulimit -f`) raises, is caught and ignored, so that such a write fails with an error the
+//! run reports and survives (exit 4, the rows written kept) instead of killing the process.
 
-use signal_hook::consts::{SIGINT, SIGTERM};
+use signal_hook::consts::{SIGINT, SIGTERM, SIGXFSZ};
 use signal_hook::iterator::Signals;
 use std::sync::atomic::{AtomicI32, Ordering};
 use std::sync::{Arc, OnceLock};
@@ -18,6 +20,7 @@ pub fn install() -> std::io::Result<Arc<AtomicI32>> {
     let stop = Arc::new(AtomicI32::new(0));
     let _ = STOP.set(stop.clone());
     let flag = stop.clone();
+    signal_hook::flag::register(SIGXFSZ, Arc::new(std::sync::atomic::AtomicBool::new(false)))?;
     let mut signals = Signals::new([SIGINT, SIGTERM])?;
     std::thread::Builder::new().name("signals".into()).spawn(move || {
         for sig in signals.forever() {

@@ -544,6 +544,55 @@ fn full_disk_keeps_the_rows_written() {
     assert!(last.iter().all(|s| ((s[0] * s[0] + s[1] * s[1] + s[2] * s[2]).sqrt() - 1.0).abs() < 1e-9));
 }
 
+/// A per-file size limit (`ulimit -f`, set here with util-linux's `prlimit`): the run file
+/// stops growing at the limit less the room kept for the last state, so the run ends with
+/// exit 4 and a file that opens with its rows and `/final`; before, the write past the limit
+/// raised SIGXFSZ, which killed the process (exit 153) and left a file HDF5 could not open.
+/// A limit below that room is refused at the start, with exit 4, not a kill.
+#[test]
+fn a_file_size_limit_keeps_the_rows_written() {
+    let dir = temp_dir("fsize");
+    if !std::process::Command::new("prlimit").arg("--version").output().is_ok_and(|o| o.status.success()) {
+        eprintln!(
+            "a_file_size_limit_keeps_the_rows_written: no prlimit (util-linux) on this machine; not run"
+        );
+        return;
+    }
+    // 4096 spins: 96 KiB per snapshot uncompressed, 201 snapshots (19 MiB), against a 12 MiB
+    // limit of which 8.2 MiB are kept for the last state.
+    let cfg = write_config(
+        &dir,
+        "c.toml",
+        "[lattice]\npreset = \"square\"\na = 3.0\ncells = [64, 64, 1]\n[[species]]\nname = \"A\"\n\
+         moment = 2.0\n[[exchange]]\nshell = 1\nj = 5.0\n[output]\nsnapshot_compression = false\n\
+         [[stage]]\nkind = \"evolve\"\nduration = \"1 ps\"\ndt = \"1 fs\"\ntemperature = 100\n\
+         observe_every = 5\nsnapshot_every = 5\n",
+    );
+    let run = |limit: &str, out: &Path| {
+        std::process::Command::new("prlimit")
+            .args([&format!("--fsize={limit}"), env!("CARGO_BIN_EXE_spindrift"), "run"])
+            .args([cfg.to_str().unwrap(), "--out", out.to_str().unwrap(), "-q"])
+            .output()
+            .unwrap()
+    };
+    let out = dir.join("run");
+    let o = run("12582912", &out);
+    assert_eq!(o.status.code(), Some(4), "{}", stderr(&o));
+    assert!(stderr(&o).contains("per-file size limit (ulimit -f) of 12582912 bytes"), "{}", stderr(&o));
+    let r = RunReader::open(&out).expect("the run file opens after the limit");
+    let steps = r.read_1d("/stage_000/series/step").unwrap();
+    let snaps = r.shape("/stage_000/snapshots/spins").unwrap()[0];
+    assert!((10..201).contains(&snaps), "{snaps} snapshots");
+    // Rows at steps 0, 5, 10, ..., at least up to the last snapshot's.
+    assert!(steps.len() >= snaps, "{} rows, {snaps} snapshots", steps.len());
+    assert!(steps.iter().enumerate().all(|(k, &s)| s == 5.0 * k as f64), "{steps:?}");
+    assert_eq!(r.final_spins().unwrap().expect("the last state in /final").len(), 4096);
+    assert!(!out.join(".spindrift-reserve").exists());
+    let o = run("2097152", &dir.join("small"));
+    assert_eq!(o.status.code(), Some(4), "{}", stderr(&o));
+    assert!(stderr(&o).contains("leaves no room beyond the 8585216 bytes"), "{}", stderr(&o));
+}
+
 /// A run killed with SIGKILL leaves a readable run file with the rows up to its last flush.
 #[test]
 fn sigkill_leaves_a_readable_run_file() {

@@ -12,7 +12,12 @@
 //!
 //! The blocks are pseudo-random bytes rather than zeros, so that a file system that
 //! compresses (or stores runs of zeros as holes) still allocates them. Quotas count the
-//! file too. A per-file size limit (`ulimit -f`) is not helped by it.
+//! file too.
+//!
+//! A per-file size limit (`ulimit -f`, `RLIMIT_FSIZE`) is not helped by a second file: there
+//! the run file itself stops growing at the limit less the reserve's size
+//! ([`file_size_limit`], checked by `RunFile` before each row and snapshot), which leaves
+//! the last writes the same room within the limit.
 
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -31,6 +36,18 @@ const BYTES_PER_SITE: u64 = 48;
 /// Bytes the reserve holds for a lattice of `sites` sites.
 pub fn reserve_bytes(sites: usize) -> u64 {
     FIXED_BYTES + BYTES_PER_SITE * sites as u64
+}
+
+/// The process's per-file size limit in bytes (the soft `RLIMIT_FSIZE`, as Linux lists it in
+/// `/proc/self/limits`), or `None` when it is unlimited or cannot be read.
+pub(crate) fn file_size_limit() -> Option<u64> {
+    let limits = std::fs::read_to_string("/proc/self/limits").ok()?;
+    parse_file_size_limit(&limits)
+}
+
+fn parse_file_size_limit(limits: &str) -> Option<u64> {
+    let line = limits.lines().find(|l| l.starts_with("Max file size"))?;
+    line["Max file size".len()..].split_whitespace().next()?.parse().ok()
 }
 
 /// A reserve file, deleted when dropped.
@@ -72,5 +89,23 @@ impl Drop for Reserve {
     fn drop(&mut self) {
         // A reserve that cannot be deleted leaves a file in the run folder, nothing worse.
         let _ = std::fs::remove_file(&self.path);
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::parse_file_size_limit;
+
+    /// The layout of `/proc/self/limits` (Linux, proc(5)): the soft limit is the first number.
+    #[test]
+    fn reads_the_soft_file_size_limit() {
+        let text = "Limit                     Soft Limit           Hard Limit           Units     \n\
+                    Max cpu time              unlimited            unlimited            seconds   \n\
+                    Max file size             12582912             unlimited            bytes     \n\
+                    Max core file size        0                    unlimited            bytes     \n";
+        assert_eq!(parse_file_size_limit(text), Some(12_582_912));
+        let open = text.replace("12582912 ", "unlimited");
+        assert_eq!(parse_file_size_limit(&open), None);
+        assert_eq!(parse_file_size_limit("Max core file size 0 0 bytes\n"), None);
     }
 }

@@ -45,7 +45,7 @@ use crate::layout::{
     parse_stage_group_name, stage_group_name, RUN_FILE, RUN_FORMAT, RUN_FORMAT_VERSION, UNIT_LENGTH,
     UNIT_MOMENT, UNIT_NONE,
 };
-use crate::reserve::{reserve_bytes, Reserve};
+use crate::reserve::{file_size_limit, reserve_bytes, Reserve};
 use crate::stage::StageWriter;
 use crate::xdmf::write_xdmf;
 
@@ -69,6 +69,9 @@ pub struct RunFile {
     compress_snapshots: bool,
     /// Disk space held until the first failed write or the close (see `reserve.rs`).
     reserve: Option<Reserve>,
+    /// Under a per-file size limit, the size (bytes) beyond which no row or snapshot is
+    /// written, so that the last state and the closing metadata still fit under the limit.
+    size_cap: Option<u64>,
 }
 
 impl RunFile {
@@ -91,6 +94,7 @@ impl RunFile {
             block_rows: DEFAULT_BLOCK_ROWS,
             compress_snapshots: true,
             reserve: None,
+            size_cap: None,
         })
     }
 
@@ -145,6 +149,7 @@ impl RunFile {
             file.unlink("final").ctx(&path, || "removing /final, written after the checkpoint")?;
         }
         file.flush().ctx(&path, || "flushing")?;
+        let size_cap = sites.map(|n| size_cap(&path, n)).transpose()?.flatten();
         let reserve = sites.map(|n| Reserve::create(dir, reserve_bytes(n))).transpose()?;
         Ok(RunFile {
             dir: dir.to_path_buf(),
@@ -155,6 +160,7 @@ impl RunFile {
             block_rows: DEFAULT_BLOCK_ROWS,
             compress_snapshots: true,
             reserve,
+            size_cap,
         })
     }
 
@@ -276,6 +282,7 @@ impl RunFile {
             .ctx(&path, || "writing /lattice attribute layer_count")?;
         self.sites = Some(n);
         if self.reserve.is_none() {
+            self.size_cap = size_cap(&path, n)?;
             self.reserve = Some(Reserve::create(&self.dir, reserve_bytes(n))?);
         }
         Ok(())
@@ -344,6 +351,24 @@ impl RunFile {
         Ok(r?)
     }
 
+    /// Fails once the file has grown to its cap under a per-file size limit, before the
+    /// next row or snapshot is written; the guard then treats it as a failed write.
+    fn room(&self) -> Result<(), IoError> {
+        let (Some(cap), Some(file)) = (self.size_cap, &self.file) else { return Ok(()) };
+        let size = file.size();
+        if size < cap {
+            return Ok(());
+        }
+        let kept = reserve_bytes(self.sites.unwrap_or(0));
+        Err(IoError::invalid(
+            &self.path,
+            format!(
+                "the file has reached {size} bytes: the per-file size limit (ulimit -f) of {} bytes less {kept} kept for the last state; raise the limit or write fewer snapshots",
+                cap + kept
+            ),
+        ))
+    }
+
     fn flush_file(&mut self) -> Result<(), IoError> {
         let path = self.path.clone();
         for stage in self.stages.values_mut() {
@@ -351,6 +376,20 @@ impl RunFile {
         }
         self.file()?.flush().ctx(&path, || "flushing the run file")
     }
+}
+
+/// Under a per-file size limit, the size the run file may grow to before its last writes
+/// (the limit less the reserve's bytes); an error when the limit leaves no room at all.
+fn size_cap(path: &Path, sites: usize) -> Result<Option<u64>, IoError> {
+    let Some(limit) = file_size_limit() else { return Ok(None) };
+    let kept = reserve_bytes(sites);
+    if limit <= kept {
+        return Err(IoError::invalid(
+            path,
+            format!("the per-file size limit (ulimit -f) of {limit} bytes leaves no room beyond the {kept} bytes kept for a run's last state of {sites} spins"),
+        ));
+    }
+    Ok(Some(limit - kept))
 }
 
 /// Asks the operating system to put the file's data on disk.
@@ -371,19 +410,22 @@ impl Sink for RunFile {
 
     fn series(&mut self, stage: usize, row: &SeriesRow) -> Result<(), SinkError> {
         let (path, block) = (self.path.clone(), self.block_rows);
-        let r = self.stage_mut(stage).and_then(|s| s.series(row, block, &path));
+        let r = self.room().and_then(|()| self.stage_mut(stage)).and_then(|s| s.series(row, block, &path));
         self.guard(r)
     }
 
     fn point(&mut self, stage: usize, row: &PointRow) -> Result<(), SinkError> {
         let (path, block) = (self.path.clone(), self.block_rows);
-        let r = self.stage_mut(stage).and_then(|s| s.point(row, block, &path));
+        let r = self.room().and_then(|()| self.stage_mut(stage)).and_then(|s| s.point(row, block, &path));
         self.guard(r)
     }
 
     fn snapshot(&mut self, stage: usize, step: u64, time: f64, spins: &[[f64; 3]]) -> Result<(), SinkError> {
         let path = self.path.clone();
-        let r = self.stage_mut(stage).and_then(|s| s.snapshot(step, time, spins, &path));
+        let r = self
+            .room()
+            .and_then(|()| self.stage_mut(stage))
+            .and_then(|s| s.snapshot(step, time, spins, &path));
         self.guard(r)
     }
 

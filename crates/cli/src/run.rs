@@ -194,7 +194,7 @@ fn engine_failure(e: EngineError) -> Failure {
             ))
         }
         EngineError::Sink(_) => output(e),
-        EngineError::NonFinite { .. } => numerical(e),
+        EngineError::NonFinite { .. } | EngineError::Overflow { .. } => numerical(e),
         _ => bad_input(e),
     }
 }

@@ -182,7 +182,14 @@ pub fn build(
                 let duration = positive(loaded, &format!("{key}.duration"), duration, Dimension::Time)?;
                 let dt = time_step(loaded, &format!("{key}.dt"), s.dt.as_ref(), defaults, warnings)?;
                 if duration / dt > 1e15 {
-                    return Err(loaded.error_at(&format!("{key}.duration"), "too many steps"));
+                    return Err(loaded.error_at(
+                        &format!("{key}.duration"),
+                        format!(
+                            "{duration} ps at dt = {dt:.3e} ps is {:.1e} steps, more than 1e15 (the couplings' recommended dt is {:.3e} ps: are they in meV, and the moments in muB?)",
+                            duration / dt,
+                            defaults.dt
+                        ),
+                    ));
                 }
                 let temperature_ramp = s
                     .temperature_ramp

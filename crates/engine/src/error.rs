@@ -22,6 +22,15 @@ pub enum EngineError {
         /// Site index.
         site: usize,
     },
+    /// Averages that overflowed (the fluctuations of energies too large for `f64`: couplings,
+    /// moments or fields far outside any physical range); the last state was saved.
+    #[error("stage {stage}: {message}; the last state was saved")]
+    Overflow {
+        /// Stage index.
+        stage: usize,
+        /// What overflowed.
+        message: String,
+    },
     /// Something the configuration should have caught (a bug or an unusual system).
     #[error("stage {stage}: {message}")]
     Setup {

@@ -13,7 +13,7 @@ use crate::protocol::{ScanMethod, Stage, StageKind};
 use crate::record::{CurieEstimate, PointRow, StageSummary};
 use crate::runner::{Cursor, Runner, StageEnd};
 use spindrift_dynamics::{Heun, HeunParams, Metropolis};
-use spindrift_observe::{susceptibility_peak, Samples, ScanPoint};
+use spindrift_observe::{susceptibility_peak, ObserveError, Samples, ScanPoint};
 
 /// Sweeps between fresh evaluations of the Monte Carlo running energy. Each costs about
 /// one field evaluation, a small part of a sweep; between them the running sum drifts by
@@ -168,9 +168,16 @@ pub(crate) fn run(
                 continue;
             }
         }
-        let avg = samples.averages(r.h.spin_count(), temperature).map_err(|e| EngineError::Setup {
-            stage: stage_index,
-            message: format!("at {temperature} K: {e}"),
+        let avg = samples.averages(r.h.spin_count(), temperature).map_err(|e| match e {
+            // Samples are finite (a non-finite spin stops the stage first), so a non-finite
+            // average is an overflow of their squares: energies beyond 1e154 meV per spin.
+            ObserveError::NonFinite { .. } => EngineError::Overflow {
+                stage: stage_index,
+                message: format!(
+                    "at {temperature} K the averages overflow ({e}), as energies far beyond any physical range do (check that couplings, moments and fields are in meV, muB and T)"
+                ),
+            },
+            _ => EngineError::Setup { stage: stage_index, message: format!("at {temperature} K: {e}") },
         })?;
         r.point(&PointRow {
             temperature,

@@ -213,6 +213,8 @@ fn bad_input_is_reported_with_exit_code_2() {
             ),
             "c11.toml:15: stage.0.measure: 6 steps sampled every 10",
         ),
+        // Moments in the wrong unit: a recommended time step so small the stage cannot run.
+        (good.replace("moment = 2.0", "moment = 2e-300"), "stage.0.duration: 0.01 ps at dt = 1.000e-303 ps is 1.0e301 steps, more than 1e15"),
         // A longer array is refused, not cut to its first three elements.
         (good.replace("cells = [8, 8, 1]", "cells = [8, 8, 1, 2]"), "lattice.cells: invalid length 4"),
         // A table's place holding a number: no Rust type name in the message.
@@ -591,6 +593,41 @@ fn a_file_size_limit_keeps_the_rows_written() {
     let o = run("2097152", &dir.join("small"));
     assert_eq!(o.status.code(), Some(4), "{}", stderr(&o));
     assert!(stderr(&o).contains("leaves no room beyond the 8585216 bytes"), "{}", stderr(&o));
+}
+
+/// Numerical failures end with exit 3 and the last state in `/final` (INTERFACE.md's exit
+/// codes): spins that become non-finite (a damping of 1e300 at the first step), and
+/// Monte Carlo averages that overflow (a moment of 1e300 muB in 1 T: energies near 1e299
+/// meV, whose squares overflow), which used to end with exit 2 as if the input were unreadable.
+#[test]
+fn numerical_failures_exit_3_with_the_last_state() {
+    let dir = temp_dir("numerical");
+    let base = "[lattice]\npreset = \"square\"\na = 3.0\ncells = [8, 8, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\n\
+                [[exchange]]\nshell = 1\nj = 5.0\n[field]\nb = [0, 0, 1]\n";
+    let cases = [
+        (
+            "damping",
+            "[[stage]]\nkind = \"evolve\"\nduration = \"10 fs\"\ntemperature = 10\n",
+            "species.0.damping=1e300",
+            "spin 0 became non-finite at step 0",
+        ),
+        (
+            "moment",
+            "[[stage]]\nkind = \"metropolis\"\ntemperature = 100\nequilibrate = 5\nmeasure = 20\n",
+            "species.0.moment=1e300",
+            "stage 0: at 100 K the averages overflow",
+        ),
+    ];
+    for (name, stage, set, needle) in cases {
+        let cfg = write_config(&dir, &format!("{name}.toml"), &format!("{base}{stage}"));
+        let out = dir.join(name);
+        let o =
+            spindrift(&["run", cfg.to_str().unwrap(), "--set", set, "--out", out.to_str().unwrap(), "-q"]);
+        assert_eq!(o.status.code(), Some(3), "{name}: {}", stderr(&o));
+        assert!(stderr(&o).contains(needle), "{name}: {}", stderr(&o));
+        let r = RunReader::open(&out).unwrap();
+        assert_eq!(r.final_spins().unwrap().expect("the last state in /final").len(), 64, "{name}");
+    }
 }
 
 /// A run killed with SIGKILL leaves a readable run file with the rows up to its last flush.

@@ -73,10 +73,15 @@ fn parse_vary(spec: &str) -> Result<Vary, Failure> {
             if !(st > 0.0 && st.is_finite()) {
                 return Err(bad_input(anyhow!("--vary {key}: the step of `{v}` must be positive")));
             }
-            let n = ((b - a).abs() / st + 1e-9).floor() as usize + 1;
-            if n > 100_000 {
-                return Err(bad_input(anyhow!("--vary {key}: `{v}` gives {n} values")));
+            // Counted in f64: `as usize` saturates, and the `+ 1` would then wrap.
+            let steps = ((b - a).abs() / st + 1e-9).floor();
+            if steps >= 100_000.0 || !steps.is_finite() {
+                return Err(bad_input(anyhow!(
+                    "--vary {key}: `{v}` gives {:.3e} values (at most 100000)",
+                    steps + 1.0
+                )));
             }
+            let n = steps as usize + 1;
             let sign = if b >= a { 1.0 } else { -1.0 };
             let integral =
                 [parts[0], parts[1], parts[2]].iter().all(|p| !p.contains('.') && !p.contains('e'));

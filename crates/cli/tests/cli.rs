@@ -215,6 +215,15 @@ fn bad_input_is_reported_with_exit_code_2() {
         ),
         // Moments in the wrong unit: a recommended time step so small the stage cannot run.
         (good.replace("moment = 2.0", "moment = 2e-300"), "stage.0.duration: 0.01 ps at dt = 1.000e-303 ps is 1.0e301 steps, more than 1e15"),
+        // A scan range of 1e298 temperatures: refused as too many (its count wrapped to 0,
+        // "needs at least one temperature").
+        (
+            good.replace(
+                "kind = \"evolve\"\nduration = 0.01",
+                "kind = \"temperature-scan\"\nfrom = 10\nto = 1e300\nstep = 45",
+            ),
+            "stage.0.step: 2.222e298 temperatures is too many",
+        ),
         // A longer array is refused, not cut to its first three elements.
         (good.replace("cells = [8, 8, 1]", "cells = [8, 8, 1, 2]"), "lattice.cells: invalid length 4"),
         // A table's place holding a number: no Rust type name in the message.
@@ -764,6 +773,10 @@ fn sweep_shards_merge_to_the_same_table() {
     assert!(stderr(&o).contains("tempreature"), "{}", stderr(&o));
     let o = spindrift(&["sweep", c, "--out", bad.to_str().unwrap(), "--vary", "stage.0.temperature=5,-3"]);
     assert_eq!(o.status.code(), Some(2));
+    let o =
+        spindrift(&["sweep", c, "--out", bad.to_str().unwrap(), "--vary", "stage.0.temperature=0:1e300:1"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("values (at most 100000)"), "{}", stderr(&o));
     assert!(!bad.join("point_0000").exists());
     let _ = repo();
 }

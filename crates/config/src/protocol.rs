@@ -281,39 +281,42 @@ pub fn build(
                 }
             }
             RawKind::TemperatureScan => {
-                let mut temps = match (&s.temperatures, &s.from, &s.to, &s.step) {
-                    (Some(list), None, None, None) => {
-                        let mut t = Vec::new();
-                        for (i, q) in list.iter().enumerate() {
-                            t.push(temperature_of(loaded, &format!("{key}.temperatures.{i}"), q)?);
+                let mut temps =
+                    match (&s.temperatures, &s.from, &s.to, &s.step) {
+                        (Some(list), None, None, None) => {
+                            let mut t = Vec::new();
+                            for (i, q) in list.iter().enumerate() {
+                                t.push(temperature_of(loaded, &format!("{key}.temperatures.{i}"), q)?);
+                            }
+                            t
                         }
-                        t
-                    }
-                    (None, Some(a), Some(b), Some(st)) => {
-                        let a = temperature_of(loaded, &format!("{key}.from"), a)?;
-                        let b = temperature_of(loaded, &format!("{key}.to"), b)?;
-                        let st = positive(loaded, &format!("{key}.step"), st, Dimension::Temperature)?;
-                        let n = ((b - a).abs() / st + 1e-9).floor() as usize + 1;
-                        if n > 100_000 {
-                            return Err(loaded
-                                .error_at(&format!("{key}.step"), format!("{n} temperatures is too many")));
+                        (None, Some(a), Some(b), Some(st)) => {
+                            let a = temperature_of(loaded, &format!("{key}.from"), a)?;
+                            let b = temperature_of(loaded, &format!("{key}.to"), b)?;
+                            let st = positive(loaded, &format!("{key}.step"), st, Dimension::Temperature)?;
+                            // Counted in f64: `as usize` saturates, and the `+ 1` would then wrap.
+                            let steps = ((b - a).abs() / st + 1e-9).floor();
+                            if steps >= 100_000.0 {
+                                return Err(loaded.error_at(
+                                    &format!("{key}.step"),
+                                    format!("{:.3e} temperatures is too many (at most 100000)", steps + 1.0),
+                                ));
+                            }
+                            let n = steps as usize + 1;
+                            let sign = if b >= a { 1.0 } else { -1.0 };
+                            (0..n).map(|i| a + sign * st * i as f64).collect()
                         }
-                        let sign = if b >= a { 1.0 } else { -1.0 };
-                        (0..n).map(|i| a + sign * st * i as f64).collect()
-                    }
-                    (Some(_), _, _, _) => {
-                        return Err(loaded.error_at(
-                            &format!("{key}.temperatures"),
-                            "give `temperatures` or `from`/`to`/`step`, not both",
-                        ))
-                    }
-                    _ => {
-                        return Err(loaded.error_at(
+                        (Some(_), _, _, _) => {
+                            return Err(loaded.error_at(
+                                &format!("{key}.temperatures"),
+                                "give `temperatures` or `from`/`to`/`step`, not both",
+                            ))
+                        }
+                        _ => return Err(loaded.error_at(
                             &key,
                             "a `temperature-scan` needs `temperatures = [..]` or all of `from`, `to`, `step`",
-                        ))
-                    }
-                };
+                        )),
+                    };
                 if temps.is_empty() {
                     return Err(
                         loaded.error_at(&format!("{key}.temperatures"), "needs at least one temperature")

@@ -224,6 +224,15 @@ fn bad_input_is_reported_with_exit_code_2() {
             ),
             "stage.0.step: 2.222e298 temperatures is too many",
         ),
+        // Counts whose products would pass 64 bits.
+        (good.replace("duration = 0.01", "duration = 0.01\nobserve_every = 2000000000000000"), "stage.0.observe_every: must be at most 1e15"),
+        (
+            good.replace(
+                "kind = \"evolve\"\nduration = 0.01",
+                "kind = \"temperature-scan\"\ntemperatures = [1, 2, 3]\nmeasure = 900000000000000",
+            ),
+            "3 temperatures of 1000 + 900000000000000 steps are more than 1e15 in all",
+        ),
         // A longer array is refused, not cut to its first three elements.
         (good.replace("cells = [8, 8, 1]", "cells = [8, 8, 1, 2]"), "lattice.cells: invalid length 4"),
         // A table's place holding a number: no Rust type name in the message.

@@ -59,6 +59,8 @@ fn parse_value(raw: &str) -> Result<Value, String> {
             // reported instead of silently becoming a string.
             if text.starts_with(['[', '{', '"', '\'']) {
                 Err(format!("cannot read `{text}` as a TOML value: {}", e.message().trim()))
+            } else if let Some(n) = integer_toml_refuses(text) {
+                n
             } else if let Some(x) = number_toml_refuses(text) {
                 // `1e400` overflows and `.5` lacks the digit TOML wants before its point: both were
                 // meant as numbers, not as the string the key's type would then complain of.
@@ -72,6 +74,19 @@ fn parse_value(raw: &str) -> Result<Value, String> {
             }
         }
     }
+}
+
+/// Digits alone (after an optional sign) that TOML refused: `007` (leading zeros) is read as
+/// 7, and an integer beyond TOML's 64-bit signed range is refused as such.
+fn integer_toml_refuses(text: &str) -> Option<Result<Value, String>> {
+    let digits = text.strip_prefix(['+', '-']).unwrap_or(text);
+    if digits.is_empty() || !digits.bytes().all(|b| b.is_ascii_digit()) {
+        return None;
+    }
+    Some(match text.parse::<i64>() {
+        Ok(n) => Ok(Value::Integer(n)),
+        Err(_) => Err(format!("`{text}` is beyond the integers TOML holds (at most {})", i64::MAX)),
+    })
 }
 
 /// A number as Rust reads it (`.5`, `5.`, `1e400`) that TOML did not: text starting with a digit, a
@@ -274,6 +289,10 @@ temperature = 10
         assert_eq!(get(&d, "stage.1.temperature"), &Value::Float(0.5));
         apply_set(&mut d, "stage.1.temperature=-5.").unwrap();
         assert_eq!(get(&d, "stage.1.temperature"), &Value::Float(-5.0));
+        apply_set(&mut d, "stage.1.measure=007").unwrap();
+        assert_eq!(get(&d, "stage.1.measure"), &Value::Integer(7));
+        let e = apply_set(&mut d, "stage.1.measure=18446744073709551615").unwrap_err();
+        assert!(e.message.contains("beyond the integers TOML holds"), "{e}");
         let e = apply_set(&mut d, "stage.1.temperature=1e400").unwrap_err();
         assert!(e.message.contains("`1e400` is not a finite number"), "{e}");
         apply_set(&mut d, "title=infinity").unwrap();

@@ -117,6 +117,9 @@ fn time_step(
     Ok(dt)
 }
 
+/// The largest step, sweep or point count a stage key takes.
+const MAX_COUNT: u64 = 1_000_000_000_000_000;
+
 /// Builds the protocol; `warnings` collects what is allowed but doubtful.
 pub fn build(
     loaded: &Loaded,
@@ -138,6 +141,20 @@ pub fn build(
                         allowed(s.kind).join(", ")
                     ),
                 ));
+            }
+        }
+        // Counts beyond this (years of any machine's time) are typos or unit slips, and
+        // products of them (steps per point times points) would overflow 64 bits.
+        for (name, count) in [
+            ("observe_every", s.observe_every),
+            ("snapshot_every", s.snapshot_every),
+            ("max_steps", s.max_steps),
+            ("points", s.points),
+            ("equilibrate", s.equilibrate),
+            ("measure", s.measure),
+        ] {
+            if count.is_some_and(|c| c > MAX_COUNT) {
+                return Err(loaded.error_at(&format!("{key}.{name}"), "must be at most 1e15"));
             }
         }
         let temperature = s
@@ -343,13 +360,18 @@ pub fn build(
                     RawMethod::Llg => ScanMethod::Llg,
                 };
                 let dt = time_step(loaded, &format!("{key}.dt"), s.dt.as_ref(), defaults, warnings)?;
-                StageKind::TemperatureScan {
-                    temperatures: temps,
-                    method,
-                    equilibrate: s.equilibrate.unwrap_or(1000),
-                    measure: measure(loaded, &key, s.measure)?,
-                    dt,
+                let (equilibrate, measure) =
+                    (s.equilibrate.unwrap_or(1000), measure(loaded, &key, s.measure)?);
+                if (equilibrate + measure) as f64 * temps.len() as f64 > MAX_COUNT as f64 {
+                    return Err(loaded.error_at(
+                        &format!("{key}.measure"),
+                        format!(
+                            "{} temperatures of {equilibrate} + {measure} steps are more than 1e15 in all",
+                            temps.len()
+                        ),
+                    ));
                 }
+                StageKind::TemperatureScan { temperatures: temps, method, equilibrate, measure, dt }
             }
         };
         let observe_default = match s.kind {

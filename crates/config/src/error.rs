@@ -22,6 +22,26 @@ pub struct ConfigError {
     pub message: String,
 }
 
+/// Writes numbers of 25 or more digits (how Rust and serde print `1e300` or `1e-300` as
+/// `f64`: hundreds of digits) in scientific notation, so that a message stays one readable line.
+fn compact_numbers(message: &str) -> String {
+    let mut out = String::with_capacity(message.len());
+    let mut rest = message;
+    while let Some(start) = rest.find(|c: char| c.is_ascii_digit()) {
+        out.push_str(&rest[..start]);
+        let len =
+            rest[start..].find(|c: char| !(c.is_ascii_digit() || c == '.')).unwrap_or(rest.len() - start);
+        let run = &rest[start..start + len];
+        match run.parse::<f64>() {
+            Ok(x) if len >= 25 => out.push_str(&format!("{x:e}")),
+            _ => out.push_str(run),
+        }
+        rest = &rest[start + len..];
+    }
+    out.push_str(rest);
+    out
+}
+
 impl ConfigError {
     /// An error at `key` of `file`, on `line` (1-based) if known.
     pub fn new(
@@ -30,7 +50,7 @@ impl ConfigError {
         line: Option<usize>,
         message: impl Into<String>,
     ) -> Self {
-        ConfigError { file: file.into(), key: key.into(), line, message: message.into() }
+        ConfigError { file: file.into(), key: key.into(), line, message: compact_numbers(&message.into()) }
     }
 
     /// The same error, attributed to `file`.
@@ -314,6 +334,18 @@ impl ValueScan {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Our own behaviour: hundreds of digits become one number in scientific notation;
+    /// ordinary numbers, and 19-digit integers a user typed, stay as written.
+    #[test]
+    fn long_numbers_are_compacted() {
+        let big = format!("must be >= 0, got {}", -1e300);
+        assert_eq!(compact_numbers(&big), "must be >= 0, got -1e300");
+        let tiny = format!("got {} fs, line 12", 1e-300);
+        assert_eq!(compact_numbers(&tiny), "got 1e-300 fs, line 12");
+        let plain = "`18446744073709551615` is beyond 9223372036854775807; dt 0.0005 ps at 2.5e-9";
+        assert_eq!(compact_numbers(plain), plain);
+    }
 
     #[test]
     fn edit_distance_textbook_cases() {

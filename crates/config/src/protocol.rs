@@ -136,7 +136,8 @@ pub fn build(
                 return Err(loaded.error_at(
                     &format!("{key}.{name}"),
                     format!(
-                        "`{name}` does not apply to a `{}` stage (it takes: {})",
+                        "`{name}` does not apply to {} `{}` stage (it takes: {})",
+                        if s.kind.as_str().starts_with('e') { "an" } else { "a" },
                         s.kind.as_str(),
                         allowed(s.kind).join(", ")
                     ),

@@ -50,6 +50,14 @@ fn split_top(s: &str) -> Vec<String> {
     out
 }
 
+/// A value of a `from:to:step` range as TOML text, rounded to 12 significant digits so that
+/// the rounding of `from + k step` does not show (`0.3`, not `0.30000000000000004`); Rust's
+/// `Debug` form, which is valid TOML (`0.3`, `1e-7`).
+fn range_value(x: f64) -> String {
+    let rounded: f64 = format!("{x:.11e}").parse().unwrap_or(x);
+    format!("{rounded:?}")
+}
+
 fn parse_vary(spec: &str) -> Result<Vary, Failure> {
     let (key, values) =
         spec.split_once('=').ok_or_else(|| bad_input(anyhow!("--vary {spec}: expected KEY=V1,V2,...")))?;
@@ -87,7 +95,7 @@ fn parse_vary(spec: &str) -> Result<Vary, Failure> {
                 [parts[0], parts[1], parts[2]].iter().all(|p| !p.contains('.') && !p.contains('e'));
             for i in 0..n {
                 let x = a + sign * st * i as f64;
-                out.push(if integral { format!("{}", x.round() as i64) } else { format!("{x}") });
+                out.push(if integral { format!("{}", x.round() as i64) } else { range_value(x) });
             }
         } else {
             out.push(v);
@@ -367,7 +375,8 @@ fn merge_one(dir: &Path) -> Outcome {
             csv.push_str(&format!(",\"{}\"", v.replace('"', "'")));
         }
         for x in &scalars {
-            csv.push_str(&if x.is_finite() { format!(",{x}") } else { ",".to_string() });
+            // `Debug` keeps every digit but writes 2e-18 as such, not as 0.000000000000000002.
+            csv.push_str(&if x.is_finite() { format!(",{x:?}") } else { ",".to_string() });
         }
         csv.push('\n');
         if status == "done" {

@@ -782,6 +782,22 @@ fn sweep_shards_merge_to_the_same_table() {
     assert!(stderr(&o).contains("tempreature"), "{}", stderr(&o));
     let o = spindrift(&["sweep", c, "--out", bad.to_str().unwrap(), "--vary", "stage.0.temperature=5,-3"]);
     assert_eq!(o.status.code(), Some(2));
+    // A range's values as written, not as `0.1 + 2 * 0.1` rounds (0.30000000000000004).
+    let range = dir.join("range");
+    let o = spindrift(&[
+        "sweep",
+        c,
+        "--out",
+        range.to_str().unwrap(),
+        "--set",
+        "stage.0.duration=\"10 fs\"",
+        "--vary",
+        "stage.0.temperature=0.1:0.7:0.1",
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let manifest = std::fs::read_to_string(range.join("sweep.json")).unwrap();
+    let v: Value = serde_json::from_str(&manifest).unwrap();
+    assert_eq!(v["vary"][0]["values"], serde_json::json!(["0.1", "0.2", "0.3", "0.4", "0.5", "0.6", "0.7"]));
     let o =
         spindrift(&["sweep", c, "--out", bad.to_str().unwrap(), "--vary", "stage.0.temperature=0:1e300:1"]);
     assert_eq!(o.status.code(), Some(2));

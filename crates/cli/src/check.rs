@@ -177,7 +177,7 @@ impl<'a> Report<'a> {
         );
         say!();
         say!("run");
-        say!("  recommended dt  {} fs", self.v.recommended_dt * 1e3);
+        say!("  recommended dt  {} fs", num(self.v.recommended_dt * 1e3));
         say!("  memory          about {}", human_bytes(self.v.memory_estimate_bytes));
         say!(
             "  disk reserve    {} held in the run folder while it runs (room for the last writes if the disk fills)",
@@ -186,14 +186,20 @@ impl<'a> Report<'a> {
         for (k, s) in self.v.protocol.stages.iter().enumerate() {
             let what = match &s.kind {
                 StageKind::Evolve { duration, dt, .. } => {
-                    format!("{duration} ps in steps of {} fs ({} steps)", dt * 1e3, (duration / dt).round())
+                    format!(
+                        "{} ps in steps of {} fs ({} steps)",
+                        num(*duration),
+                        num(dt * 1e3),
+                        num((duration / dt).round())
+                    )
                 }
                 StageKind::Relax { torque_tolerance, max_steps } => {
-                    format!("to torque < {torque_tolerance} T (at most {max_steps} iterations)")
+                    format!("to torque < {} T (at most {max_steps} iterations)", num(*torque_tolerance))
                 }
                 StageKind::FieldLoop { max, points, relax, .. } => {
                     format!(
-                        "+-{max} T, {points} fields per branch, {}",
+                        "+-{} T, {points} fields per branch, {}",
+                        num(*max),
                         if *relax { "relaxed" } else { "settled" }
                     )
                 }
@@ -201,11 +207,16 @@ impl<'a> Report<'a> {
                 StageKind::TemperatureScan { temperatures, equilibrate, measure, .. } => format!(
                     "{} temperatures {}..{} K, {equilibrate} + {measure} each",
                     temperatures.len(),
-                    temperatures.first().copied().unwrap_or(0.0),
-                    temperatures.last().copied().unwrap_or(0.0)
+                    num(temperatures.first().copied().unwrap_or(0.0)),
+                    num(temperatures.last().copied().unwrap_or(0.0))
                 ),
             };
-            say!("  stage {k}  {:<17} at {} K: {what}", s.kind_name(), s.temperature);
+            if matches!(s.kind, StageKind::TemperatureScan { .. }) {
+                // A scan's temperatures are its own; `temperature` does not apply to it.
+                say!("  stage {k}  {:<17} {what}", s.kind_name());
+            } else {
+                say!("  stage {k}  {:<17} at {} K: {what}", s.kind_name(), num(s.temperature));
+            }
         }
         if self.v.protocol.stages.is_empty() {
             say!("  no [[stage]]: `spindrift run` has nothing to do");
@@ -213,6 +224,16 @@ impl<'a> Report<'a> {
         for w in &self.v.warnings {
             say!("warning: {w}");
         }
+    }
+}
+
+/// A number as written in a config: `0.05`, `300`, and `1e-7` or `1e300` rather than the
+/// hundreds of digits Rust's `Display` gives such values.
+fn num(x: f64) -> String {
+    if x == 0.0 || (1e-4..1e15).contains(&x.abs()) {
+        format!("{x}")
+    } else {
+        format!("{x:e}")
     }
 }
 

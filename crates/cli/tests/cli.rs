@@ -43,6 +43,14 @@ fn check_json_has_the_interface_keys() {
     assert!(v["curie_rpa"].as_f64().unwrap() < mf);
     let text = spindrift(&["check", "configs/demo.toml"]);
     assert!(String::from_utf8_lossy(&text.stdout).contains("mean field"));
+    // Extreme values print as numbers one can read (1e300, not 301 digits); a scan is not
+    // said to run at the stage temperature it does not use. Our own behaviour.
+    let o = spindrift(&["check", "configs/demo.toml", "--set", "stage.1.torque_tolerance=1e300"]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(text.contains("to torque < 1e300 T"), "{text}");
+    let o = spindrift(&["check", "configs/thickness.toml"]);
+    let text = String::from_utf8_lossy(&o.stdout);
+    assert!(text.contains("temperature-scan  ") && !text.contains("temperature-scan  at"), "{text}");
 }
 
 /// A bond table in mRy: every pair once, reverse bonds added; the mean-field estimate is

@@ -7,7 +7,7 @@ use crate::progress::Progress;
 use crate::signals;
 use crate::system::{load_system, on_pool, set_threads};
 use anyhow::anyhow;
-use spindrift_config::{parse_wall_duration, Loaded, Validated};
+use spindrift_config::{config_difference, parse_wall_duration, Loaded, Validated};
 use spindrift_engine::{
     Control, EngineError, Outcome as RunEnd, RunHeader, Runner, StageSummary, StopReason,
 };
@@ -30,6 +30,7 @@ pub fn header(loaded: &Loaded, v: &Validated) -> RunHeader {
         title: v.title.clone(),
         seed: v.seed,
         config_toml: loaded.text.clone(),
+        inputs: v.inputs.clone(),
         program_version: env!("CARGO_PKG_VERSION").to_string(),
         position: (0..n).map(|i| cell.position(i)).collect(),
         site: (0..n).map(|i| (i % cell.basis_len()) as u32).collect(),
@@ -82,10 +83,21 @@ pub fn run(args: &RunArgs) -> Outcome {
         let stored = RunReader::open(dir)
             .and_then(|r| r.attributes())
             .map_err(|e| bad_input(anyhow!("--resume: {e}")))?;
-        if stored.config != loaded.text {
+        // The same keys and values, whatever the comments and layout (a note added to the
+        // config file while the run waited does not change what it computes).
+        if let Some(difference) = config_difference(&stored.config, &loaded.text) {
             return Err(bad_input(anyhow!(
-                "--resume {}: the run was made from a different config (or other --set values); resume with the same ones",
+                "--resume {}: the run was made from a different config (or other --set values): {difference}; resume with the same ones",
                 dir.display()
+            )));
+        }
+        // Files written before the bond tables' digests were recorded have none to compare.
+        if !stored.inputs.is_empty() && stored.inputs != v.inputs {
+            return Err(bad_input(anyhow!(
+                "--resume {}: a bond table's couplings changed since the run began (recorded: {}; now: {}); resume with the tables it began with",
+                dir.display(),
+                stored.inputs.trim().replace('\n', "; "),
+                v.inputs.trim().replace('\n', "; ")
             )));
         }
         let mut file = RunFile::reopen(dir, &checkpoint.rows).map_err(output)?;

@@ -511,6 +511,51 @@ fn max_wall_stops_with_a_checkpoint() {
     assert!(String::from_utf8_lossy(&o.stdout).contains("checkpoint is present"));
 }
 
+/// A resume compares what the run computes from, not how it is written: a comment added to
+/// the config or to its bond table is no difference (the resumed run equals one never
+/// stopped), a changed coupling in the table is refused, naming the table, and a changed
+/// config value is refused naming its key. Our own behaviour (INTERFACE.md: `--resume`
+/// continues to the same result, bit for bit).
+#[test]
+fn a_resume_refuses_changed_couplings_but_not_comments() {
+    let dir = temp_dir("resume-inputs");
+    let table = std::fs::read_to_string(repo().join("tests/configs/bonds.dat")).unwrap();
+    let config = std::fs::read_to_string(repo().join("tests/configs/table.toml")).unwrap().replace(
+        "cells = [6, 6, 6]",
+        "cells = [12, 12, 12]\n[[stage]]\nkind = \"evolve\"\nduration = \"1 ps\"\ntemperature = 50",
+    );
+    std::fs::write(dir.join("bonds.dat"), &table).unwrap();
+    let cfg = write_config(&dir, "c.toml", &config);
+    let c = cfg.to_str().unwrap();
+    let (straight, stopped) = (dir.join("straight"), dir.join("stopped"));
+    let o = spindrift(&["run", c, "--out", straight.to_str().unwrap(), "-q"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    // 3.5e7 spin-steps: seconds at the rates of README's table, stopped after 0.2 s.
+    let o = spindrift(&["run", c, "--out", stopped.to_str().unwrap(), "-q", "--max-wall", "0.2 s"]);
+    assert_eq!(o.status.code(), Some(75), "{}", stderr(&o));
+    let resume = || spindrift(&["run", c, "--resume", stopped.to_str().unwrap(), "-q"]);
+    // A coupling of the table changed: refused.
+    std::fs::write(dir.join("bonds.dat"), table.replacen("1.2", "1.3", 1)).unwrap();
+    let o = resume();
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(
+        stderr(&o).contains("a bond table's couplings changed")
+            && stderr(&o).contains("bond_table.0: 14 pairs")
+    );
+    // A config value changed: refused, naming it.
+    write_config(&dir, "c.toml", &config.replace("temperature = 50", "temperature = 60"));
+    std::fs::write(dir.join("bonds.dat"), &table).unwrap();
+    let o = resume();
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("`stage.0.temperature`: `50` before, `60` now"), "{}", stderr(&o));
+    // Comments added to both: resumed, to the run never stopped.
+    write_config(&dir, "c.toml", &format!("# resumed on another node\n{config}"));
+    std::fs::write(dir.join("bonds.dat"), format!("# checked again\n{table}")).unwrap();
+    let o = resume();
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_same_run(&straight, &stopped);
+}
+
 /// A disk that fills mid-run: exit 4, and the run file opens with the rows written before
 /// the failure (a prefix of the run) and the last state, where without the disk reserve the
 /// failed flush on closing left a file HDF5 could not open (every row lost). The disk is a

@@ -19,6 +19,7 @@
 mod bond_table;
 mod error;
 mod exact;
+mod inputs;
 mod load;
 mod overrides;
 pub mod protocol;
@@ -29,6 +30,7 @@ mod validate;
 
 pub use bond_table::{read_table, TablePair};
 pub use error::{closest, edit_distance, line_of_key, ConfigError};
+pub use inputs::config_difference;
 pub use load::{load, load_str, Loaded};
 pub use overrides::{apply_set, set_key_path};
 pub use raw::RawConfig;

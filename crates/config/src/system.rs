@@ -62,6 +62,8 @@ pub struct SystemBuild {
     /// Couplings that the crystal has but this supercell cannot hold (e.g. interlayer
     /// exchange in a monolayer), reported rather than refused.
     pub warnings: Vec<String>,
+    /// One line per bond table: its key, pairs and a digest of the couplings as read.
+    pub inputs: Vec<String>,
 }
 
 fn lattice_error(loaded: &Loaded, e: LatticeError) -> ConfigError {
@@ -376,6 +378,7 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
         bonds.add_pair(b.from, b.to, o, v, c).map_err(|e| loaded.error_at(&key, e.to_string()))?;
         couplings.push(CouplingReport { key, distance: spindrift_lattice::norm(v), pairs: 1 });
     }
+    let mut inputs = Vec::new();
     for (k, t) in raw.bond_table.iter().enumerate() {
         let key = format!("bond_table.{k}");
         let unit = t.unit.as_deref().unwrap_or("meV");
@@ -394,6 +397,7 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
             t.ferromagnetic.unwrap_or(FerroSign::Positive),
             nb,
         )?;
+        inputs.push(crate::inputs::table_line(&key, &rows));
         let mut left_out = Vec::new();
         for r in &rows {
             if !cell.offset_allowed(r.cell) {
@@ -425,7 +429,7 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
     let species_names = species.iter().map(|s| s.name.clone()).collect();
     let hamiltonian = Hamiltonian::new(cell, species, bonds, field)
         .map_err(|e| loaded.error_at("species", e.to_string()))?;
-    Ok(SystemBuild { hamiltonian, couplings, species_names, warnings })
+    Ok(SystemBuild { hamiltonian, couplings, species_names, warnings, inputs })
 }
 
 /// A shell coupling found no pairs. If the bulk crystal has them, only the supercell's

@@ -36,6 +36,10 @@ pub struct Validated {
     pub snapshot_compression: bool,
     /// Doubtful but allowed settings.
     pub warnings: Vec<String>,
+    /// What the config read from other files, one line per bond table (its key, pairs and a
+    /// digest of the couplings as read); empty without tables. A run records it, and a
+    /// resume refuses tables whose couplings changed since.
+    pub inputs: String,
 }
 
 /// Validates a loaded config. `memory_limit` (bytes) refuses systems that would not fit.
@@ -78,6 +82,7 @@ pub fn validate(loaded: &Loaded, memory_limit: Option<u64>) -> Result<Validated,
         checkpoint_every: loaded.raw.run.as_ref().and_then(|r| r.checkpoint_every.as_ref()).map(|d| d.0),
         snapshot_compression: loaded.raw.output.as_ref().and_then(|o| o.snapshot_compression).unwrap_or(true),
         warnings,
+        inputs: sys.inputs.iter().map(|l| format!("{l}\n")).collect(),
     })
 }
 

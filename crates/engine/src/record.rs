@@ -14,6 +14,9 @@ pub struct RunHeader {
     pub seed: u64,
     /// The resolved configuration, as TOML text.
     pub config_toml: String,
+    /// What the configuration read from other files (a line per bond table: its key, pairs
+    /// and a digest of the couplings as read); empty when it read none.
+    pub inputs: String,
     /// Program version (semver).
     pub program_version: String,
     /// Cartesian position of every site, Å.

@@ -26,6 +26,9 @@ pub struct RunAttributes {
     pub program_version: String,
     /// The resolved configuration, TOML text.
     pub config: String,
+    /// What the configuration read from other files (bond tables, a line each with a digest
+    /// of the couplings); empty when none, or in files written before it was recorded.
+    pub inputs: String,
     /// Base seed.
     pub seed: u64,
     /// Title from the config.
@@ -121,6 +124,7 @@ impl RunReader {
                 .ctx(p, || "reading root attribute format_version")?,
             program_version: s("program_version")?,
             config: s("config")?,
+            inputs: if has_attr(f, "inputs") { s("inputs")? } else { String::new() },
             seed: read_attr(f, "seed").ctx(p, || "reading root attribute seed")?,
             title: s("title")?,
         })

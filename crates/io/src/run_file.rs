@@ -263,6 +263,7 @@ impl RunFile {
         let attr = |what: &str| format!("writing root attribute {what}");
         set_str_attr(file, "program_version", &h.program_version).ctx(&path, || attr("program_version"))?;
         set_str_attr(file, "config", &h.config_toml).ctx(&path, || attr("config"))?;
+        set_str_attr(file, "inputs", &h.inputs).ctx(&path, || attr("inputs"))?;
         set_attr(file, "seed", &h.seed).ctx(&path, || attr("seed"))?;
         set_str_attr(file, "title", &h.title).ctx(&path, || attr("title"))?;
         if file.link_exists("lattice") {

@@ -180,6 +180,7 @@ fn reader_reads_back_what_the_sink_wrote() {
     assert_eq!(a.format, "spindrift-run");
     assert_eq!(a.format_version, 1);
     assert_eq!(a.config, h.config_toml);
+    assert_eq!(a.inputs, h.inputs);
     assert_eq!(a.seed, h.seed);
     assert_eq!(a.title, h.title);
     assert_eq!(a.program_version, h.program_version);

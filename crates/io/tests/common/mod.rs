@@ -78,6 +78,7 @@ pub fn header() -> RunHeader {
         title: "scripted test run of an invented material".into(),
         seed: 0xDEAD_BEEF_1234_5678,
         config_toml: "title = \"t\"\nseed = 7\n[lattice]\npreset = \"square\"\n".into(),
+        inputs: "bond_table.0: 2 pairs, fnv1a64 0123456789abcdef\n".into(),
         program_version: "0.1.0".into(),
         position,
         site,

@@ -220,7 +220,9 @@ fn print_summary(dir: &Path, stages: &[StageSummary], wall: f64) {
             "  stage {} {:<16} {:>9} steps  {:.3e} spin-steps/s   m = [{:+.4}, {:+.4}, {:+.4}]  E = {:.4} meV/spin  Q = {:+.3}",
             s.index, s.kind, s.steps, s.spin_steps_per_second, m[0], m[1], m[2], f.energy, f.charge
         );
-        if let Some(c) = &s.curie_temperature {
+        if let Some(c) = s.curie_temperature.as_ref().filter(|c| !c.note.is_empty()) {
+            say!("      {}", c.note);
+        } else if let Some(c) = &s.curie_temperature {
             say!(
                 "      Curie temperature {:.1} +- {:.1} K ({}; a model estimate)",
                 c.value,

@@ -511,6 +511,32 @@ fn max_wall_stops_with_a_checkpoint() {
     assert!(String::from_utf8_lossy(&o.stdout).contains("checkpoint is present"));
 }
 
+/// A scan whose susceptibility peaks at its last temperature gives no Curie temperature, and
+/// its summary says why (a sweep's points run quietly, so the merged table's empty cell
+/// needs the reason on record). The 8 x 8 square lattice with J = 5 meV has estimates of
+/// 49 K (RPA) and 77 K (mean field), as `check` prints, above a scan of 10-30 K. Our own
+/// behaviour.
+#[test]
+fn a_scan_without_a_peak_says_why() {
+    let dir = temp_dir("no-peak");
+    let cfg = write_config(
+        &dir,
+        "c.toml",
+        "seed = 3\n[lattice]\npreset = \"square\"\na = 3.0\ncells = [8, 8, 1]\n[[species]]\nname = \"M\"\n\
+         moment = 2.0\nanisotropy = 0.5\n[[exchange]]\nshell = 1\nj = 5.0\n[[stage]]\n\
+         kind = \"temperature-scan\"\ntemperatures = [10, 20, 30]\nequilibrate = 50\nmeasure = 100\n",
+    );
+    let out = dir.join("run");
+    let o = spindrift(&["run", cfg.to_str().unwrap(), "--out", out.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let summary: Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    let c = &summary["stages"][0]["curie_temperature"];
+    assert!(c["value"].is_null() && c["method"] == "none", "{c}");
+    assert!(c["note"].as_str().unwrap().contains("largest at the edge of the scan (30 K)"), "{c}");
+    assert!(String::from_utf8_lossy(&o.stdout).contains("no Curie temperature from the susceptibility"));
+}
+
 /// A resume compares what the run computes from, not how it is written: a comment added to
 /// the config or to its bond table is no difference (the resumed run equals one never
 /// stopped), a changed coupling in the table is refused, naming the table, and a changed

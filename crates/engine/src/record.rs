@@ -133,8 +133,11 @@ pub struct CurieEstimate {
     pub value: f64,
     /// One-standard-error estimate, K.
     pub error: f64,
-    /// How it was found (e.g. `susceptibility-peak`, `binder-crossing`).
+    /// How it was found (e.g. `susceptibility-peak`, `binder-crossing`), or `none`.
     pub method: String,
+    /// Why there is no value (`value` and `error` NaN, `method` `none`): a scan whose
+    /// susceptibility peaks at its edge, for one; empty when a value was found.
+    pub note: String,
 }
 
 /// Summary of one finished stage.

@@ -148,6 +148,7 @@ fn write_summary(parent: &Group, name: &str, s: &StageSummary, path: &Path) -> R
         set_attr(&g, "curie_value", &c.value).ctx(path, || w("curie_value"))?;
         set_attr(&g, "curie_error", &c.error).ctx(path, || w("curie_error"))?;
         set_str_attr(&g, "curie_method", &c.method).ctx(path, || w("curie_method"))?;
+        set_str_attr(&g, "curie_note", &c.note).ctx(path, || w("curie_note"))?;
     }
     if let Some((down, up)) = s.coercive_field {
         set_attr_array(&g, "coercive_field", &[down, up]).ctx(path, || w("coercive_field"))?;
@@ -272,6 +273,11 @@ fn read_summary(parent: &Group, name: &str, path: &Path) -> Result<StageSummary,
             value: f64_attr("curie_value")?,
             error: f64_attr("curie_error")?,
             method: read_str_attr(&g, "curie_method").ctx(path, || r("curie_method"))?,
+            note: if has_attr(&g, "curie_note") {
+                read_str_attr(&g, "curie_note").ctx(path, || r("curie_note"))?
+            } else {
+                String::new()
+            },
         })
     } else {
         None

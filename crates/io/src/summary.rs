@@ -13,7 +13,8 @@
 //! ```
 //!
 //! Units as everywhere: time ps, energies meV per spin, fields T, temperatures K, wall time s.
-//! `curie_temperature` appears only for stages that estimated it, `coercive_field` and
+//! `curie_temperature` appears only for scans of three or more temperatures (its `value` and `error` null, `method`
+//! `"none"` and a `note` saying why when the scan found none), `coercive_field` and
 //! `remanence` only for field loops; each entry of [`StageSummary::extra`] becomes a key of its
 //! stage (one that would shadow a standard key is written as `extra_<name>` instead).
 //! Non-finite numbers, which JSON cannot hold, are written as `null`.
@@ -98,10 +99,11 @@ fn stage_json(s: &StageSummary) -> Value {
         }),
     );
     if let Some(c) = &s.curie_temperature {
-        m.insert(
-            "curie_temperature".into(),
-            json!({"value": num(c.value), "error": num(c.error), "method": c.method}),
-        );
+        let mut curie = json!({"value": num(c.value), "error": num(c.error), "method": c.method});
+        if !c.note.is_empty() {
+            curie["note"] = json!(c.note);
+        }
+        m.insert("curie_temperature".into(), curie);
     }
     if let Some((down, up)) = s.coercive_field {
         m.insert("coercive_field".into(), json!({"descending": num(down), "ascending": num(up)}));

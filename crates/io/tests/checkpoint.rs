@@ -68,8 +68,12 @@ fn tricky_checkpoint() -> Checkpoint {
     arrays.insert("empty".to_string(), vec![]);
     arrays.insert("energies".to_string(), (0..1000).map(|i| (i as f64).sqrt()).collect());
     let mut finished = vec![summary(0, "relax"), summary(1, "temperature-scan"), summary(2, "field-loop")];
-    finished[1].curie_temperature =
-        Some(CurieEstimate { value: 412.5, error: f64::NAN, method: "susceptibility-peak".into() });
+    finished[1].curie_temperature = Some(CurieEstimate {
+        value: 412.5,
+        error: f64::NAN,
+        method: "susceptibility-peak".into(),
+        note: "a note kept across the checkpoint".into(),
+    });
     finished.push(StageSummary { index: 3, kind: "evolve".into(), ..Default::default() });
     Checkpoint {
         stage: 4,

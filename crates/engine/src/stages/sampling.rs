@@ -216,10 +216,20 @@ pub(crate) fn run(
             .collect();
         match susceptibility_peak(&points, seed) {
             Ok(fit) => {
-                curie =
-                    Some(CurieEstimate { value: fit.value, error: fit.error, method: fit.method.to_string() })
+                curie = Some(CurieEstimate {
+                    value: fit.value,
+                    error: fit.error,
+                    method: fit.method.to_string(),
+                    note: String::new(),
+                })
             }
-            Err(e) => r.monitor.note(&format!("no Curie temperature from the susceptibility: {e}")),
+            Err(e) => {
+                // Kept in the summary too: a sweep's points run quietly, and an empty
+                // Curie temperature in the merged table should say why.
+                let note = format!("no Curie temperature from the susceptibility: {e}");
+                r.monitor.note(&note);
+                curie = Some(CurieEstimate { value: f64::NAN, error: f64::NAN, method: "none".into(), note });
+            }
         }
     }
     let final_state = r.final_state(0.0)?;

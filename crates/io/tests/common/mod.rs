@@ -170,6 +170,7 @@ pub fn summary(stage: usize, kind: &str) -> StageSummary {
             value: 412.5,
             error: 3.25,
             method: "binder-crossing".into(),
+            note: String::new(),
         }),
         coercive_field: (kind == "field-loop").then_some((-0.75, 0.8)),
         remanence: (kind == "field-loop").then_some(0.97),

@@ -2,6 +2,7 @@
 
 use crate::args::CheckArgs;
 use crate::exit::{bad_input, Outcome, OK};
+use crate::scan_range::scan_warnings;
 use crate::system::load_system;
 use serde_json::json;
 use spindrift_config::system::human_bytes;
@@ -27,6 +28,8 @@ struct Report<'a> {
     energy: spindrift_hamiltonian::EnergyTerms,
     curie: spindrift_hamiltonian::curie::CurieEstimates,
     shells: Vec<f64>,
+    /// The config's warnings, then those on scans against the Curie estimates.
+    warnings: Vec<String>,
 }
 
 impl<'a> Report<'a> {
@@ -36,7 +39,9 @@ impl<'a> Report<'a> {
         let energy = h.energy_terms(&spins).scaled(1.0 / h.spin_count().max(1) as f64);
         let curie = curie_estimates(h);
         let shells = shell_distances(h.cell(), 4, &|_, _| true);
-        Ok(Self { loaded, v, energy, curie, shells })
+        let mut warnings = v.warnings.clone();
+        warnings.extend(scan_warnings(&v.protocol, &curie));
+        Ok(Self { loaded, v, energy, curie, shells, warnings })
     }
 
     fn lattice_name(&self) -> String {
@@ -91,7 +96,7 @@ impl<'a> Report<'a> {
             "curie_note": self.curie.note,
             "recommended_dt": self.v.recommended_dt,
             "stages": stages,
-            "warnings": self.v.warnings,
+            "warnings": self.warnings,
         })
     }
 
@@ -221,7 +226,7 @@ impl<'a> Report<'a> {
         if self.v.protocol.stages.is_empty() {
             say!("  no [[stage]]: `spindrift run` has nothing to do");
         }
-        for w in &self.v.warnings {
+        for w in &self.warnings {
             say!("warning: {w}");
         }
     }

@@ -22,6 +22,7 @@ mod inspect;
 mod plot;
 mod progress;
 mod run;
+mod scan_range;
 mod signals;
 mod sweep;
 mod system;

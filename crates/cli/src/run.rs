@@ -71,6 +71,11 @@ pub fn run(args: &RunArgs) -> Outcome {
     let mut progress = Progress::new(args.quiet);
     let spins = v.hamiltonian.spin_count();
     let curie = spindrift_hamiltonian::curie::curie_estimates(&v.hamiltonian);
+    if !args.quiet && args.resume.is_none() {
+        for w in crate::scan_range::scan_warnings(&v.protocol, &curie) {
+            eprintln!("warning: {w}");
+        }
+    }
     let estimates = vec![
         ("curie_mean_field".to_string(), curie.mean_field),
         ("curie_rpa".to_string(), curie.rpa.unwrap_or(f64::NAN)),

@@ -537,6 +537,40 @@ fn a_scan_without_a_peak_says_why() {
     assert!(String::from_utf8_lossy(&o.stdout).contains("no Curie temperature from the susceptibility"));
 }
 
+/// `check` warns of a scan that ends below half the RPA estimate or starts above the mean-field
+/// one (mean field overestimates a ferromagnet's Tc: common practice), and not of one that
+/// brackets them. The 8 x 8 square lattice, J = 5 meV, k = 0.5 meV: RPA 48.8 K, mean field
+/// 4 J / 3 kB = 77.4 K (classical mean field, textbook).
+#[test]
+fn scans_that_miss_the_estimates_are_warned_about() {
+    let dir = temp_dir("scan-range");
+    let cfg = write_config(
+        &dir,
+        "c.toml",
+        "[lattice]\npreset = \"square\"\na = 3.0\ncells = [8, 8, 1]\n[[species]]\nname = \"M\"\nmoment = 2.0\n\
+         anisotropy = 0.5\n[[exchange]]\nshell = 1\nj = 5.0\n[[stage]]\nkind = \"temperature-scan\"\n\
+         temperatures = [20, 40, 60]\n",
+    );
+    let warnings = |temps: &str| {
+        let o = spindrift(&[
+            "check",
+            cfg.to_str().unwrap(),
+            "--json",
+            "--set",
+            &format!("stage.0.temperatures={temps}"),
+        ]);
+        assert!(o.status.success(), "{}", stderr(&o));
+        let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+        assert!((v["curie_mean_field"].as_f64().unwrap() - 20.0 / (3.0 * 8.617333262e-2)).abs() < 1e-6);
+        v["warnings"].to_string()
+    };
+    assert!(warnings("[10,20]").contains("stage.0: the scan ends at 20 K, below half the RPA estimate"));
+    assert!(
+        warnings("[100,120]").contains("stage.0: the scan starts at 100 K, above the mean-field estimate")
+    );
+    assert!(!warnings("[20,40,60]").contains("stage.0:"));
+}
+
 /// A resume compares what the run computes from, not how it is written: a comment added to
 /// the config or to its bond table is no difference (the resumed run equals one never
 /// stopped), a changed coupling in the table is refused, naming the table, and a changed

@@ -355,18 +355,31 @@ fn merge_one(dir: &Path) -> Outcome {
     for s in SCALARS {
         csv.push_str(&format!(",{s}"));
     }
-    csv.push('\n');
+    csv.push_str(",note\n");
     let mut rows = Vec::new();
     let mut curves = Vec::new();
     for p in manifest["points"].as_array().into_iter().flatten() {
         let k = p["index"].as_u64().unwrap_or(0) as usize;
         let pdir = point_dir(dir, k);
-        let status = std::fs::read_to_string(pdir.join("status.json"))
+        let status_json = std::fs::read_to_string(pdir.join("status.json"))
             .ok()
-            .and_then(|t| serde_json::from_str::<Value>(&t).ok())
+            .and_then(|t| serde_json::from_str::<Value>(&t).ok());
+        let status = status_json
+            .as_ref()
             .and_then(|v| v["status"].as_str().map(String::from))
             .unwrap_or_else(|| "pending".into());
         let summary = if status == "done" { read_summary(&pdir).ok() } else { None };
+        // Why a cell is empty: a failed point's error, or a scan's note (no peak in range).
+        let note = match &summary {
+            Some(sm) => sm["stages"]
+                .as_array()
+                .into_iter()
+                .flatten()
+                .filter_map(|st| st["curie_temperature"]["note"].as_str())
+                .collect::<Vec<_>>()
+                .join("; "),
+            None => status_json.as_ref().and_then(|v| v["error"].as_str()).unwrap_or("").to_string(),
+        };
         let values: Vec<String> =
             keys.iter().map(|key| p["values"][key].as_str().unwrap_or("").to_string()).collect();
         let scalars = summary.as_ref().map_or(vec![f64::NAN; SCALARS.len()], scalars_of);
@@ -378,20 +391,21 @@ fn merge_one(dir: &Path) -> Outcome {
             // `Debug` keeps every digit but writes 2e-18 as such, not as 0.000000000000000002.
             csv.push_str(&if x.is_finite() { format!(",{x:?}") } else { ",".to_string() });
         }
-        csv.push('\n');
+        csv.push_str(&format!(",\"{}\"\n", note.replace('"', "'")));
         if status == "done" {
             if let Some(c) = binder_curve(&pdir) {
                 curves.push(c);
             }
         }
-        rows.push((k, status, values, scalars));
+        rows.push((k, status, values, scalars, note));
     }
     write_atomic(&dir.join("merged.csv"), &csv)?;
     let mut merged = json!({
         "keys": keys,
         "columns": SCALARS,
-        "rows": rows.iter().map(|(k, st, v, s)| json!({"index": k, "status": st, "values": v,
-            "scalars": s.iter().map(|x| if x.is_finite() { json!(x) } else { Value::Null }).collect::<Vec<_>>()})).collect::<Vec<_>>(),
+        "rows": rows.iter().map(|(k, st, v, s, note)| json!({"index": k, "status": st, "values": v,
+            "scalars": s.iter().map(|x| if x.is_finite() { json!(x) } else { Value::Null }).collect::<Vec<_>>(),
+            "note": note})).collect::<Vec<_>>(),
     });
     // Several sizes of one system with temperature scans: the Binder cumulants' crossing.
     // Only when the sweep varies nothing but `lattice.cells`, and every point has the same

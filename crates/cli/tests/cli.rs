@@ -940,6 +940,33 @@ fn a_swept_seed_is_the_points_seed() {
     assert_same_run(&out.join("point_0001"), &alone);
 }
 
+/// `merge` says why a cell is empty: a failed point's error in its `note` (CSV and JSON), an
+/// empty note for a point that finished. Our own behaviour.
+#[test]
+fn merge_notes_why_a_point_has_no_results() {
+    let dir = temp_dir("merge-note");
+    let cfg = write_config(&dir, "s.toml", &SWEEP_CONFIG.replace("\"2 ps\"", "\"20 fs\""));
+    let out = dir.join("sweep");
+    let o = spindrift(&[
+        "sweep",
+        cfg.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--vary",
+        "species.0.damping=0.1,1e300",
+    ]);
+    assert_eq!(o.status.code(), Some(3), "{}", stderr(&o));
+    let o = spindrift(&["merge", out.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let csv = std::fs::read_to_string(out.join("merged.csv")).unwrap();
+    let lines: Vec<&str> = csv.lines().collect();
+    assert!(lines[0].ends_with(",note") && lines[1].ends_with(",\"\""), "{csv}");
+    assert!(lines[2].starts_with("1,failed,") && lines[2].contains("became non-finite at step 0"), "{csv}");
+    let merged: Value =
+        serde_json::from_str(&std::fs::read_to_string(out.join("merged.json")).unwrap()).unwrap();
+    assert!(merged["rows"][1]["note"].as_str().unwrap().contains("became non-finite"), "{merged}");
+}
+
 /// A point stopped mid-run is resumed by re-running the sweep; finished points are not
 /// re-run, and the result equals an uninterrupted sweep.
 #[test]

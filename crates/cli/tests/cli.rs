@@ -511,6 +511,12 @@ fn max_wall_stops_with_a_checkpoint() {
     assert!(String::from_utf8_lossy(&o.stdout).contains("checkpoint is present"));
 }
 
+/// A temperature scan of 10-30 K on the 8 x 8 square lattice, J = 5 meV, k = 0.5 meV.
+const SQUARE_SCAN: &str =
+    "seed = 3\n[lattice]\npreset = \"square\"\na = 3.0\ncells = [8, 8, 1]\n[[species]]\n\
+    name = \"M\"\nmoment = 2.0\nanisotropy = 0.5\n[[exchange]]\nshell = 1\nj = 5.0\n[[stage]]\n\
+    kind = \"temperature-scan\"\ntemperatures = [10, 20, 30]\nequilibrate = 50\nmeasure = 100\n";
+
 /// A scan whose susceptibility peaks at its last temperature gives no Curie temperature, and
 /// its summary says why (a sweep's points run quietly, so the merged table's empty cell
 /// needs the reason on record). The 8 x 8 square lattice with J = 5 meV has estimates of
@@ -519,13 +525,7 @@ fn max_wall_stops_with_a_checkpoint() {
 #[test]
 fn a_scan_without_a_peak_says_why() {
     let dir = temp_dir("no-peak");
-    let cfg = write_config(
-        &dir,
-        "c.toml",
-        "seed = 3\n[lattice]\npreset = \"square\"\na = 3.0\ncells = [8, 8, 1]\n[[species]]\nname = \"M\"\n\
-         moment = 2.0\nanisotropy = 0.5\n[[exchange]]\nshell = 1\nj = 5.0\n[[stage]]\n\
-         kind = \"temperature-scan\"\ntemperatures = [10, 20, 30]\nequilibrate = 50\nmeasure = 100\n",
-    );
+    let cfg = write_config(&dir, "c.toml", SQUARE_SCAN);
     let out = dir.join("run");
     let o = spindrift(&["run", cfg.to_str().unwrap(), "--out", out.to_str().unwrap()]);
     assert!(o.status.success(), "{}", stderr(&o));
@@ -544,13 +544,7 @@ fn a_scan_without_a_peak_says_why() {
 #[test]
 fn scans_that_miss_the_estimates_are_warned_about() {
     let dir = temp_dir("scan-range");
-    let cfg = write_config(
-        &dir,
-        "c.toml",
-        "[lattice]\npreset = \"square\"\na = 3.0\ncells = [8, 8, 1]\n[[species]]\nname = \"M\"\nmoment = 2.0\n\
-         anisotropy = 0.5\n[[exchange]]\nshell = 1\nj = 5.0\n[[stage]]\nkind = \"temperature-scan\"\n\
-         temperatures = [20, 40, 60]\n",
-    );
+    let cfg = write_config(&dir, "c.toml", SQUARE_SCAN);
     let warnings = |temps: &str| {
         let o = spindrift(&[
             "check",

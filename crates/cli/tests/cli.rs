@@ -232,6 +232,12 @@ fn bad_input_is_reported_with_exit_code_2() {
             ),
             "stage.0.step: 2.222e298 temperatures is too many",
         ),
+        // Initial-state vectors the engine would refuse later, without naming the key.
+        (good.replace("[[stage]]", "[initial]\nstate = \"helix\"\nwavevector = [0, 0, 0]\n[[stage]]"), "initial.wavevector: must be a finite non-zero wavevector"),
+        (
+            good.replace("[[stage]]", "[initial]\nstate = \"skyrmion\"\nradius = 5\ncenter = [inf, 0.5]\n[[stage]]"),
+            "initial.center: `inf` is not a finite number",
+        ),
         // Counts whose products would pass 64 bits.
         (good.replace("duration = 0.01", "duration = 0.01\nobserve_every = 2000000000000000"), "stage.0.observe_every: must be at most 1e15"),
         (

@@ -463,8 +463,12 @@ fn initial(loaded: &Loaded, warnings: &mut Vec<String>) -> Result<Initial, Confi
             let Some(r) = &i.radius else {
                 return Err(loaded.error_at("initial", "a skyrmion needs its `radius` (Å)"));
             };
+            let center = i.center.unwrap_or([0.5, 0.5]);
+            if let Some(c) = center.iter().find(|c| !c.is_finite()) {
+                return Err(loaded.error_at("initial.center", format!("`{c}` is not a finite number")));
+            }
             InitialState::Skyrmion {
-                center: i.center.unwrap_or([0.5, 0.5]),
+                center,
                 radius: positive(loaded, "initial.radius", r, Dimension::Length)?,
                 background: dir,
                 helicity_deg: i
@@ -478,6 +482,12 @@ fn initial(loaded: &Loaded, warnings: &mut Vec<String>) -> Result<Initial, Confi
             let Some(q) = i.wavevector else {
                 return Err(loaded.error_at("initial", "a helix needs its `wavevector` (1/Å)"));
             };
+            if !(q.iter().all(|x| x.is_finite()) && q.iter().any(|&x| x != 0.0)) {
+                return Err(loaded.error_at(
+                    "initial.wavevector",
+                    format!("must be a finite non-zero wavevector (1/Å), got {q:?}"),
+                ));
+            }
             InitialState::Helix { wavevector: q, axis: [0.0, 0.0, 1.0] }
         }
         RawInitial::File => {

@@ -41,6 +41,12 @@ pub fn run() -> u8 {
             return code;
         }
     };
+    // Every command writes files (merged tables, plots, run files): a write past a per-file
+    // size limit must fail with an error it reports, not end the process.
+    if let Err(e) = signals::catch_file_size_signal() {
+        eprintln!("spindrift: error: cannot install a signal handler: {e}");
+        return exit::OUTPUT;
+    }
     let result = match args.command {
         Command::Check(a) => check::check(&a),
         Command::Run(a) => run::run(&a),

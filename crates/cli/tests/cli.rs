@@ -724,6 +724,14 @@ fn a_file_size_limit_keeps_the_rows_written() {
     let o = run("2097152", &dir.join("small"));
     assert_eq!(o.status.code(), Some(4), "{}", stderr(&o));
     assert!(stderr(&o).contains("leaves no room beyond the 8585216 bytes"), "{}", stderr(&o));
+    // Other commands write files too: `plot`'s PNGs past a 1 KiB limit fail with exit 4
+    // and a message, where SIGXFSZ ended the process.
+    let o = std::process::Command::new("prlimit")
+        .args(["--fsize=1024", env!("CARGO_BIN_EXE_spindrift"), "plot", out.to_str().unwrap()])
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(4), "{}", stderr(&o));
+    assert!(stderr(&o).contains("File too large"), "{}", stderr(&o));
 }
 
 /// Numerical failures end with exit 3 and the last state in `/final` (INTERFACE.md's exit

@@ -47,6 +47,7 @@ pub fn inspect(args: &InspectArgs) -> Outcome {
         "seed": attrs.seed,
         "program_version": attrs.program_version,
         "format_version": attrs.format_version,
+        "inputs": attrs.inputs.lines().collect::<Vec<_>>(),
         "sites": lattice.position.len(),
         "species": lattice.species_names,
         "layers": lattice.layer.iter().max().map_or(0, |&l| l + 1),
@@ -76,6 +77,9 @@ fn print_text(v: &Value) {
         v["seed"],
         v["program_version"].as_str().unwrap_or("?")
     );
+    for line in v["inputs"].as_array().into_iter().flatten().filter_map(Value::as_str) {
+        say!("  read {line}");
+    }
     if v["checkpoint"].as_bool() == Some(true) {
         say!("  a checkpoint is present: the run stopped early and can be resumed with --resume");
     }

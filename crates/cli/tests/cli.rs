@@ -593,6 +593,8 @@ fn a_resume_refuses_changed_couplings_but_not_comments() {
     // 3.5e7 spin-steps: seconds at the rates of README's table, stopped after 0.2 s.
     let o = spindrift(&["run", c, "--out", stopped.to_str().unwrap(), "-q", "--max-wall", "0.2 s"]);
     assert_eq!(o.status.code(), Some(75), "{}", stderr(&o));
+    let o = spindrift(&["inspect", stopped.to_str().unwrap()]);
+    assert!(String::from_utf8_lossy(&o.stdout).contains("read bond_table.0: 14 pairs, fnv1a64 "));
     let resume = || spindrift(&["run", c, "--resume", stopped.to_str().unwrap(), "-q"]);
     // A coupling of the table changed: refused.
     std::fs::write(dir.join("bonds.dat"), table.replacen("1.2", "1.3", 1)).unwrap();

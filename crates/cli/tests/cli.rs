@@ -238,6 +238,14 @@ fn bad_input_is_reported_with_exit_code_2() {
             good.replace("[[stage]]", "[initial]\nstate = \"skyrmion\"\nradius = 5\ncenter = [inf, 0.5]\n[[stage]]"),
             "initial.center: `inf` is not a finite number",
         ),
+        // A field loop settling for 1e15 ps at each of its 6 fields: 6e18 steps.
+        (
+            good.replace(
+                "kind = \"evolve\"\nduration = 0.01",
+                "kind = \"field-loop\"\ndirection = [0, 0, 1]\nmax = 1.0\npoints = 3\nsettle = 1e15\ndt = \"1 fs\"",
+            ),
+            "stage.0.settle: 6.0e18 steps at dt = 1.000e-3 ps in all, more than 1e15",
+        ),
         // Counts whose products would pass 64 bits.
         (good.replace("duration = 0.01", "duration = 0.01\nobserve_every = 2000000000000000"), "stage.0.observe_every: must be at most 1e15"),
         (

@@ -277,6 +277,15 @@ pub fn build(
                     return Err(loaded.error_at(&format!("{key}.temperature"), "relaxing at each field is a zero-temperature loop; give `settle` for a finite-temperature loop"));
                 }
                 let dt = time_step(loaded, &format!("{key}.dt"), s.dt.as_ref(), defaults, warnings)?;
+                // As for an `evolve` stage's duration: the loop settles at `points` fields on
+                // each of its two branches.
+                let steps = settle.unwrap_or(0.0) / dt * (2 * points) as f64;
+                if steps > MAX_COUNT as f64 {
+                    return Err(loaded.error_at(
+                        &format!("{key}.settle"),
+                        format!("{steps:.1e} steps at dt = {dt:.3e} ps in all, more than 1e15"),
+                    ));
+                }
                 let (max_steps, torque_tolerance) = relax_limits()?;
                 StageKind::FieldLoop {
                     direction,

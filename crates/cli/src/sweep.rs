@@ -15,7 +15,7 @@ use crate::run::default_out;
 use crate::system::{available_memory, set_threads};
 use anyhow::anyhow;
 use serde_json::{json, Value};
-use spindrift_config::{load, validate};
+use spindrift_config::{load, range_values, validate};
 use spindrift_engine::seeds::point_seed;
 use spindrift_io::{read_summary, RunReader};
 use spindrift_observe::{binder_crossing, BinderCurve, ScanPoint};
@@ -81,20 +81,12 @@ fn parse_vary(spec: &str) -> Result<Vary, Failure> {
             if !(st > 0.0 && st.is_finite()) {
                 return Err(bad_input(anyhow!("--vary {key}: the step of `{v}` must be positive")));
             }
-            // Counted in f64: `as usize` saturates, and the `+ 1` would then wrap.
-            let steps = ((b - a).abs() / st + 1e-9).floor();
-            if steps >= 100_000.0 || !steps.is_finite() {
-                return Err(bad_input(anyhow!(
-                    "--vary {key}: `{v}` gives {:.3e} values (at most 100000)",
-                    steps + 1.0
-                )));
-            }
-            let n = steps as usize + 1;
-            let sign = if b >= a { 1.0 } else { -1.0 };
+            let xs = range_values(a, b, st, 100_000).map_err(|n| {
+                bad_input(anyhow!("--vary {key}: `{v}` gives {n:.3e} values (at most 100000)"))
+            })?;
             let integral =
                 [parts[0], parts[1], parts[2]].iter().all(|p| !p.contains('.') && !p.contains('e'));
-            for i in 0..n {
-                let x = a + sign * st * i as f64;
+            for x in xs {
                 out.push(if integral { format!("{}", x.round() as i64) } else { range_value(x) });
             }
         } else {

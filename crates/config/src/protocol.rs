@@ -199,7 +199,7 @@ pub fn build(
                 };
                 let duration = positive(loaded, &format!("{key}.duration"), duration, Dimension::Time)?;
                 let dt = time_step(loaded, &format!("{key}.dt"), s.dt.as_ref(), defaults, warnings)?;
-                if duration / dt > 1e15 {
+                if duration / dt > MAX_COUNT as f64 {
                     return Err(loaded.error_at(
                         &format!("{key}.duration"),
                         format!(
@@ -321,17 +321,12 @@ pub fn build(
                             let a = temperature_of(loaded, &format!("{key}.from"), a)?;
                             let b = temperature_of(loaded, &format!("{key}.to"), b)?;
                             let st = positive(loaded, &format!("{key}.step"), st, Dimension::Temperature)?;
-                            // Counted in f64: `as usize` saturates, and the `+ 1` would then wrap.
-                            let steps = ((b - a).abs() / st + 1e-9).floor();
-                            if steps >= 100_000.0 {
-                                return Err(loaded.error_at(
+                            crate::range_values(a, b, st, 100_000).map_err(|n| {
+                                loaded.error_at(
                                     &format!("{key}.step"),
-                                    format!("{:.3e} temperatures is too many (at most 100000)", steps + 1.0),
-                                ));
-                            }
-                            let n = steps as usize + 1;
-                            let sign = if b >= a { 1.0 } else { -1.0 };
-                            (0..n).map(|i| a + sign * st * i as f64).collect()
+                                    format!("{n:.3e} temperatures is too many (at most 100000)"),
+                                )
+                            })?
                         }
                         (Some(_), _, _, _) => {
                             return Err(loaded.error_at(

@@ -5,7 +5,7 @@ use crate::error::ConfigError;
 use crate::load::Loaded;
 use crate::raw::{DmiKind as RawDmiKind, FerroSign, PairListing};
 use crate::units::{lookup_unit, Dimension};
-use spindrift_hamiltonian::{add_shell, DmiKind, Hamiltonian, ShellCoupling, ShellRef, Species};
+use spindrift_hamiltonian::{add_shell, DmiKind, Hamiltonian, ShellCoupling, ShellFound, ShellRef, Species};
 use spindrift_lattice::{preset, BasisSite, BondList, Coupling, Crystal, LatticeError, Supercell, Vec3};
 
 /// Bytes per spin of an `evolve` run besides the integrator's scratch
@@ -242,6 +242,30 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
     // often a slip (a shell given twice): said as a warning.
     type Pair = Option<(usize, usize)>;
     let mut seen: Vec<(String, f64, Pair)> = Vec::new();
+    // Pairs that a short periodic axis folds onto their own site are left out (see
+    // `Supercell::self_image`): said once per shell coupling.
+    let lands_on_itself = |o: [i32; 3]| {
+        format!(
+            "lands on its own site at cell offset {o:?} through the periodic axes of this supercell \
+             (cells {cells:?}); a spin is not coupled to itself, so it is left out (more cells along \
+             that axis keep couplings this long)"
+        )
+    };
+    let self_image_warning = |key: &str, found: &ShellFound, warnings: &mut Vec<String>| {
+        let n = found.self_images;
+        if n > 0 {
+            let (pairs, land, its) =
+                if n == 1 { ("pair", "lands", "its") } else { ("pairs", "land", "their") };
+            warnings.push(format!(
+                "{key}: {n} {pairs} per cell at {:.4} Å {land} on {its} own site through the periodic axes \
+                 of this supercell (cells {cells:?}) and {} left out, since a spin is not coupled to \
+                 itself (more cells along those axes keep couplings this long)",
+                found.distance,
+                if n == 1 { "is" } else { "are" }
+            ));
+        }
+    };
+
     for (k, e) in raw.exchange.iter().enumerate() {
         let key = format!("exchange.{k}");
         let spec = ShellCoupling {
@@ -266,6 +290,7 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
                     ));
                 }
                 seen.push((key.clone(), found.distance, spec.pair));
+                self_image_warning(&key, &found, &mut warnings);
                 couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs })
             }
             Err(err) => absent(loaded, &cell, &spec, &key, err, &mut warnings)?,
@@ -294,7 +319,10 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
             pair: pair_of(&key, &d.pair)?,
         };
         match add_shell(&cell, &mut bonds, &spec) {
-            Ok(found) => couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs }),
+            Ok(found) => {
+                self_image_warning(&key, &found, &mut warnings);
+                couplings.push(CouplingReport { key, distance: found.distance, pairs: found.pairs })
+            }
             Err(err) => absent(loaded, &cell, &spec, &key, err, &mut warnings)?,
         }
     }
@@ -312,7 +340,17 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
     // left out with a warning, as the shells' cut bonds are: the same table serves the bulk
     // and films of any thickness.
     let beyond = |o: [i32; 3]| {
-        format!("reaches beyond the supercell (cells {cells:?}, periodic {periodic:?}) at cell offset {o:?}")
+        format!("reaches beyond the supercell (cells {cells:?}, periodic {periodic:?}) at cell offset {o:?}; it is left out")
+    };
+    // Why a bond of explicit cell offset cannot be kept, if it cannot.
+    let unfit = |from: usize, to: usize, o: [i32; 3]| {
+        if !cell.offset_allowed(o) {
+            Some(beyond(o))
+        } else if cell.self_image(from, to, o) {
+            Some(lands_on_itself(o))
+        } else {
+            None
+        }
     };
     for (k, b) in raw.bond.iter().enumerate() {
         let key = format!("bond.{k}");
@@ -370,8 +408,8 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
                 .unwrap_or([0.0; 3]);
         }
         let v = bond_vector(b.from, b.to, o);
-        if !cell.offset_allowed(o) {
-            warnings.push(format!("{key}: the bond {}; it is left out", beyond(o)));
+        if let Some(why) = unfit(b.from, b.to, o) {
+            warnings.push(format!("{key}: the bond {why}"));
             couplings.push(CouplingReport { key, distance: spindrift_lattice::norm(v), pairs: 0 });
             continue;
         }
@@ -400,8 +438,8 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
         inputs.push(crate::inputs::table_line(&key, &rows));
         let mut left_out = Vec::new();
         for r in &rows {
-            if !cell.offset_allowed(r.cell) {
-                left_out.push(r);
+            if let Some(why) = unfit(r.from, r.to, r.cell) {
+                left_out.push((r, why));
                 continue;
             }
             let v = bond_vector(r.from, r.to, r.cell);
@@ -409,14 +447,13 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
                 .add_pair(r.from, r.to, r.cell, v, Coupling { j: r.j, d: r.d, tensor: None })
                 .map_err(|e| loaded.error_at(&key, e.to_string()))?;
         }
-        if let Some(first) = left_out.first() {
+        if let Some((first, why)) = left_out.first() {
             warnings.push(format!(
-                "{key}: {} of the {} rows of {} are left out: the first, line {}, {}",
+                "{key}: {} of the {} rows of {} are left out: the first, line {}, {why}",
                 left_out.len(),
                 rows.len(),
                 path.display(),
                 first.line,
-                beyond(first.cell)
             ));
         }
         couplings.push(CouplingReport { key, distance: 0.0, pairs: rows.len() - left_out.len() });

@@ -45,6 +45,9 @@ pub struct ShellFound {
     pub distance: f64,
     /// Number of pairs added (each counted once).
     pub pairs: usize,
+    /// Pairs of the shell left out because they land on their own site through a short
+    /// periodic axis ([`Supercell::self_image`]), each counted once.
+    pub self_images: usize,
 }
 
 /// A shell that the supercell does not hold.
@@ -91,11 +94,15 @@ pub fn add_shell(
         }
     };
     let Some(distance) = distance else { return Err(NoNeighbours { what, hint }) };
-    let mut pairs = 0;
+    let (mut pairs, mut self_images) = (0, 0);
     for n in neighbours_at(cell, distance, &pair) {
         // Each unordered pair appears once from each end; keep one of them.
         let canonical = n.from < n.to || (n.from == n.to && n.offset > [0, 0, 0]);
         if !canonical {
+            continue;
+        }
+        if cell.self_image(n.from, n.to, n.offset) {
+            self_images += 1;
             continue;
         }
         let d = match spec.dmi {
@@ -112,5 +119,5 @@ pub fn add_shell(
     if pairs == 0 {
         return Err(NoNeighbours { what, hint });
     }
-    Ok(ShellFound { distance, pairs })
+    Ok(ShellFound { distance, pairs, self_images })
 }

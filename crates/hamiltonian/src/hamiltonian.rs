@@ -73,6 +73,20 @@ pub enum HamiltonianError {
         /// Basis sites in the crystal.
         sites: usize,
     },
+    /// A bond lands on the site it starts from through a short periodic axis
+    /// ([`Supercell::self_image`]); leave it out when building the bond list.
+    #[error(
+        "a bond of basis site {site} at cell offset {offset:?} lands on the site itself in this \
+         supercell (cells {cells:?}): it would couple a spin to itself"
+    )]
+    SelfImage {
+        /// Basis site.
+        site: usize,
+        /// Cell offset of the bond.
+        offset: [i32; 3],
+        /// Cells of the supercell.
+        cells: [usize; 3],
+    },
 }
 
 /// One compiled directed bond.
@@ -270,6 +284,11 @@ impl Hamiltonian {
             }
             if s.anisotropy != 0.0 && dot(s.axis, s.axis) == 0.0 {
                 return Err(HamiltonianError::BadAxis { name: s.name.clone() });
+            }
+        }
+        for site in 0..nb {
+            if let Some(x) = bonds.from_basis(site).iter().find(|x| cell.self_image(site, x.to, x.offset)) {
+                return Err(HamiltonianError::SelfImage { site, offset: x.offset, cells: cell.cells() });
             }
         }
         let mut basis_species = Vec::with_capacity(nb);

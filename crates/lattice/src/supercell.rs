@@ -154,6 +154,28 @@ impl Supercell {
         })
     }
 
+    /// Whether a bond from basis site `from` to basis site `to` at cell `offset` lands on
+    /// the site it starts from: the same basis site, no offset along open axes, and along
+    /// periodic ones an offset that wraps to zero (a multiple of the axis's cells, as an
+    /// offset of 2 along an axis of 2 cells), not zero along all three. Such a bond would
+    /// couple a spin to itself: a constant for isotropic exchange, an on-site term for a
+    /// tensor, and in a Metropolis energy change, which is linear in the moved spin for
+    /// every other bond, a term that breaks detailed balance. The builders leave these
+    /// bonds out with a warning, as [`Supercell::offset_allowed`] leaves out offsets off the
+    /// only cell of a periodic axis.
+    pub fn self_image(&self, from: usize, to: usize, offset: [i32; 3]) -> bool {
+        from == to
+            && offset != [0, 0, 0]
+            && (0..3).all(|k| {
+                let o = offset[k] as i64;
+                if self.periodic[k] {
+                    o.rem_euclid(self.cells[k] as i64) == 0
+                } else {
+                    o == 0
+                }
+            })
+    }
+
     /// Cartesian position of site `i`, Å (cell origin plus basis position).
     pub fn position(&self, i: usize) -> Vec3 {
         let (c, b) = self.decompose(i);
@@ -208,6 +230,32 @@ mod tests {
         assert_eq!(s.layer(s.index([0, 0, 2], 1)), 5);
         assert_eq!(s.neighbour([0, 0, 4], [0, 0, 1], 0), None);
         assert_eq!(s.neighbour([0, 0, 0], [-1, 0, 0], 0), Some(s.index([2, 0, 0], 0)));
+    }
+
+    /// `self_image` is true exactly for the nonzero offsets whose bond `neighbour` resolves
+    /// to the starting site itself (our own definition: the site reached is the site left).
+    #[test]
+    fn self_images_are_the_bonds_that_return_to_their_site() {
+        let s =
+            Supercell::new(preset("bcc", 2.87, None).unwrap(), [2, 3, 1], [true, true, false], 1).unwrap();
+        let mut found = 0;
+        for from in 0..2 {
+            for to in 0..2 {
+                for o1 in -4..=4 {
+                    for o2 in -4..=4 {
+                        for o3 in -1..=1 {
+                            let o = [o1, o2, o3];
+                            let start = s.index([1, 2, 0], from);
+                            let lands = s.neighbour([1, 2, 0], o, to) == Some(start) && o != [0, 0, 0];
+                            assert_eq!(s.self_image(from, to, o), lands, "{from} -> {to} at {o:?}");
+                            found += usize::from(lands);
+                        }
+                    }
+                }
+            }
+        }
+        // Offsets (2k, 3l, 0) other than zero, for each of the two sites: 5 x 3 - 1.
+        assert_eq!(found, 2 * 14);
     }
 
     #[test]

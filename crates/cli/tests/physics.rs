@@ -7,7 +7,7 @@ mod common;
 use common::{run_memory, system};
 use spindrift_hamiltonian::constants::{K_B, MU_B};
 use spindrift_hamiltonian::curie::curie_estimates;
-use spindrift_observe::{binder_crossing, BinderCurve, ScanPoint};
+use spindrift_observe::{binder_crossing, blocking, BinderCurve, ScanPoint};
 
 fn skyrmion_config(lattice: &str, field: f64) -> String {
     format!(
@@ -291,6 +291,99 @@ fn a_bond_onto_its_own_image_is_left_out() {
     let langevin = 1.0 / 1f64.tanh() - 1.0;
     let mz = p.magnetization[2];
     assert!((mz - langevin).abs() < 0.015 * langevin, "<m_z> = {mz}, L(1) = {langevin}");
+}
+
+/// Metropolis sampling (N. Metropolis, A. W. Rosenbluth, M. N. Rosenbluth, A. H. Teller
+/// and E. Teller, J. Chem. Phys. 21, 1087 (1953)) and the stochastic LLG equation, whose
+/// thermal field is sized by the fluctuation-dissipation relation (W. F. Brown, Phys. Rev.
+/// 130, 1677 (1963)), sample the same Boltzmann distribution, so the mean energy and `<|m|>`
+/// of one system at one temperature must agree within their statistical errors (four
+/// standard deviations of the difference; the Heun bias at the recommended step is well
+/// inside that). The two share only the couplings: the Monte Carlo energy change comes
+/// from one site's pair field, the LLG from the row kernel's field and a thermal field per
+/// species. So the system has a bit of everything: bcc with two species of different
+/// moments and damping, a diluted sublattice, an open axis, exchange on two shells (one
+/// antiferromagnetic), bulk DMI, an anisotropy axis off the lattice axes, an exchange
+/// tensor and a tilted field.
+#[test]
+fn metropolis_and_llg_sample_the_same_distribution() {
+    let cfg = r#"
+seed = 17
+[lattice]
+preset = "bcc"
+a = 2.87
+cells = [6, 6, 4]
+periodic = [true, true, false]
+[[species]]
+name = "A"
+moment = 2.2
+damping = 0.5
+anisotropy = 0.4
+axis = [1, 1, 1]
+[[species]]
+name = "B"
+moment = 1.1
+damping = 1.0
+[[site]]
+species = "A"
+position = [0, 0, 0]
+[[site]]
+species = "B"
+position = [0.5, 0.5, 0.5]
+occupancy = 0.8
+[[exchange]]
+shell = 1
+j = 6.0
+[[exchange]]
+shell = 2
+j = -1.5
+[[dmi]]
+shell = 1
+d = 1.2
+kind = "bulk"
+[[bond]]
+from = 0
+to = 0
+cell = [1, 1, 0]
+tensor = [[1.0, 0.6, -0.3], [0.2, -0.5, 0.8], [0.4, -0.2, 1.6]]
+[field]
+b = [1.0, 0.0, 2.0]
+[[stage]]
+kind = "metropolis"
+temperature = 80
+equilibrate = 3000
+measure = 20000
+[[stage]]
+kind = "evolve"
+temperature = 80
+dt = "0.2 fs"
+duration = "20 ps"
+observe_every = 25
+"#;
+    let sink = run_memory(cfg);
+    let mc = &sink.points[0][0];
+    // The LLG starts from the Monte Carlo stage's last state, in equilibrium already; the
+    // first tenth is dropped all the same.
+    let rows = &sink.series[1][sink.series[1].len() / 10..];
+    let energy: Vec<f64> = rows.iter().map(|r| r.energy.total()).collect();
+    let m_abs: Vec<f64> =
+        rows.iter().map(|r| r.magnetization.iter().map(|x| x * x).sum::<f64>().sqrt()).collect();
+    for (what, (value, error), series) in
+        [("energy", (mc.energy, mc.energy_err), &energy), ("|m|", (mc.m_abs, mc.m_abs_err), &m_abs)]
+    {
+        let llg = blocking(series).expect("blocking");
+        let sigma = (error * error + llg.error * llg.error).sqrt();
+        assert!(
+            (value - llg.mean).abs() < 4.0 * sigma,
+            "{what}: Metropolis {value} +- {error}, LLG {} +- {}",
+            llg.mean,
+            llg.error
+        );
+        // The errors must be small enough for the check to mean something: 2% of kB T in
+        // the energy (kB T = 6.9 meV), 0.01 in |m|.
+        let scale = if what == "energy" { 0.02 * K_B * 80.0 } else { 0.01 };
+        assert!(sigma < scale, "{what}: combined error {sigma} too large to compare");
+    }
 }
 
 /// A diverging integration stops with a numerical error naming the stage, step and site,

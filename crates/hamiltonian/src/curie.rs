@@ -6,7 +6,10 @@
 //! treated in the bulk limit through the Fourier transform `J_rs(q)` of the isotropic
 //! couplings (`J` plus a third of a tensor's trace; DMI does not enter at this level).
 //! Dilution enters as the virtual-crystal average, each bond weighted by the occupancy of
-//! its far end.
+//! its far end: `A_rs(q) = J_rs(q) c_s`. That matrix is not Hermitian when the sublattices'
+//! occupancies differ, but `C^(1/2) J(q) C^(1/2)`, entries `J_rs(q) sqrt(c_r c_s)`, is, and
+//! it is similar to `A(q)` (by `C^(1/2)`), so it has the same eigenvalues, and the diagonal
+//! of the inverse below is the same for both: the estimates use it.
 //!
 //! - Mean field: `kB T = lambda_max(J(0)) / 3` (for one sublattice `z J / 3`).
 //! - RPA: `1/(kB T) = (3/R) sum_r < [N(q)^-1]_rr >_q`, with
@@ -42,8 +45,10 @@ struct Reduced {
     /// Open-axis extents (1 along periodic axes).
     ext: [usize; 3],
     nb: usize,
-    /// Couplings `(r, s, J, offset along periodic axes)`, meV.
+    /// Couplings `(r, s, J, offset along periodic axes)`, meV, not weighted by occupancy.
     links: Vec<(usize, usize, f64, [i32; 3])>,
+    /// Occupancy of each sublattice.
+    occ: Vec<f64>,
     /// Periodic axes that carry bonds.
     axes: Vec<usize>,
     gap: Vec<f64>,
@@ -94,12 +99,7 @@ impl Reduced {
                                 }
                             }
                             if ok {
-                                links.push((
-                                    index([c1, c2, c3], b),
-                                    index(t, bond.to),
-                                    j * occ[bond.to],
-                                    phase,
-                                ));
+                                links.push((index([c1, c2, c3], b), index(t, bond.to), j, phase));
                             }
                         }
                     }
@@ -114,18 +114,31 @@ impl Reduced {
                 2.0 * s.anisotropy.max(0.0)
             })
             .collect();
-        Self { ext, nb, links, axes, gap }
+        let occ = (0..ext[0] * ext[1] * ext[2] * nb).map(|r| occ[r % nb]).collect();
+        Self { ext, nb, links, occ, axes, gap }
     }
 
-    /// `J(q)` as a dense Hermitian matrix, meV.
+    /// `C^(1/2) J(q) C^(1/2)` (entries `J_rs(q) sqrt(c_r c_s)`) as a dense Hermitian matrix,
+    /// meV.
     fn jq(&self, q: [f64; 3]) -> DMatrix<Complex<f64>> {
         let n = self.size();
         let mut m = DMatrix::from_element(n, n, Complex::new(0.0, 0.0));
         for &(r, s, j, o) in &self.links {
             let phi = q[0] * o[0] as f64 + q[1] * o[1] as f64 + q[2] * o[2] as f64;
-            m[(r, s)] += Complex::new(j * phi.cos(), j * phi.sin());
+            let w = j * (self.occ[r] * self.occ[s]).sqrt();
+            m[(r, s)] += Complex::new(w * phi.cos(), w * phi.sin());
         }
         m
+    }
+
+    /// The virtual-crystal exchange field of each sublattice in the ferromagnetic state,
+    /// `sum_s J_rs(0) c_s`, meV.
+    fn field_sums(&self) -> Vec<f64> {
+        let mut sums = vec![0.0; self.size()];
+        for &(r, s, j, _) in &self.links {
+            sums[r] += j * self.occ[s];
+        }
+        sums
     }
 }
 
@@ -153,7 +166,7 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
             note: Some("no ferromagnetic coupling".into()),
         };
     }
-    let row_sums: Vec<f64> = (0..n).map(|r| (0..n).map(|s| real[(r, s)]).sum()).collect();
+    let row_sums = red.field_sums();
     let gapless = red.gap.iter().all(|&g| g == 0.0);
     if gapless && red.axes.len() <= 2 {
         return CurieEstimates {
@@ -183,7 +196,15 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
                     if r == s { Complex::new(row_sums[r] + red.gap[r], 0.0) } else { Complex::new(0.0, 0.0) };
                 diag - jq[(r, s)]
             });
-            let inv = nq.cholesky()?.inverse();
+            // N(q) must be positive definite. For complex matrices nalgebra's Cholesky takes
+            // the complex square root of a negative pivot and goes on, so the pivots (the
+            // diagonal of the factor) are checked here: real and positive, or not definite.
+            let chol = nq.cholesky()?;
+            let l = chol.l_dirty();
+            if (0..n).any(|r| !(l[(r, r)].re > 0.0 && l[(r, r)].im.abs() <= 1e-9 * l[(r, r)].re)) {
+                return None;
+            }
+            let inv = chol.inverse();
             total += (0..n).map(|r| inv[(r, r)].re).sum::<f64>() / n as f64;
         }
         Some(total / points as f64)
@@ -194,8 +215,14 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
     let mut prev: Option<f64> = None;
     let mut prev_ext: Option<f64> = None;
     let mut result = None;
+    // Whether N(q) was not positive definite at some q: the ferromagnetic state is then no
+    // minimum of the couplings (J(q) above J(0) somewhere), and RPA has nothing to expand.
+    let mut unstable = false;
     while m.pow(d as u32) <= budget.max(1) {
-        let Some(s) = mean_inverse(m) else { break };
+        let Some(s) = mean_inverse(m) else {
+            unstable = true;
+            break;
+        };
         if d == 0 {
             result = Some(s);
             break;
@@ -221,6 +248,15 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
     }
     match result {
         Some(s) if s > 0.0 => CurieEstimates { mean_field, rpa: Some(1.0 / (3.0 * s * K_B)), note: None },
+        _ if unstable => CurieEstimates {
+            mean_field,
+            rpa: None,
+            note: Some(
+                "the ferromagnetic state is not the lowest of these couplings (J(q) exceeds J(0) at some q), \
+                 so neither estimate describes the order; RPA not computed"
+                    .into(),
+            ),
+        },
         _ => CurieEstimates {
             mean_field,
             rpa: None,

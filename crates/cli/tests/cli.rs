@@ -162,6 +162,19 @@ fn keys_of_another_initial_state_are_warned_about() {
     // lattice, z = 4 (the Heisenberg energy of the aligned state, textbook).
     assert!((uniform + 4.0 * 5.0 / 2.0).abs() < 1e-9, "{uniform}");
     assert!(skyrmion > uniform + 0.1, "{skyrmion} {uniform}");
+    // A centre off the box along an open axis is warned about; along a periodic one it
+    // wraps (minimum images), and nothing is said.
+    let check = |sets: &[&str]| {
+        let mut args = vec!["check", p.to_str().unwrap(), "--json"];
+        args.extend(sets.iter().flat_map(|s| ["--set", *s]));
+        let o = spindrift(&args);
+        assert!(o.status.success(), "{sets:?}: {}", stderr(&o));
+        serde_json::from_slice::<Value>(&o.stdout).unwrap()["warnings"].to_string()
+    };
+    let w = check(&["initial.center=[1.4,0.5]", "lattice.periodic=[false,true,true]"]);
+    assert!(w.contains("initial.center: 1.4 along the open a1 lies outside the box"), "{w}");
+    let w = check(&["initial.center=[1.4,0.5]"]);
+    assert!(!w.contains("initial.center"), "{w}");
 }
 
 /// A shell given twice adds the two couplings (mean field 4 (5 + 2) / 3 kB on the square

@@ -52,6 +52,9 @@ pub fn validate(loaded: &Loaded, memory_limit: Option<u64>) -> Result<Validated,
     if let Some(w) = skyrmion_fit(&h, &protocol) {
         warnings.push(w);
     }
+    if let Some(w) = skyrmion_centre(&h, &protocol) {
+        warnings.push(w);
+    }
     let bonds: u64 = (0..h.cell().basis_len()).map(|b| h.bonds().from_basis(b).len() as u64).sum();
     // The rings of the fused step (one per thread; 1.4 MiB each for 1000 x 1000 x 10) for
     // as many threads as the machine runs by default: `--threads` is not known here, and
@@ -83,6 +86,25 @@ pub fn validate(loaded: &Loaded, memory_limit: Option<u64>) -> Result<Validated,
         snapshot_compression: loaded.raw.output.as_ref().and_then(|o| o.snapshot_compression).unwrap_or(true),
         warnings,
         inputs: sys.inputs.iter().map(|l| format!("{l}\n")).collect(),
+    })
+}
+
+/// A warning when an initial skyrmion's centre lies off the box along an open in-plane
+/// axis (a fraction outside 0 to 1): its core is then outside the film, and what is drawn
+/// is at most the edge of a skyrmion. Along a periodic axis the centre wraps (minimum
+/// images), so any fraction is fine there.
+fn skyrmion_centre(h: &Hamiltonian, protocol: &Protocol) -> Option<String> {
+    let Initial::State(InitialState::Skyrmion { center, .. }) = &protocol.initial else { return None };
+    let periodic = h.cell().periodic();
+    let off: Vec<String> = (0..2)
+        .filter(|&k| !periodic[k] && !(0.0..=1.0).contains(&center[k]))
+        .map(|k| format!("{} along the open a{}", center[k], k + 1))
+        .collect();
+    (!off.is_empty()).then(|| {
+        format!(
+            "initial.center: {} lies outside the box (centres are fractions 0 to 1 of its edges); the skyrmion's core is not in the film",
+            off.join(" and ")
+        )
     })
 }
 

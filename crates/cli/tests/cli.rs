@@ -177,6 +177,37 @@ fn keys_of_another_initial_state_are_warned_about() {
     assert!(!w.contains("initial.center"), "{w}");
 }
 
+/// Pairs that a short periodic axis folds onto their own site are left out with a warning
+/// (our own behaviour, see `Supercell::self_image`), from a shell and from a bond table
+/// alike: the fourth shell of simple cubic (2a, six neighbours) in a box of 2 cells along
+/// a3 keeps its four in-plane neighbours, so the mean-field Tc is 4 J / 3 kB (classical
+/// mean field, common practice).
+#[test]
+fn self_images_are_left_out_with_a_warning() {
+    let dir = temp_dir("self-image");
+    std::fs::write(dir.join("t.dat"), "# from to n1 n2 n3 J\n0 0 1 0 0 2.0\n0 0 0 0 2 3.0\n").unwrap();
+    let base = "[lattice]\npreset = \"simple-cubic\"\na = 3.0\ncells = [6, 6, 2]\n[[species]]\nname = \"A\"\nmoment = 2.0\n";
+    let p = write_config(&dir, "c.toml", &format!("{base}[[exchange]]\nshell = 4\nj = 5.0\n"));
+    let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let mf = 4.0 * 5.0 / (3.0 * 8.617333262e-2);
+    assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf, "{}", v["curie_mean_field"]);
+    let w = v["warnings"].to_string();
+    assert!(w.contains("exchange.0: 1 pair per cell at 6.0000 Å lands on its own site"), "{w}");
+    let p = write_config(&dir, "t.toml", &format!("{base}[[bond_table]]\npath = \"t.dat\"\n"));
+    let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let w = v["warnings"].to_string();
+    assert!(
+        w.contains("1 of the 2 rows") && w.contains("line 3, lands on its own site at cell offset [0, 0, 2]"),
+        "{w}"
+    );
+    let mf = 2.0 * 2.0 / (3.0 * 8.617333262e-2);
+    assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf, "{}", v["curie_mean_field"]);
+}
+
 /// A shell given twice adds the two couplings (mean field 4 (5 + 2) / 3 kB on the square
 /// lattice: classical mean field, common practice) and says so in a warning; shells of
 /// different species pairs do not.

@@ -247,8 +247,8 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
     let lands_on_itself = |o: [i32; 3]| {
         format!(
             "lands on its own site at cell offset {o:?} through the periodic axes of this supercell \
-             (cells {cells:?}); a spin is not coupled to itself, so it is left out (more cells along \
-             that axis keep couplings this long)"
+             (cells {cells:?}), and a spin is not coupled to itself (more cells along that axis keep \
+             couplings this long)"
         )
     };
     let self_image_warning = |key: &str, found: &ShellFound, warnings: &mut Vec<String>| {
@@ -340,7 +340,7 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
     // left out with a warning, as the shells' cut bonds are: the same table serves the bulk
     // and films of any thickness.
     let beyond = |o: [i32; 3]| {
-        format!("reaches beyond the supercell (cells {cells:?}, periodic {periodic:?}) at cell offset {o:?}; it is left out")
+        format!("reaches beyond the supercell (cells {cells:?}, periodic {periodic:?}) at cell offset {o:?}")
     };
     // Why a bond of explicit cell offset cannot be kept, if it cannot.
     let unfit = |from: usize, to: usize, o: [i32; 3]| {
@@ -409,7 +409,7 @@ pub fn build(loaded: &Loaded, memory_limit: Option<u64>) -> Result<SystemBuild, 
         }
         let v = bond_vector(b.from, b.to, o);
         if let Some(why) = unfit(b.from, b.to, o) {
-            warnings.push(format!("{key}: the bond {why}"));
+            warnings.push(format!("{key}: the bond {why}; it is left out"));
             couplings.push(CouplingReport { key, distance: spindrift_lattice::norm(v), pairs: 0 });
             continue;
         }

@@ -234,17 +234,7 @@ fn ferromagnetic_energy_is_minus_z_j_over_two() {
         ("honeycomb", 3.0, [6, 6, 1]),
     ] {
         let cell = Supercell::new(preset(name, 2.9, None).unwrap(), cells, [true; 3], 0).unwrap();
-        let mut bonds = BondList::new(cell.basis_len());
-        add_shell(&cell, &mut bonds, &ShellCoupling { shell: ShellRef::Index(1), j, dmi: None, pair: None })
-            .unwrap();
-        let sp = vec![Species {
-            name: "A".into(),
-            moment: 2.0,
-            damping: 0.1,
-            anisotropy: 0.0,
-            axis: [0.0, 0.0, 1.0],
-        }];
-        let h = Hamiltonian::new(cell, sp, bonds, [0.0; 3]).unwrap();
+        let h = shells_on(cell, &[(1, j)], 0.0);
         let spins = vec![[0.0, 0.0, 1.0]; h.len()];
         let e = h.energy(&spins).total() / h.spin_count() as f64;
         assert!((e + z * j / 2.0).abs() < 1e-12, "{name}: {e}");
@@ -252,6 +242,18 @@ fn ferromagnetic_energy_is_minus_z_j_over_two() {
         let e = fast.exchange / h.spin_count() as f64;
         assert!((e + z * j / 2.0).abs() < 1e-12 && fast.dmi == 0.0, "{name}: {e} by the row kernel");
     }
+}
+
+/// One species (2 muB, easy axis z with `anisotropy`, meV) on `cell`, with exchange `j`
+/// (meV) on each of `shells`.
+fn shells_on(cell: Supercell, shells: &[(usize, f64)], anisotropy: f64) -> Hamiltonian {
+    let mut bonds = BondList::new(cell.basis_len());
+    for &(shell, j) in shells {
+        let spec = ShellCoupling { shell: ShellRef::Index(shell), j, dmi: None, pair: None };
+        add_shell(&cell, &mut bonds, &spec).unwrap();
+    }
+    let sp = vec![Species { name: "A".into(), moment: 2.0, damping: 0.1, anisotropy, axis: [0.0, 0.0, 1.0] }];
+    Hamiltonian::new(cell, sp, bonds, [0.0; 3]).unwrap()
 }
 
 fn bulk_ferromagnet(
@@ -262,11 +264,7 @@ fn bulk_ferromagnet(
     periodic: [bool; 3],
 ) -> Hamiltonian {
     let cell = Supercell::new(preset(name, 3.0, None).unwrap(), cells, periodic, 0).unwrap();
-    let mut bonds = BondList::new(cell.basis_len());
-    add_shell(&cell, &mut bonds, &ShellCoupling { shell: ShellRef::Index(1), j, dmi: None, pair: None })
-        .unwrap();
-    let sp = vec![Species { name: "A".into(), moment: 2.0, damping: 0.1, anisotropy, axis: [0.0, 0.0, 1.0] }];
-    Hamiltonian::new(cell, sp, bonds, [0.0; 3]).unwrap()
+    shells_on(cell, &[(1, j)], anisotropy)
 }
 
 /// Mean field for classical spins, `kB Tc = z J / 3` (textbook, e.g. Kittel ch. 11), and
@@ -304,17 +302,7 @@ fn diluted_sublattice_estimates() {
         let mut crystal = preset("bcc", 3.0, None).unwrap();
         crystal.basis[1].occupancy = c;
         let cell = Supercell::new(crystal, [4, 4, 4], [true; 3], 0).unwrap();
-        let mut bonds = BondList::new(2);
-        let shell = ShellCoupling { shell: ShellRef::Index(1), j, dmi: None, pair: None };
-        add_shell(&cell, &mut bonds, &shell).unwrap();
-        let sp = vec![Species {
-            name: "A".into(),
-            moment: 2.0,
-            damping: 0.1,
-            anisotropy: 0.0,
-            axis: [0.0, 0.0, 1.0],
-        }];
-        let est = curie_estimates(&Hamiltonian::new(cell, sp, bonds, [0.0; 3]).unwrap());
+        let est = curie_estimates(&shells_on(cell, &[(1, j)], 0.0));
         let mf = z * j * c.sqrt() / (3.0 * K_B);
         assert!((est.mean_field - mf).abs() < 1e-9 * mf, "c = {c}: MF {} vs {mf}", est.mean_field);
         let rpa = z * j / (3.0 * w * K_B) * 2.0 * c / (1.0 + c);
@@ -332,14 +320,7 @@ fn diluted_sublattice_estimates() {
 #[test]
 fn unstable_ferromagnet_gets_no_rpa_estimate() {
     let cell = Supercell::new(preset("simple-cubic", 3.0, None).unwrap(), [8, 8, 8], [true; 3], 0).unwrap();
-    let mut bonds = BondList::new(1);
-    for (shell, j) in [(1, 5.0), (2, -2.0)] {
-        let spec = ShellCoupling { shell: ShellRef::Index(shell), j, dmi: None, pair: None };
-        add_shell(&cell, &mut bonds, &spec).unwrap();
-    }
-    let sp =
-        vec![Species { name: "A".into(), moment: 2.0, damping: 0.1, anisotropy: 0.0, axis: [0.0, 0.0, 1.0] }];
-    let est = curie_estimates(&Hamiltonian::new(cell, sp, bonds, [0.0; 3]).unwrap());
+    let est = curie_estimates(&shells_on(cell, &[(1, 5.0), (2, -2.0)], 0.0));
     assert!((est.mean_field - 6.0 / (3.0 * K_B)).abs() < 1e-9, "{}", est.mean_field);
     assert_eq!(est.rpa, None);
     assert!(est.note.as_deref().is_some_and(|n| n.contains("J(q) exceeds J(0)")), "{:?}", est.note);

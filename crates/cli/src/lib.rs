@@ -20,6 +20,7 @@ mod check;
 pub mod exit;
 mod inspect;
 mod plot;
+mod point_threads;
 mod progress;
 mod run;
 mod scan_range;

@@ -13,6 +13,8 @@ use spindrift_engine::{
 };
 use spindrift_io::{read_checkpoint, write_summary, RunFile, RunReader, RunSummary};
 use std::path::{Path, PathBuf};
+use std::sync::atomic::AtomicI32;
+use std::sync::Arc;
 use std::time::Instant;
 
 /// Default run folder of a config: `runs/<file stem>`.
@@ -47,6 +49,13 @@ pub fn run(args: &RunArgs) -> Outcome {
     // the run at its first safe point (exit 130/143 with a checkpoint) instead of ending
     // the process by the signal's default action.
     let stop = signals::install().map_err(|e| output(anyhow!("cannot install signal handlers: {e}")))?;
+    run_until(args, stop)
+}
+
+/// [`run`] with the process's stop flag already installed (a sweep installs it once for all
+/// its points, so that a signal between two points, or while several run at once, is not
+/// cleared by the next point's start). The run uses the thread pool it is called on.
+pub fn run_until(args: &RunArgs, stop: Arc<AtomicI32>) -> Outcome {
     let (loaded, v) = load_system(&args.config, &args.set)?;
     if v.protocol.stages.is_empty() {
         return Err(bad_input(anyhow!(

@@ -11,7 +11,9 @@
 
 use crate::args::{MergeArgs, RunArgs, SweepArgs};
 use crate::exit::{self, bad_input, output, Failure, Outcome, OK};
+use crate::point_threads;
 use crate::run::default_out;
+use crate::signals;
 use crate::system::{available_memory, set_threads};
 use anyhow::anyhow;
 use serde_json::{json, Value};
@@ -21,6 +23,8 @@ use spindrift_io::{read_summary, RunReader};
 use spindrift_observe::{binder_crossing, BinderCurve, ScanPoint};
 use spindrift_plot::{panels_png, Curve, Panel};
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicBool, AtomicI32, AtomicUsize, Ordering};
+use std::sync::Arc;
 
 /// One swept key and its values, as TOML value texts.
 #[derive(Debug, Clone, PartialEq)]
@@ -135,6 +139,8 @@ fn point_dir(dir: &Path, k: usize) -> PathBuf {
 }
 
 pub fn sweep(args: &SweepArgs) -> Outcome {
+    // Once for the whole sweep, before the points are built (see `run_until`).
+    let stop = signals::install().map_err(|e| output(anyhow!("cannot install signal handlers: {e}")))?;
     let varies = args.vary.iter().map(|s| parse_vary(s)).collect::<Result<Vec<_>, _>>()?;
     for (k, v) in varies.iter().enumerate() {
         if varies[..k].iter().any(|w| w.key == v.key) {
@@ -155,6 +161,8 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
     let points = product(&varies);
     // Every point is validated before any runs, so a bad value stops the sweep at once.
     let mut sets_of = Vec::new();
+    // Each point's sites and memory estimate, bytes: how many can run at once.
+    let mut sizes = Vec::new();
     for (k, values) in points.iter().enumerate() {
         let mut sets = args.set.clone();
         for (v, x) in varies.iter().zip(values) {
@@ -167,8 +175,9 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
         }
         let loaded = load(&args.config, &sets)
             .map_err(|e| bad_input(anyhow!("point {k} ({}): {e}", describe(&varies, values))))?;
-        validate(&loaded, available_memory())
+        let v = validate(&loaded, available_memory())
             .map_err(|e| bad_input(anyhow!("point {k} ({}): {e}", describe(&varies, values))))?;
+        sizes.push((v.hamiltonian.len(), v.memory_estimate_bytes));
         sets_of.push(sets);
     }
     std::fs::create_dir_all(&dir).map_err(|e| output(anyhow!("cannot create {}: {e}", dir.display())))?;
@@ -184,22 +193,135 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
         })).collect::<Vec<_>>(),
     });
     write_atomic(&dir.join("sweep.json"), &serde_json::to_string_pretty(&manifest).map_err(output)?)?;
-    set_threads(args.threads)?;
-    let mut failed = 0;
+    let threads = set_threads(args.threads)?;
+    // The points this invocation runs: its shard's, less those finished before.
+    let mut queue = Vec::new();
     for (k, sets) in sets_of.into_iter().enumerate() {
-        if let Some((i, n)) = shard {
-            if k % n != i {
-                continue;
-            }
+        if shard.is_some_and(|(i, n)| k % n != i) {
+            continue;
         }
-        let pdir = point_dir(&dir, k);
-        let status_path = pdir.join("status.json");
-        let status =
-            std::fs::read_to_string(&status_path).ok().and_then(|t| serde_json::from_str::<Value>(&t).ok());
+        let status = std::fs::read_to_string(point_dir(&dir, k).join("status.json"))
+            .ok()
+            .and_then(|t| serde_json::from_str::<Value>(&t).ok());
         if status.as_ref().and_then(|s| s["status"].as_str()) == Some("done") {
             eprintln!("point {k}: done already, skipped");
             continue;
         }
+        queue.push((k, sets));
+    }
+    let sizes = queue.iter().map(|&(k, _)| sizes[k]);
+    let (sites, bytes) = sizes.fold((0, 0), |(s, b), (s2, b2)| (s.max(s2), b.max(b2)));
+    let plan = point_threads::plan(threads, queue.len(), sites, bytes, available_memory());
+    if plan.at_once > 1 {
+        eprintln!(
+            "sweep: {} points at a time, {} thread{} each (points of at most {sites} sites)",
+            plan.at_once,
+            plan.threads_per_point,
+            if plan.threads_per_point == 1 { "" } else { "s" }
+        );
+    }
+    let sweep =
+        Points { config: &args.config, dir: &dir, varies: &varies, points: &points, max_wall, started, stop };
+    let next = AtomicUsize::new(0);
+    let halt = AtomicBool::new(false);
+    let ends: Vec<Result<Ends, Failure>> = std::thread::scope(|scope| {
+        let workers: Vec<_> = (0..plan.at_once)
+            .map(|_| scope.spawn(|| sweep.work(&queue, &next, &halt, plan.threads_per_point)))
+            .collect();
+        workers.into_iter().map(|w| w.join().unwrap_or_else(|p| std::panic::resume_unwind(p))).collect()
+    });
+    let mut total = Ends::default();
+    for end in ends {
+        let end = end?;
+        total.failed += end.failed;
+        total.stopped = total.stopped.or(end.stopped);
+    }
+    if let Some(code) = total.stopped {
+        return Ok(code);
+    }
+    if total.failed > 0 {
+        return Err(Failure {
+            code: exit::NUMERICAL,
+            error: anyhow!("{} point(s) failed; see their status.json", total.failed),
+        });
+    }
+    eprintln!("sweep folder {}; collect the results with: spindrift merge {}", dir.display(), dir.display());
+    Ok(OK)
+}
+
+/// What a sweep's worker met: points that failed, and the exit code of a stop.
+#[derive(Debug, Default)]
+struct Ends {
+    failed: usize,
+    stopped: Option<u8>,
+}
+
+/// A sweep's points as its workers run them.
+struct Points<'a> {
+    config: &'a Path,
+    dir: &'a Path,
+    varies: &'a [Vary],
+    points: &'a [Vec<String>],
+    max_wall: Option<std::time::Duration>,
+    started: std::time::Instant,
+    stop: Arc<AtomicI32>,
+}
+
+impl Points<'_> {
+    /// Runs points from `queue` (taking the next one from `next`) on a pool of `threads`
+    /// threads of its own until the queue is empty or a stop (signal, wall limit, output
+    /// error: `halt`) ends the sweep. Points already running when another worker stops run on;
+    /// a signal stops them too, at their next safe point.
+    fn work(
+        &self,
+        queue: &[(usize, Vec<String>)],
+        next: &AtomicUsize,
+        halt: &AtomicBool,
+        threads: usize,
+    ) -> Result<Ends, Failure> {
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .map_err(|e| output(anyhow!("cannot start {threads} worker threads: {e}")))?;
+        let mut ends = Ends::default();
+        while !halt.load(Ordering::Relaxed) {
+            let Some((k, sets)) = queue.get(next.fetch_add(1, Ordering::Relaxed)) else { break };
+            match self.point(*k, sets, &pool) {
+                Ok(PointEnd::Done) => {}
+                Ok(PointEnd::Failed) => ends.failed += 1,
+                Ok(PointEnd::Stopped(code)) => {
+                    ends.stopped = Some(code);
+                    halt.store(true, Ordering::Relaxed);
+                }
+                Err(e) => {
+                    halt.store(true, Ordering::Relaxed);
+                    return Err(e);
+                }
+            }
+        }
+        Ok(ends)
+    }
+
+    /// Runs (or resumes) point `k` with its `--set` values on `pool`, and records its status.
+    fn point(&self, k: usize, sets: &[String], pool: &rayon::ThreadPool) -> Result<PointEnd, Failure> {
+        let pdir = point_dir(self.dir, k);
+        // A signal before the point starts: stop here, as a running point would.
+        let signal = self.stop.load(Ordering::Relaxed);
+        if signal != 0 {
+            eprintln!("sweep: signal {signal} received before point {k}; run the sweep again to go on");
+            return Ok(PointEnd::Stopped(if signal == 2 { exit::SIGINT } else { exit::SIGTERM }));
+        }
+        let remaining = match self.max_wall {
+            Some(limit) => {
+                let left = limit.saturating_sub(self.started.elapsed());
+                if left.is_zero() {
+                    eprintln!("sweep: --max-wall reached before point {k}; run the sweep again to go on");
+                    return Ok(PointEnd::Stopped(exit::WALL_LIMIT));
+                }
+                Some(format!("{} s", left.as_secs_f64()))
+            }
+            None => None,
+        };
         let resume = pdir.join("checkpoint.h5").exists();
         if !resume && pdir.join("run.h5").exists() {
             // Killed without a checkpoint: start the point afresh.
@@ -208,28 +330,21 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
         }
         std::fs::create_dir_all(&pdir)
             .map_err(|e| output(anyhow!("cannot create {}: {e}", pdir.display())))?;
-        eprintln!("point {k} ({}){}", describe(&varies, &points[k]), if resume { ": resuming" } else { "" });
-        let remaining = match max_wall {
-            Some(limit) => {
-                let left = limit.saturating_sub(started.elapsed());
-                if left.is_zero() {
-                    eprintln!("sweep: --max-wall reached before point {k}; run the sweep again to go on");
-                    return Ok(exit::WALL_LIMIT);
-                }
-                Some(format!("{} s", left.as_secs_f64()))
-            }
-            None => None,
-        };
+        eprintln!(
+            "point {k} ({}){}",
+            describe(self.varies, &self.points[k]),
+            if resume { ": resuming" } else { "" }
+        );
         let run_args = RunArgs {
-            config: args.config.clone(),
+            config: self.config.to_path_buf(),
             out: if resume { None } else { Some(pdir.clone()) },
-            set: sets,
+            set: sets.to_vec(),
             threads: None,
             resume: resume.then(|| pdir.clone()),
             max_wall: remaining,
             quiet: true,
         };
-        let (code, message) = match crate::run::run(&run_args) {
+        let (code, message) = match pool.install(|| crate::run::run_until(&run_args, self.stop.clone())) {
             Ok(code) => (code, None),
             Err(Failure { code, error }) => (code, Some(format!("{error:#}"))),
         };
@@ -239,30 +354,30 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
             _ => "failed",
         };
         write_atomic(
-            &status_path,
+            &pdir.join("status.json"),
             &serde_json::to_string_pretty(&json!({"status": state, "exit_code": code, "error": message}))
                 .map_err(output)?,
         )?;
-        match state {
+        Ok(match state {
             "stopped" => {
                 eprintln!("point {k} stopped with a checkpoint (exit {code}); run the same sweep command again to resume");
-                return Ok(code);
+                PointEnd::Stopped(code)
             }
             "failed" => {
                 eprintln!("point {k} failed (exit {code}): {}", message.unwrap_or_default());
-                failed += 1;
+                PointEnd::Failed
             }
-            _ => {}
-        }
+            _ => PointEnd::Done,
+        })
     }
-    if failed > 0 {
-        return Err(Failure {
-            code: exit::NUMERICAL,
-            error: anyhow!("{failed} point(s) failed; see their status.json"),
-        });
-    }
-    eprintln!("sweep folder {}; collect the results with: spindrift merge {}", dir.display(), dir.display());
-    Ok(OK)
+}
+
+/// How one point's run ended.
+enum PointEnd {
+    Done,
+    Failed,
+    /// Stopped with a checkpoint (wall limit or signal), with the exit code.
+    Stopped(u8),
 }
 
 fn describe(varies: &[Vary], values: &[String]) -> String {

@@ -1030,7 +1030,10 @@ fn merge_notes_why_a_point_has_no_results() {
 }
 
 /// A point stopped mid-run is resumed by re-running the sweep; finished points are not
-/// re-run, and the result equals an uninterrupted sweep.
+/// re-run, and the result equals an uninterrupted sweep. With two threads the two small
+/// points run at once (one thread each), a signal stops both with checkpoints, and the
+/// results are those of the sweep run one point at a time on one thread (our own behaviour:
+/// a run gives the same bits for any thread count).
 #[test]
 fn stopped_sweep_point_is_resumed() {
     let dir = temp_dir("sweep-stop");
@@ -1038,34 +1041,63 @@ fn stopped_sweep_point_is_resumed() {
         SWEEP_CONFIG.replace("cells = [12, 12, 1]", "cells = [72, 72, 1]").replace("\"2 ps\"", "\"20 ps\"");
     let cfg = write_config(&dir, "s.toml", &long);
     let c = cfg.to_str().unwrap();
-    let args = |out: &Path| -> Vec<String> {
-        ["sweep", c, "--out", out.to_str().unwrap(), "--vary", "stage.0.temperature=5,20"]
-            .iter()
-            .map(|s| s.to_string())
-            .collect()
+    let args = |out: &Path, threads: &str| -> Vec<String> {
+        [
+            "sweep",
+            c,
+            "--out",
+            out.to_str().unwrap(),
+            "--vary",
+            "stage.0.temperature=5,20",
+            "--threads",
+            threads,
+        ]
+        .iter()
+        .map(|s| s.to_string())
+        .collect()
     };
     let straight = dir.join("straight");
-    let o = bin().args(args(&straight)).output().unwrap();
+    let o = bin().args(args(&straight, "1")).output().unwrap();
     assert!(o.status.success(), "{}", stderr(&o));
-    let stopped = dir.join("stopped");
-    let mut child = bin().args(args(&stopped)).stderr(Stdio::piped()).stdout(Stdio::null()).spawn().unwrap();
-    // Stop during point 1, once point 0 has finished.
-    let start = Instant::now();
-    while !stopped.join("point_0001/run.h5").exists() && start.elapsed() < Duration::from_secs(120) {
-        std::thread::sleep(Duration::from_millis(20));
-    }
-    // Not waiting for a flushed row: rows are flushed every 5 s, longer than the point
-    // takes. The point runs for seconds; a stop 0.3 s after its file appears lands inside.
-    std::thread::sleep(Duration::from_millis(300));
-    signal(&child, "-TERM");
-    assert_eq!(child.wait().unwrap().code(), Some(143));
-    let o = bin().args(args(&stopped)).output().unwrap();
-    assert!(o.status.success(), "{}", stderr(&o));
-    let e = stderr(&o);
-    assert!(e.contains("point 0: done already") && e.contains("resuming"), "{e}");
-    for k in 0..2 {
-        let p = format!("point_{k:04}");
-        assert_same_run(&straight.join(&p), &stopped.join(&p));
+    assert!(!stderr(&o).contains("at a time"), "{}", stderr(&o));
+    // One thread: point 1 is stopped once point 0 has finished. Two threads: both points
+    // run at once and are stopped together.
+    for (threads, first) in [("1", "point_0001"), ("2", "point_0000")] {
+        let stopped = dir.join(format!("stopped-{threads}"));
+        let mut child =
+            bin().args(args(&stopped, threads)).stderr(Stdio::piped()).stdout(Stdio::null()).spawn().unwrap();
+        let start = Instant::now();
+        while !(stopped.join(first).join("run.h5").exists() && stopped.join("point_0001/run.h5").exists())
+            && start.elapsed() < Duration::from_secs(120)
+        {
+            std::thread::sleep(Duration::from_millis(20));
+        }
+        // Not waiting for a flushed row: rows are flushed every 5 s, longer than the point
+        // takes. The point runs for seconds; a stop 0.3 s after its file appears lands inside.
+        std::thread::sleep(Duration::from_millis(300));
+        signal(&child, "-TERM");
+        let status = child.wait().unwrap();
+        let mut first_err = String::new();
+        std::io::Read::read_to_string(&mut child.stderr.take().unwrap(), &mut first_err).unwrap();
+        assert_eq!(status.code(), Some(143), "{first_err}");
+        let o = bin().args(args(&stopped, threads)).output().unwrap();
+        assert!(o.status.success(), "{}", stderr(&o));
+        let e = stderr(&o);
+        if threads == "1" {
+            assert!(
+                e.contains("point 0: done already")
+                    && e.contains("point 1 (stage.0.temperature=20): resuming"),
+                "{e}"
+            );
+        } else {
+            assert!(first_err.contains("2 points at a time, 1 thread each"), "{first_err}");
+            assert_eq!(first_err.matches("stopped with a checkpoint").count(), 2, "{first_err}");
+            assert_eq!(e.matches("resuming").count(), 2, "{e}");
+        }
+        for k in 0..2 {
+            let p = format!("point_{k:04}");
+            assert_same_run(&straight.join(&p), &stopped.join(&p));
+        }
     }
 }
 

@@ -8,3 +8,4 @@ mod heun;
 mod initial;
 mod metropolis;
 mod relax;
+mod spin_waves;

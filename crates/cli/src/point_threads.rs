@@ -14,6 +14,8 @@
 /// and 1.7 (Metropolis), while two one-thread runs side by side gave 2 times; at 32768
 /// sites two threads on one run (2.1-2.8e7 spin-steps/s) and two one-thread runs at once
 /// (2.4-2.8e7 together) were about even, at 131072 sites 2.3-2.5e7 against 2.6-2.7e7.
+/// (The Heun step shares its parallel loops out in chunks of 4096 sites, so a system of
+/// up to 4096 sites runs its steps on one thread whatever the pool holds.)
 pub const SITES_PER_THREAD: usize = 16384;
 
 /// How many points of a sweep run at once, and on how many threads each.

@@ -20,6 +20,15 @@
 //!   Mermin-Wagner theorem requires). The Brillouin-zone average uses midpoint grids
 //!   refined until two Richardson-extrapolated values agree to 0.05%.
 //!
+//! Sublattices are numbered along the open axes (`a1` fastest), so `N(q)` is a band
+//! matrix: a film's couplings reach a few layers, and its matrix has `N_rs = 0` beyond
+//! `|r - s|` of a few basis sites. The diagonal of `N(q)^-1` comes from the band's
+//! `L D L^H` factorisation and the selected inverse within the band (Takahashi's
+//! recurrence: K. Takahashi, J. Fagan and M.-S. Chin, Formation of a sparse bus impedance
+//! matrix and its application to short circuit study, 8th PICA Conference, 1973; A. M.
+//! Erisman and W. F. Tinney, Commun. ACM 18, 177 (1975)), `O(n w^2)` operations for `n`
+//! sublattices and half-bandwidth `w` instead of the `O(n^3)` of a dense inverse.
+//!
 //! Both are estimates of the model, not of the material: mean field ignores
 //! fluctuations and overestimates `Tc`; RPA is usually closer to Monte Carlo.
 
@@ -131,6 +140,32 @@ impl Reduced {
         m
     }
 
+    /// The half-bandwidth of the couplings: the largest `|r - s|` of a link (0 without).
+    fn bandwidth(&self) -> usize {
+        self.links.iter().map(|&(r, s, _, _)| r.abs_diff(s)).max().unwrap_or(0)
+    }
+
+    /// The lower band of `N(q) = diag(sum_t J_rt(0) c_t + Delta_r) - C^(1/2) J(q) C^(1/2)`,
+    /// meV: `band[r (w + 1) + k] = N_{r+k, r}` for `k = 0 ..= w` (entries past the matrix's
+    /// end are zero).
+    fn band_nq(&self, q: [f64; 3], row_sums: &[f64], w: usize, band: &mut [Complex<f64>]) {
+        band.fill(Complex::new(0.0, 0.0));
+        for (r, (&sum, &gap)) in row_sums.iter().zip(&self.gap).enumerate() {
+            band[r * (w + 1)] = Complex::new(sum + gap, 0.0);
+        }
+        for &(r, s, j, o) in &self.links {
+            // The lower triangle only: the upper is its conjugate (each link has its
+            // reverse, with the opposite phase).
+            if s < r {
+                continue;
+            }
+            let phi = q[0] * o[0] as f64 + q[1] * o[1] as f64 + q[2] * o[2] as f64;
+            let w8 = j * (self.occ[r] * self.occ[s]).sqrt();
+            // N_sr = -J_sr(q) = -conj(J_rs(q)).
+            band[r * (w + 1) + (s - r)] -= Complex::new(w8 * phi.cos(), -w8 * phi.sin());
+        }
+    }
+
     /// The virtual-crystal exchange field of each sublattice in the ferromagnetic state,
     /// `sum_s J_rs(0) c_s`, meV.
     fn field_sums(&self) -> Vec<f64> {
@@ -178,7 +213,10 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
             ),
         };
     }
-    let mean_inverse = |m: usize| -> Option<f64> {
+    let w = red.bandwidth().min(n - 1);
+    let mut band = vec![Complex::new(0.0, 0.0); n * (w + 1)];
+    let mut work = vec![Complex::new(0.0, 0.0); n * (w + 1)];
+    let mut mean_inverse = |m: usize| -> Option<f64> {
         // Average of (1/R) tr N(q)^-1 over an m^d midpoint grid of the periodic axes.
         let d = red.axes.len();
         let points = m.pow(d as u32);
@@ -190,33 +228,19 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
                 q[k] = std::f64::consts::TAU * ((rest % m) as f64 + 0.5) / m as f64;
                 rest /= m;
             }
-            let jq = red.jq(q);
-            let nq = DMatrix::from_fn(n, n, |r, s| {
-                let diag =
-                    if r == s { Complex::new(row_sums[r] + red.gap[r], 0.0) } else { Complex::new(0.0, 0.0) };
-                diag - jq[(r, s)]
-            });
-            // N(q) must be positive definite. For complex matrices nalgebra's Cholesky takes
-            // the complex square root of a negative pivot and goes on, so the pivots (the
-            // diagonal of the factor) are checked here: real and positive, or not definite.
-            let chol = nq.cholesky()?;
-            let l = chol.l_dirty();
-            if (0..n).any(|r| !(l[(r, r)].re > 0.0 && l[(r, r)].im.abs() <= 1e-9 * l[(r, r)].re)) {
-                return None;
-            }
-            let inv = chol.inverse();
-            total += (0..n).map(|r| inv[(r, r)].re).sum::<f64>() / n as f64;
+            red.band_nq(q, &row_sums, w, &mut band);
+            // None where N(q) is not positive definite.
+            total += band_inverse_trace(&mut band, n, w, &mut work)? / n as f64;
         }
         Some(total / points as f64)
     };
     let d = red.axes.len();
-    // Grid points allowed: up to 4e6, and as many as about 2e9 / n^3 operations of the
-    // factorisations allow (a second or two), which lets a film of a few tens of
-    // sublattices with a small anisotropy gap (a sharp peak at q = 0 in two dimensions)
-    // reach grids of 128 x 128; 4e6 / n^2 alone stopped bcc 64 x 64 x 16 (32 sublattices,
-    // gap 0.4 meV against J(0) = 40 meV) at 32 x 32 without converging.
-    let budget =
-        (4_000_000usize / (n * n).max(1)).max(2_000_000_000usize / (n * n * n).max(1)).min(4_000_000);
+    // Grid points allowed: up to 4e6, and as many as about 2e9 operations of the band
+    // factorisations allow (`n (w + 1)^2` each; a second or two), which lets a film with a
+    // small anisotropy gap (a sharp peak at q = 0 in two dimensions) refine its grid far
+    // enough: a budget of 4e6 / n^2 points stopped bcc 64 x 64 x 16 (32 sublattices, gap
+    // 0.4 meV against J(0) = 40 meV) at 32 x 32 without converging.
+    let budget = (2_000_000_000usize / (n * (w + 1) * (w + 1)).max(1)).min(4_000_000);
     let mut m = 8usize;
     let mut prev: Option<f64> = None;
     let mut prev_ext: Option<f64> = None;
@@ -268,5 +292,136 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
             rpa: None,
             note: Some("RPA average did not converge within the grid budget".into()),
         },
+    }
+}
+
+/// The trace of `N^-1`, real part, for the Hermitian matrix `N` whose lower band is
+/// `band` (`band[r (w + 1) + k] = N_{r+k, r}`, see [`Reduced::band_nq`]; overwritten with
+/// the factor), or `None` if `N` is not positive definite. `work` holds `n (w + 1)`
+/// numbers.
+///
+/// `N = L D L^H` with `L` unit lower triangular, as banded as `N`, and `D` real; then the
+/// entries of `Z = N^-1` within the band follow from the last row up,
+/// `Z_ij = delta_ij / d_i - sum_{k > i} conj(L_ki) Z_kj` for `j >= i` (Takahashi et al. 1973;
+/// Erisman and Tinney 1975), each sum over at most `w` terms that are already known.
+fn band_inverse_trace(
+    band: &mut [Complex<f64>],
+    n: usize,
+    w: usize,
+    work: &mut [Complex<f64>],
+) -> Option<f64> {
+    let stride = w + 1;
+    let zero = Complex::new(0.0, 0.0);
+    // Factorise in place: band[j stride] = d_j (real), band[j stride + k] = L_{j+k, j}.
+    for j in 0..n {
+        let lo = j.saturating_sub(w);
+        let mut d = band[j * stride].re;
+        for k in lo..j {
+            d -= band[k * stride + (j - k)].norm_sqr() * band[k * stride].re;
+        }
+        // Not positive definite (also catches NaN).
+        if d.is_nan() || d <= 0.0 {
+            return None;
+        }
+        band[j * stride] = Complex::new(d, 0.0);
+        for i in j + 1..(j + stride).min(n) {
+            let mut x = band[j * stride + (i - j)];
+            // Columns k < j with both L_ik and L_jk inside the band.
+            for k in i.saturating_sub(w)..j {
+                x -= band[k * stride + (i - k)] * band[k * stride + (j - k)].conj() * band[k * stride].re;
+            }
+            band[j * stride + (i - j)] = x / d;
+        }
+    }
+    // Selected inverse: work[i stride + k] = Z_{i, i+k}.
+    let z = |work: &[Complex<f64>], a: usize, b: usize| {
+        if a <= b {
+            work[a * stride + (b - a)]
+        } else {
+            work[b * stride + (a - b)].conj()
+        }
+    };
+    let mut trace = 0.0;
+    for i in (0..n).rev() {
+        let hi = (i + stride).min(n);
+        for j in (i + 1..hi).rev() {
+            let mut x = zero;
+            for k in i + 1..hi {
+                x -= band[i * stride + (k - i)].conj() * z(work, k, j);
+            }
+            work[i * stride + (j - i)] = x;
+        }
+        let mut x = Complex::new(1.0 / band[i * stride].re, 0.0);
+        for k in i + 1..hi {
+            x -= band[i * stride + (k - i)].conj() * z(work, k, i);
+        }
+        work[i * stride] = x;
+        trace += x.re;
+    }
+    Some(trace)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// A random Hermitian matrix with half-bandwidth `w`, made positive definite (or not)
+    /// by its diagonal.
+    fn banded(n: usize, w: usize, seed: u64, shift: f64) -> DMatrix<Complex<f64>> {
+        let mut state = seed;
+        let mut next = move || {
+            state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            (state >> 11) as f64 / (1u64 << 53) as f64 - 0.5
+        };
+        let mut m = DMatrix::from_element(n, n, Complex::new(0.0, 0.0));
+        for r in 0..n {
+            for s in r + 1..n.min(r + w + 1) {
+                let x = Complex::new(next(), next());
+                m[(s, r)] = x;
+                m[(r, s)] = x.conj();
+            }
+        }
+        for r in 0..n {
+            m[(r, r)] = Complex::new(shift + next(), 0.0);
+        }
+        m
+    }
+
+    fn lower_band(m: &DMatrix<Complex<f64>>, w: usize) -> Vec<Complex<f64>> {
+        let n = m.nrows();
+        let mut band = vec![Complex::new(0.0, 0.0); n * (w + 1)];
+        for r in 0..n {
+            for k in 0..=w.min(n - 1 - r) {
+                band[r * (w + 1) + k] = m[(r + k, r)];
+            }
+        }
+        band
+    }
+
+    /// The band solver's trace of the inverse against nalgebra's dense inverse (a
+    /// general-purpose reference library), from a tridiagonal matrix to a full one.
+    #[test]
+    fn band_inverse_trace_matches_the_dense_inverse() {
+        for (n, w) in [(1, 0), (5, 1), (12, 2), (40, 3), (33, 7), (9, 8)] {
+            for seed in 0..3 {
+                let m = banded(n, w, seed, 2.0 * w as f64 + 2.0);
+                let expect = m.clone().try_inverse().unwrap().diagonal().iter().map(|z| z.re).sum::<f64>();
+                let mut band = lower_band(&m, w);
+                let mut work = vec![Complex::new(0.0, 0.0); n * (w + 1)];
+                let got = band_inverse_trace(&mut band, n, w, &mut work).unwrap();
+                assert!((got - expect).abs() <= 1e-12 * expect.abs(), "n {n} w {w}: {got} against {expect}");
+            }
+        }
+    }
+
+    /// A Hermitian matrix with a negative eigenvalue has no `L D L^H` with positive `D`.
+    #[test]
+    fn band_inverse_trace_refuses_an_indefinite_matrix() {
+        let m = banded(20, 2, 1, 0.0);
+        let lowest = m.clone().symmetric_eigenvalues().iter().copied().fold(f64::MAX, f64::min);
+        assert!(lowest < 0.0);
+        let mut band = lower_band(&m, 2);
+        let mut work = vec![Complex::new(0.0, 0.0); 20 * 3];
+        assert_eq!(band_inverse_trace(&mut band, 20, 2, &mut work), None);
     }
 }

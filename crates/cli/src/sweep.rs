@@ -7,7 +7,9 @@
 //! `DIR/sweep.json` lists the points and their values (every shard writes the same
 //! content, atomically); each point's own `status.json` says whether it finished, so
 //! shards on a shared filesystem never write the same file. Re-running a sweep skips
-//! finished points and resumes points that stopped with a checkpoint.
+//! finished points and resumes points that stopped with a checkpoint. Points of small
+//! systems run side by side, each on a share of the threads ([`point_threads`]); a point's
+//! result does not depend on that.
 
 use crate::args::{MergeArgs, RunArgs, SweepArgs};
 use crate::exit::{self, bad_input, output, Failure, Outcome, OK};
@@ -209,8 +211,9 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
         }
         queue.push((k, sets));
     }
-    let sizes = queue.iter().map(|&(k, _)| sizes[k]);
-    let (sites, bytes) = sizes.fold((0, 0), |(s, b), (s2, b2)| (s.max(s2), b.max(b2)));
+    // The largest point of the queue decides (a thickness sweep's thickest film).
+    let (sites, bytes) =
+        queue.iter().map(|&(k, _)| sizes[k]).fold((0, 0), |(s, b), (s2, b2)| (s.max(s2), b.max(b2)));
     let plan = point_threads::plan(threads, queue.len(), sites, bytes, available_memory());
     if plan.at_once > 1 {
         eprintln!(

@@ -2,13 +2,15 @@
 //!
 //! A small system gains little from a second thread: each step or sweep forks and joins its
 //! parallel loops, and below some ten thousand sites a thread's share is too short to pay
-//! for that. Points of a sweep are independent runs, so a sweep of small systems runs
-//! several points at once, each on fewer threads, instead of one point at a time on all of
-//! them. Every run gives the same bits for any thread count, so this changes how long a
-//! sweep takes, never what it computes.
+//! for that. Points of a sweep are independent runs, so a sweep starts each point, in index
+//! order, once the threads its size needs ([`demand`]) and its memory are free ([`Budget`]),
+//! and gives it a share of the idle threads when the points still to start are too few to
+//! use them all ([`share`]): small points run side by side, large ones on every thread.
+//! Every run gives the same bits for any thread count, so this changes how long a sweep
+//! takes, never what it computes.
 
-/// Sites per thread below which a sweep's point is given fewer threads, so that more points
-/// run at once. Measured on a 2-core first-generation Zen node (2026-12-05, whole runs of
+/// Sites per thread a sweep's point needs: below that, a point is given fewer threads, so
+/// that more points run at once. Measured on a 2-core first-generation Zen node (2026-12-05, whole runs of
 /// `bench/configs/sc128.toml` at 300 K and of its Metropolis twin): 1024 sites ran at
 /// 0.86-0.96 times the one-thread rate on two threads, 8192 sites at 1.4-1.7 times (Heun)
 /// and 1.7 (Metropolis), while two one-thread runs side by side gave 2 times; at 32768
@@ -18,38 +20,37 @@
 /// up to 4096 sites runs its steps on one thread whatever the pool holds.)
 pub const SITES_PER_THREAD: usize = 16384;
 
-/// How many points of a sweep run at once, and on how many threads each.
-#[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub struct Plan {
-    /// Points running at the same time (at least one).
-    pub at_once: usize,
-    /// Worker threads of each running point (at least one).
-    pub threads_per_point: usize,
+/// Threads a point of `sites` sites should have, out of a sweep's `threads`: one per
+/// [`SITES_PER_THREAD`] sites, at least one and at most `threads`.
+pub fn demand(threads: usize, sites: usize) -> usize {
+    (sites / SITES_PER_THREAD).clamp(1, threads.max(1))
 }
 
-/// The plan for `points` points to run with `threads` threads in all, the largest point
-/// having `largest_sites` sites and needing `largest_bytes` of memory, with `memory` bytes
-/// available (if known).
-///
-/// Each point needs one thread per [`SITES_PER_THREAD`] sites (at least one); as many
-/// points run at once as the threads allow, but no more than there are points and no more
-/// than fit the memory together; the threads are then shared evenly among the running
-/// points, so a sweep of fewer points than that still uses every thread.
-pub fn plan(
-    threads: usize,
-    points: usize,
-    largest_sites: usize,
-    largest_bytes: u64,
-    memory: Option<u64>,
-) -> Plan {
-    let threads = threads.max(1);
-    let needed = (largest_sites / SITES_PER_THREAD).clamp(1, threads);
-    let mut at_once = (threads / needed).min(points).max(1);
-    if let Some(memory) = memory {
-        let fit = usize::try_from(memory / largest_bytes.max(1)).unwrap_or(usize::MAX);
-        at_once = at_once.min(fit.max(1));
+/// Threads to give a point that needs `need` when `free` threads are idle and `remaining`
+/// points (this one included) are still to start: its need, or a share of the idle threads
+/// when the points left are too few to use them all (so that a sweep of one small point
+/// still runs on every thread, and the last points of a sweep on the threads the others
+/// left), never more than are idle. The caller waits until `free >= need`.
+pub fn share(need: usize, free: usize, remaining: usize) -> usize {
+    need.max(free / remaining.max(1)).min(free)
+}
+
+/// Threads and memory (bytes) of a sweep not taken by its running points, and how many
+/// points run.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub struct Budget {
+    pub threads: usize,
+    pub memory: u64,
+    pub running: usize,
+}
+
+impl Budget {
+    /// Whether a point needing `threads` threads and `memory` bytes can start now. A point
+    /// larger than the memory left starts once nothing else runs (its own validation has
+    /// checked it against the machine's memory).
+    pub fn admits(&self, threads: usize, memory: u64) -> bool {
+        self.threads >= threads && (memory <= self.memory || self.running == 0)
     }
-    Plan { at_once, threads_per_point: threads / at_once }
 }
 
 #[cfg(test)]
@@ -57,38 +58,35 @@ mod tests {
     use super::*;
 
     #[test]
-    fn small_points_run_side_by_side_on_one_thread_each() {
-        assert_eq!(plan(2, 10, 1024, 1 << 20, None), Plan { at_once: 2, threads_per_point: 1 });
-        assert_eq!(plan(32, 100, 20_000, 1 << 20, None), Plan { at_once: 32, threads_per_point: 1 });
+    fn a_point_needs_a_thread_per_share_of_sites() {
+        assert_eq!(demand(2, 1024), 1);
+        assert_eq!(demand(2, 32_768), 2);
+        assert_eq!(demand(2, 10_000_000), 2);
+        assert_eq!(demand(32, 100_000), 6);
+        assert_eq!(demand(0, 0), 1);
     }
 
     #[test]
-    fn large_points_take_every_thread() {
-        assert_eq!(plan(2, 10, 131_072, 1 << 30, None), Plan { at_once: 1, threads_per_point: 2 });
-        assert_eq!(plan(32, 10, 10_000_000, 1 << 30, None), Plan { at_once: 1, threads_per_point: 32 });
+    fn spare_threads_go_to_the_last_points() {
+        // Two cores, three small points: one thread each, the third when one is free.
+        assert_eq!(share(1, 2, 3), 1);
+        assert_eq!(share(1, 1, 2), 1);
+        assert_eq!(share(1, 1, 1), 1);
+        // A single small point takes both, as a sweep of one point always did.
+        assert_eq!(share(1, 2, 1), 2);
+        // 32 threads, two points of 100000 sites: 16 each.
+        assert_eq!(share(6, 32, 2), 16);
+        assert_eq!(share(6, 16, 1), 16);
+        // 32 threads, forty such points: their need.
+        assert_eq!(share(6, 32, 40), 6);
     }
 
     #[test]
-    fn middling_points_share_the_threads_evenly() {
-        // 100000 sites need 6 threads: 5 points at once on a 32-thread node, 6 threads each.
-        assert_eq!(plan(32, 40, 100_000, 1 << 20, None), Plan { at_once: 5, threads_per_point: 6 });
-    }
-
-    #[test]
-    fn fewer_points_than_slots_get_the_spare_threads() {
-        assert_eq!(plan(2, 1, 1024, 1 << 20, None), Plan { at_once: 1, threads_per_point: 2 });
-        assert_eq!(plan(32, 2, 100_000, 1 << 20, None), Plan { at_once: 2, threads_per_point: 16 });
-    }
-
-    #[test]
-    fn memory_limits_the_points_at_once() {
-        assert_eq!(plan(8, 10, 1024, 1 << 30, Some(3 << 30)), Plan { at_once: 3, threads_per_point: 2 });
-        // A point larger than the memory still runs (its own validation refuses it, not this).
-        assert_eq!(plan(8, 10, 1024, 1 << 30, Some(1 << 20)), Plan { at_once: 1, threads_per_point: 8 });
-    }
-
-    #[test]
-    fn degenerate_counts_still_plan_one_point_on_one_thread() {
-        assert_eq!(plan(0, 0, 0, 0, Some(0)), Plan { at_once: 1, threads_per_point: 1 });
+    fn memory_holds_a_point_back_while_others_run() {
+        let b = Budget { threads: 4, memory: 1 << 30, running: 1 };
+        assert!(b.admits(2, 1 << 29));
+        assert!(!b.admits(2, 1 << 31));
+        assert!(!b.admits(8, 1 << 20));
+        assert!(Budget { running: 0, ..b }.admits(2, 1 << 40));
     }
 }

@@ -18,6 +18,7 @@ use crate::run::default_out;
 use crate::signals;
 use crate::system::{available_memory, set_threads};
 use anyhow::anyhow;
+use point_threads::Budget;
 use serde_json::{json, Value};
 use spindrift_config::{load, range_values, validate};
 use spindrift_engine::seeds::point_seed;
@@ -25,8 +26,8 @@ use spindrift_io::{read_summary, RunReader};
 use spindrift_observe::{binder_crossing, BinderCurve, ScanPoint};
 use spindrift_plot::{panels_png, Curve, Panel};
 use std::path::{Path, PathBuf};
-use std::sync::atomic::{AtomicBool, AtomicI32, AtomicUsize, Ordering};
-use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, AtomicI32, Ordering};
+use std::sync::{Arc, Condvar, Mutex};
 
 /// One swept key and its values, as TOML value texts.
 #[derive(Debug, Clone, PartialEq)]
@@ -211,52 +212,84 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
         }
         queue.push((k, sets));
     }
-    // The largest point of the queue decides (a thickness sweep's thickest film).
-    let (sites, bytes) =
-        queue.iter().map(|&(k, _)| sizes[k]).fold((0, 0), |(s, b), (s2, b2)| (s.max(s2), b.max(b2)));
-    let plan = point_threads::plan(threads, queue.len(), sites, bytes, available_memory());
-    if plan.at_once > 1 {
-        eprintln!(
-            "sweep: {} points at a time, {} thread{} each (points of at most {sites} sites)",
-            plan.at_once,
-            plan.threads_per_point,
-            if plan.threads_per_point == 1 { "" } else { "s" }
-        );
-    }
     let sweep =
         Points { config: &args.config, dir: &dir, varies: &varies, points: &points, max_wall, started, stop };
-    let next = AtomicUsize::new(0);
+    let budget = Mutex::new(Budget { threads, memory: available_memory().unwrap_or(u64::MAX), running: 0 });
+    let freed = Condvar::new();
     let halt = AtomicBool::new(false);
-    let ends: Vec<Result<Ends, Failure>> = std::thread::scope(|scope| {
-        let workers: Vec<_> = (0..plan.at_once)
-            .map(|_| scope.spawn(|| sweep.work(&queue, &next, &halt, plan.threads_per_point)))
-            .collect();
-        workers.into_iter().map(|w| w.join().unwrap_or_else(|p| std::panic::resume_unwind(p))).collect()
+    // The points start in index order, each once the threads it needs (and its memory) are
+    // free; each runs on a thread of its own with a pool of its share of the threads.
+    let ends: Vec<Result<PointEnd, Failure>> = std::thread::scope(|scope| {
+        let mut running = Vec::new();
+        for (at, (k, sets)) in queue.iter().enumerate() {
+            let (sites, bytes) = sizes[*k];
+            let need = point_threads::demand(threads, sites);
+            let mut b = budget.lock().unwrap_or_else(|e| e.into_inner());
+            while !halt.load(Ordering::Relaxed) && !b.admits(need, bytes) {
+                b = freed.wait(b).unwrap_or_else(|e| e.into_inner());
+            }
+            if halt.load(Ordering::Relaxed) {
+                break;
+            }
+            let give = point_threads::share(need, b.threads, queue.len() - at);
+            // A point let in alone beyond the memory left takes what there is.
+            let taken = bytes.min(b.memory);
+            b.threads -= give;
+            b.memory -= taken;
+            b.running += 1;
+            drop(b);
+            let (sweep, budget, freed, halt) = (&sweep, &budget, &freed, &halt);
+            running.push(scope.spawn(move || {
+                // Returns the point's threads and memory however it ends (a panic included,
+                // so that the loop above never waits for them in vain).
+                let _release = Release { budget, freed, threads: give, memory: taken };
+                let end = sweep.point(*k, sets, give, threads);
+                if !matches!(end, Ok(PointEnd::Done | PointEnd::Failed)) {
+                    halt.store(true, Ordering::Relaxed);
+                }
+                end
+            }));
+        }
+        running.into_iter().map(|w| w.join().unwrap_or_else(|p| std::panic::resume_unwind(p))).collect()
     });
-    let mut total = Ends::default();
+    let (mut failed, mut stopped) = (0, None);
     for end in ends {
-        let end = end?;
-        total.failed += end.failed;
-        total.stopped = total.stopped.or(end.stopped);
+        match end? {
+            PointEnd::Done => {}
+            PointEnd::Failed => failed += 1,
+            PointEnd::Stopped(code) => stopped = stopped.or(Some(code)),
+        }
     }
-    if let Some(code) = total.stopped {
+    if let Some(code) = stopped {
         return Ok(code);
     }
-    if total.failed > 0 {
+    if failed > 0 {
         return Err(Failure {
             code: exit::NUMERICAL,
-            error: anyhow!("{} point(s) failed; see their status.json", total.failed),
+            error: anyhow!("{failed} point(s) failed; see their status.json"),
         });
     }
     eprintln!("sweep folder {}; collect the results with: spindrift merge {}", dir.display(), dir.display());
     Ok(OK)
 }
 
-/// What a sweep's worker met: points that failed, and the exit code of a stop.
-#[derive(Debug, Default)]
-struct Ends {
-    failed: usize,
-    stopped: Option<u8>,
+/// Gives a running point's threads and memory back to the sweep's budget when dropped.
+struct Release<'a> {
+    budget: &'a Mutex<Budget>,
+    freed: &'a Condvar,
+    threads: usize,
+    memory: u64,
+}
+
+impl Drop for Release<'_> {
+    fn drop(&mut self) {
+        let mut b = self.budget.lock().unwrap_or_else(|e| e.into_inner());
+        b.threads += self.threads;
+        b.memory += self.memory;
+        b.running -= 1;
+        drop(b);
+        self.freed.notify_all();
+    }
 }
 
 /// A sweep's points as its workers run them.
@@ -271,42 +304,9 @@ struct Points<'a> {
 }
 
 impl Points<'_> {
-    /// Runs points from `queue` (taking the next one from `next`) on a pool of `threads`
-    /// threads of its own until the queue is empty or a stop (signal, wall limit, output
-    /// error: `halt`) ends the sweep. Points already running when another worker stops run on;
-    /// a signal stops them too, at their next safe point.
-    fn work(
-        &self,
-        queue: &[(usize, Vec<String>)],
-        next: &AtomicUsize,
-        halt: &AtomicBool,
-        threads: usize,
-    ) -> Result<Ends, Failure> {
-        let pool = rayon::ThreadPoolBuilder::new()
-            .num_threads(threads)
-            .build()
-            .map_err(|e| output(anyhow!("cannot start {threads} worker threads: {e}")))?;
-        let mut ends = Ends::default();
-        while !halt.load(Ordering::Relaxed) {
-            let Some((k, sets)) = queue.get(next.fetch_add(1, Ordering::Relaxed)) else { break };
-            match self.point(*k, sets, &pool) {
-                Ok(PointEnd::Done) => {}
-                Ok(PointEnd::Failed) => ends.failed += 1,
-                Ok(PointEnd::Stopped(code)) => {
-                    ends.stopped = Some(code);
-                    halt.store(true, Ordering::Relaxed);
-                }
-                Err(e) => {
-                    halt.store(true, Ordering::Relaxed);
-                    return Err(e);
-                }
-            }
-        }
-        Ok(ends)
-    }
-
-    /// Runs (or resumes) point `k` with its `--set` values on `pool`, and records its status.
-    fn point(&self, k: usize, sets: &[String], pool: &rayon::ThreadPool) -> Result<PointEnd, Failure> {
+    /// Runs (or resumes) point `k` with its `--set` values on a pool of `threads` threads
+    /// (of the sweep's `total`), and records its status.
+    fn point(&self, k: usize, sets: &[String], threads: usize, total: usize) -> Result<PointEnd, Failure> {
         let pdir = point_dir(self.dir, k);
         // A signal before the point starts: stop here, as a running point would.
         let signal = self.stop.load(Ordering::Relaxed);
@@ -334,10 +334,15 @@ impl Points<'_> {
         std::fs::create_dir_all(&pdir)
             .map_err(|e| output(anyhow!("cannot create {}: {e}", pdir.display())))?;
         eprintln!(
-            "point {k} ({}){}",
+            "point {k} ({}){}{}",
             describe(self.varies, &self.points[k]),
-            if resume { ": resuming" } else { "" }
+            if resume { ": resuming" } else { "" },
+            if threads < total { format!(" [{threads} of {total} threads]") } else { String::new() }
         );
+        let pool = rayon::ThreadPoolBuilder::new()
+            .num_threads(threads)
+            .build()
+            .map_err(|e| output(anyhow!("cannot start {threads} worker threads: {e}")))?;
         let run_args = RunArgs {
             config: self.config.to_path_buf(),
             out: if resume { None } else { Some(pdir.clone()) },

@@ -14,6 +14,18 @@ fn stderr(o: &std::process::Output) -> String {
     String::from_utf8_lossy(&o.stderr).into_owned()
 }
 
+/// `check --json` of the config at `path`, which must succeed.
+fn check_json(path: &Path) -> Value {
+    let o = spindrift(&["check", path.to_str().unwrap(), "--json"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    serde_json::from_slice(&o.stdout).unwrap()
+}
+
+/// The mean-field Curie temperature `check --json` printed is `mf` K, to 1e-9 relative.
+fn assert_mean_field(v: &Value, mf: f64) {
+    assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf, "{}", v["curie_mean_field"]);
+}
+
 /// `check --json` prints the keys INTERFACE.md promises, with the values of the
 /// definitions (mean field for classical spins `kB T = J0 / 3`, textbook).
 #[test]
@@ -103,11 +115,9 @@ fn bulk_bond_table_on_a_film_leaves_out_the_cut_rows() {
          [[species]]\nname = \"A\"\nmoment = 2.0\n[[exchange]]\nshell = 1\nj = 5.0\n\
          [[bond]]\nfrom = 0\nto = 0\ncell = [0, 0, 1]\nj = 9.0\n",
     );
-    let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
-    assert!(o.status.success(), "{}", stderr(&o));
-    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let v = check_json(&p);
     let mf = 4.0 * 5.0 / (3.0 * 8.617333262e-2);
-    assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf, "{}", v["curie_mean_field"]);
+    assert_mean_field(&v, mf);
     assert!(v["warnings"].to_string().contains("bond.0: the bond reaches beyond"), "{}", v["warnings"]);
 }
 
@@ -188,24 +198,20 @@ fn self_images_are_left_out_with_a_warning() {
     std::fs::write(dir.join("t.dat"), "# from to n1 n2 n3 J\n0 0 1 0 0 2.0\n0 0 0 0 2 3.0\n").unwrap();
     let base = "[lattice]\npreset = \"simple-cubic\"\na = 3.0\ncells = [6, 6, 2]\n[[species]]\nname = \"A\"\nmoment = 2.0\n";
     let p = write_config(&dir, "c.toml", &format!("{base}[[exchange]]\nshell = 4\nj = 5.0\n"));
-    let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
-    assert!(o.status.success(), "{}", stderr(&o));
-    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let v = check_json(&p);
     let mf = 4.0 * 5.0 / (3.0 * 8.617333262e-2);
-    assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf, "{}", v["curie_mean_field"]);
+    assert_mean_field(&v, mf);
     let w = v["warnings"].to_string();
     assert!(w.contains("exchange.0: 1 pair per cell at 6.0000 Å lands on its own site"), "{w}");
     let p = write_config(&dir, "t.toml", &format!("{base}[[bond_table]]\npath = \"t.dat\"\n"));
-    let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
-    assert!(o.status.success(), "{}", stderr(&o));
-    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let v = check_json(&p);
     let w = v["warnings"].to_string();
     assert!(
         w.contains("1 of the 2 rows") && w.contains("line 3, lands on its own site at cell offset [0, 0, 2]"),
         "{w}"
     );
     let mf = 2.0 * 2.0 / (3.0 * 8.617333262e-2);
-    assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf, "{}", v["curie_mean_field"]);
+    assert_mean_field(&v, mf);
 }
 
 /// A shell given twice adds the two couplings (mean field 4 (5 + 2) / 3 kB on the square
@@ -217,11 +223,9 @@ fn a_shell_given_twice_adds_with_a_warning() {
     let base = "[lattice]\npreset = \"square\"\na = 3.0\ncells = [4, 4, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\n\
                 [[exchange]]\nshell = 1\nj = 5.0\n";
     let p = write_config(&dir, "c.toml", &format!("{base}[[exchange]]\nshell = 1\nj = 2.0\n"));
-    let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
-    assert!(o.status.success(), "{}", stderr(&o));
-    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let v = check_json(&p);
     let mf = 4.0 * 7.0 / (3.0 * 8.617333262e-2);
-    assert!((v["curie_mean_field"].as_f64().unwrap() - mf).abs() < 1e-9 * mf, "{}", v["curie_mean_field"]);
+    assert_mean_field(&v, mf);
     let w = v["warnings"].to_string();
     assert!(w.contains("exchange.1: the pairs at 3.0000 Å are also coupled by exchange.0"), "{w}");
     let two = base.replace("moment = 2.0\n", "moment = 2.0\n[[species]]\nname = \"B\"\nmoment = 1.0\n")
@@ -234,9 +238,7 @@ fn a_shell_given_twice_adds_with_a_warning() {
             "j = 5.0\npair = [\"A\", \"A\"]\n[[exchange]]\nshell = 1\nj = 3.0\npair = [\"B\", \"B\"]\n",
         ),
     );
-    let o = spindrift(&["check", p.to_str().unwrap(), "--json"]);
-    assert!(o.status.success(), "{}", stderr(&o));
-    let v: Value = serde_json::from_slice(&o.stdout).unwrap();
+    let v = check_json(&p);
     assert_eq!(v["warnings"].as_array().map(Vec::len), Some(0), "{}", v["warnings"]);
 }
 

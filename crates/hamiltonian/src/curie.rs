@@ -11,7 +11,8 @@
 //! it is similar to `A(q)` (by `C^(1/2)`), so it has the same eigenvalues, and the diagonal
 //! of the inverse below is the same for both: the estimates use it.
 //!
-//! - Mean field: `kB T = lambda_max(J(0)) / 3` (for one sublattice `z J / 3`).
+//! - Mean field: `kB T = lambda_max(J(0)) / 3` (for one sublattice `z J / 3`), the
+//!   eigenvalue found by bisection on the band (see below).
 //! - RPA: `1/(kB T) = (3/R) sum_r < [N(q)^-1]_rr >_q`, with
 //!   `N_rs(q) = delta_rs (sum_t J_rt(0) + Delta_r) - J_rs(q)` and `R` sublattices; for one
 //!   sublattice `kB T = [ 3 < 1/(J(0) - J(q)) >_q ]^-1`. `Delta_r = 2 max(k_r, 0)` is the
@@ -27,14 +28,20 @@
 //! recurrence: K. Takahashi, J. Fagan and M.-S. Chin, Formation of a sparse bus impedance
 //! matrix and its application to short circuit study, 8th PICA Conference, 1973; A. M.
 //! Erisman and W. F. Tinney, Commun. ACM 18, 177 (1975)), `O(n w^2)` operations for `n`
-//! sublattices and half-bandwidth `w` instead of the `O(n^3)` of a dense inverse.
+//! sublattices and half-bandwidth `w` instead of the `O(n^3)` of a dense inverse; the same
+//! factorisation of `sigma 1 - J(0)` tells whether `sigma` lies above `lambda_max`, and
+//! bisection on that finds it. Open axes are numbered from the shortest to the longest,
+//! which keeps `w` small for films and wires; the estimates are skipped where
+//! `n (w + 1)^2` exceeds [`MAX_BAND_COST`] (an island beyond about 110 by 110 cells, a box
+//! open along all three axes beyond about 14 cells a side).
 //!
 //! Both are estimates of the model, not of the material: mean field ignores
 //! fluctuations and overestimates `Tc`; RPA is usually closer to Monte Carlo.
 
 use crate::constants::K_B;
 use crate::hamiltonian::Hamiltonian;
-use nalgebra::{Complex, DMatrix};
+use nalgebra::{Complex, ComplexField};
+use spindrift_lattice::Bond;
 
 /// The estimates `spindrift check` prints.
 #[derive(Debug, Clone, PartialEq)]
@@ -47,8 +54,84 @@ pub struct CurieEstimates {
     pub note: Option<String>,
 }
 
-/// Largest number of sublattices handled (open axes make one per cell).
-pub const MAX_SUBLATTICES: usize = 1500;
+/// Largest `n (w + 1)^2` (sublattices times the squared band) for which the estimates are
+/// made, about 3 s of them on a 2.4 GHz core (the mean field takes about 45 real band
+/// factorisations, the RPA one complex factorisation and selected inverse per grid point).
+/// A film of any practical thickness is far below it (a bcc film of 10^4 layers: 2 10^4
+/// sublattices, `w` = 2); so is an island or a wire up to about 110 by 110 cells in
+/// cross-section (`12100 (111)^2`); a box open along all three axes, whose couplings reach
+/// a whole layer of sublattices ahead, only up to about 14 cells a side.
+pub const MAX_BAND_COST: usize = 150_000_000;
+
+/// The sublattices' count and numbering, known before any coupling is listed: the basis
+/// site fastest, then the open axes from the shortest to the longest, so that the couplings
+/// of a film, a wire or a slab reach as few sublattices ahead as the geometry allows (the
+/// half-bandwidth of `N(q)`).
+struct Shape {
+    /// Open-axis extents in cells (1 along periodic axes).
+    ext: [usize; 3],
+    /// Index step of one cell along each axis (0 along periodic axes).
+    stride: [usize; 3],
+    nb: usize,
+}
+
+impl Shape {
+    fn of(h: &Hamiltonian) -> Self {
+        let cell = h.cell();
+        let (cells, periodic, nb) = (cell.cells(), cell.periodic(), cell.basis_len());
+        let ext = [0, 1, 2].map(|k| if periodic[k] { 1 } else { cells[k] });
+        let mut order = [0, 1, 2];
+        order.sort_by_key(|&k| ext[k]);
+        let mut stride = [0; 3];
+        let mut step = nb;
+        for k in order {
+            if ext[k] > 1 {
+                stride[k] = step;
+                step *= ext[k];
+            }
+        }
+        Self { ext, stride, nb }
+    }
+
+    fn size(&self) -> usize {
+        self.ext[0] * self.ext[1] * self.ext[2] * self.nb
+    }
+
+    fn index(&self, c: [usize; 3], b: usize) -> usize {
+        c[0] * self.stride[0] + c[1] * self.stride[1] + c[2] * self.stride[2] + b
+    }
+
+    /// The half-bandwidth the couplings give, from the bond table alone (a coupling that
+    /// spans as many cells as an open axis has, or more, links nothing and does not count).
+    fn bandwidth(&self, h: &Hamiltonian) -> usize {
+        let periodic = h.cell().periodic();
+        let mut w = 0;
+        for b in 0..self.nb {
+            for bond in h.bonds().from_basis(b) {
+                if isotropic_j(bond) == 0.0 {
+                    continue;
+                }
+                let mut reach = bond.to as i64 - b as i64;
+                let mut links = true;
+                for k in (0..3).filter(|&k| !periodic[k]) {
+                    let o = bond.offset[k] as i64;
+                    links &= o.unsigned_abs() < self.ext[k] as u64;
+                    reach += o * self.stride[k] as i64;
+                }
+                if links {
+                    w = w.max(reach.unsigned_abs() as usize);
+                }
+            }
+        }
+        w
+    }
+}
+
+/// The isotropic part of a bond's coupling, meV: `J` plus a third of a tensor's trace.
+fn isotropic_j(bond: &Bond) -> f64 {
+    let cp = &bond.coupling;
+    cp.j + cp.tensor.map_or(0.0, |t| (t[0][0] + t[1][1] + t[2][2]) / 3.0)
+}
 
 struct Reduced {
     /// Open-axis extents (1 along periodic axes).
@@ -68,23 +151,22 @@ impl Reduced {
         self.ext[0] * self.ext[1] * self.ext[2] * self.nb
     }
 
-    fn build(h: &Hamiltonian) -> Self {
+    fn build(h: &Hamiltonian, shape: &Shape) -> Self {
         let cell = h.cell();
         let cells = cell.cells();
         let periodic = cell.periodic();
         let nb = cell.basis_len();
-        let ext = [0, 1, 2].map(|k| if periodic[k] { 1 } else { cells[k] });
+        let ext = shape.ext;
         let occ: Vec<f64> = cell.crystal().basis.iter().map(|s| s.occupancy).collect();
         let mut links = Vec::new();
         let mut axes = Vec::new();
-        let index = |c: [usize; 3], b: usize| ((c[2] * ext[1] + c[1]) * ext[0] + c[0]) * nb + b;
+        let index = |c: [usize; 3], b: usize| shape.index(c, b);
         for c3 in 0..ext[2] {
             for c2 in 0..ext[1] {
                 for c1 in 0..ext[0] {
                     for b in 0..nb {
                         for bond in h.bonds().from_basis(b) {
-                            let cp = &bond.coupling;
-                            let j = cp.j + cp.tensor.map_or(0.0, |t| (t[0][0] + t[1][1] + t[2][2]) / 3.0);
+                            let j = isotropic_j(bond);
                             if j == 0.0 {
                                 continue;
                             }
@@ -116,6 +198,7 @@ impl Reduced {
             }
         }
         axes.sort_unstable();
+        // The basis site is the fastest index (`Shape::index`).
         let gap = (0..ext[0] * ext[1] * ext[2] * nb)
             .map(|r| {
                 let b = r % nb;
@@ -127,17 +210,63 @@ impl Reduced {
         Self { ext, nb, links, occ, axes, gap }
     }
 
-    /// `C^(1/2) J(q) C^(1/2)` (entries `J_rs(q) sqrt(c_r c_s)`) as a dense Hermitian matrix,
-    /// meV.
-    fn jq(&self, q: [f64; 3]) -> DMatrix<Complex<f64>> {
+    /// The largest eigenvalue of `C^(1/2) J(0) C^(1/2)` (entries `J_rs(0) sqrt(c_r c_s)`,
+    /// symmetrised), meV, by bisection on positive definiteness: `sigma 1 - J(0)` has an
+    /// `L D L^T` factorisation with positive pivots exactly when `sigma` lies above every
+    /// eigenvalue (Sylvester's law of inertia; the bisection of J. W. Givens's method, see
+    /// G. H. Golub and C. F. Van Loan, Matrix Computations, 4th ed. (2013), sec. 8.4).
+    /// Bracketed below by the largest diagonal entry and the Rayleigh quotient of the
+    /// uniform vector, above by Gershgorin's bound; refined to 1e-13 of the larger bound.
+    /// `band` holds `n (w + 1)` numbers.
+    fn largest_j0_eigenvalue(&self, w: usize, band: &mut [f64]) -> f64 {
         let n = self.size();
-        let mut m = DMatrix::from_element(n, n, Complex::new(0.0, 0.0));
-        for &(r, s, j, o) in &self.links {
-            let phi = q[0] * o[0] as f64 + q[1] * o[1] as f64 + q[2] * o[2] as f64;
-            let w = j * (self.occ[r] * self.occ[s]).sqrt();
-            m[(r, s)] += Complex::new(w * phi.cos(), w * phi.sin());
+        let stride = w + 1;
+        // The lower band of the symmetrised J(0): each link between two sublattices adds
+        // half its weight to the entry (max, min) and its reverse the other half; a link
+        // from a sublattice to itself (through a periodic axis) adds its whole weight.
+        let mut j0 = vec![0.0; n * stride];
+        for &(r, s, j, _) in &self.links {
+            let x = j * (self.occ[r] * self.occ[s]).sqrt();
+            let (hi, lo) = (r.max(s), r.min(s));
+            j0[lo * stride + (hi - lo)] += if r == s { x } else { 0.5 * x };
         }
-        m
+        let (mut diag, mut total, mut gershgorin) = (f64::MIN, 0.0, vec![0.0; n]);
+        for c in 0..n {
+            diag = diag.max(j0[c * stride]);
+            total += j0[c * stride];
+            gershgorin[c] += j0[c * stride];
+            for k in 1..stride.min(n - c) {
+                let x = j0[c * stride + k];
+                total += 2.0 * x;
+                gershgorin[c] += x.abs();
+                gershgorin[c + k] += x.abs();
+            }
+        }
+        let mut lo = diag.max(total / n as f64);
+        let mut hi = gershgorin.iter().copied().fold(f64::MIN, f64::max).max(lo);
+        let mut above = |sigma: f64| {
+            for (b, &x) in band.iter_mut().zip(&j0) {
+                *b = -x;
+            }
+            for c in 0..n {
+                band[c * stride] += sigma;
+            }
+            band_factorise(band, n, w)
+        };
+        // About 45 halvings from a bracket of the order of the value itself.
+        let tol = 1e-13 * hi.abs().max(lo.abs());
+        while hi - lo > tol {
+            let mid = 0.5 * (lo + hi);
+            if mid <= lo || mid >= hi {
+                break;
+            }
+            if above(mid) {
+                hi = mid;
+            } else {
+                lo = mid;
+            }
+        }
+        hi
     }
 
     /// The half-bandwidth of the couplings: the largest `|r - s|` of a link (0 without).
@@ -179,20 +308,23 @@ impl Reduced {
 
 /// Mean-field and RPA Curie temperatures of the ferromagnetic state of `h`.
 pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
-    let red = Reduced::build(h);
-    let n = red.size();
-    if n > MAX_SUBLATTICES {
+    // The cost is known from the bond table before any coupling is listed, so that a large
+    // box open along every axis is refused without listing its millions of links.
+    let shape = Shape::of(h);
+    let n = shape.size();
+    let reach = shape.bandwidth(h).min(n - 1);
+    if n.saturating_mul((reach + 1).pow(2)) > MAX_BAND_COST {
         return CurieEstimates {
             mean_field: f64::NAN,
             rpa: None,
             note: Some(format!(
-                "{n} sublattices along open axes (more than {MAX_SUBLATTICES}); estimates skipped"
+                "{n} sublattices along open axes, coupled up to {reach} ahead; estimates skipped"
             )),
         };
     }
-    let j0 = red.jq([0.0; 3]);
-    let real = DMatrix::from_fn(n, n, |r, s| 0.5 * (j0[(r, s)].re + j0[(s, r)].re));
-    let lambda = real.symmetric_eigenvalues().iter().copied().fold(f64::MIN, f64::max);
+    let red = Reduced::build(h, &shape);
+    let w = red.bandwidth().min(n - 1);
+    let lambda = red.largest_j0_eigenvalue(w, &mut vec![0.0; n * (w + 1)]);
     let mean_field = (lambda / (3.0 * K_B)).max(0.0);
     if lambda <= 0.0 {
         return CurieEstimates {
@@ -213,7 +345,6 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
             ),
         };
     }
-    let w = red.bandwidth().min(n - 1);
     let mut band = vec![Complex::new(0.0, 0.0); n * (w + 1)];
     let mut work = vec![Complex::new(0.0, 0.0); n * (w + 1)];
     let mut mean_inverse = |m: usize| -> Option<f64> {
@@ -295,6 +426,36 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
     }
 }
 
+/// Factorises the Hermitian band matrix `N` (lower band in `band`, as in
+/// [`band_inverse_trace`]) in place as `L D L^H`: `band[j (w + 1)] = d_j` (real),
+/// `band[j (w + 1) + k] = L_{j+k, j}`. Returns whether every pivot `d_j` is positive, that
+/// is whether `N` is positive definite (a NaN counts as not); on `false` the band is left
+/// part-factorised. Complex for `N(q)`, real for the mean field's `sigma 1 - J(0)`.
+fn band_factorise<T: ComplexField<RealField = f64> + Copy>(band: &mut [T], n: usize, w: usize) -> bool {
+    let stride = w + 1;
+    for j in 0..n {
+        let lo = j.saturating_sub(w);
+        let mut d = band[j * stride].real();
+        for k in lo..j {
+            d -= band[k * stride + (j - k)].modulus_squared() * band[k * stride].real();
+        }
+        if d.is_nan() || d <= 0.0 {
+            return false;
+        }
+        band[j * stride] = T::from_real(d);
+        for i in j + 1..(j + stride).min(n) {
+            let mut x = band[j * stride + (i - j)];
+            // Columns k < j with both L_ik and L_jk inside the band.
+            for k in i.saturating_sub(w)..j {
+                x -= (band[k * stride + (i - k)] * band[k * stride + (j - k)].conjugate())
+                    .scale(band[k * stride].real());
+            }
+            band[j * stride + (i - j)] = x.unscale(d);
+        }
+    }
+    true
+}
+
 /// The trace of `N^-1`, real part, for the Hermitian matrix `N` whose lower band is
 /// `band` (`band[r (w + 1) + k] = N_{r+k, r}`, see [`Reduced::band_nq`]; overwritten with
 /// the factor), or `None` if `N` is not positive definite. `work` holds `n (w + 1)`
@@ -310,29 +471,11 @@ fn band_inverse_trace(
     w: usize,
     work: &mut [Complex<f64>],
 ) -> Option<f64> {
+    if !band_factorise(band, n, w) {
+        return None;
+    }
     let stride = w + 1;
     let zero = Complex::new(0.0, 0.0);
-    // Factorise in place: band[j stride] = d_j (real), band[j stride + k] = L_{j+k, j}.
-    for j in 0..n {
-        let lo = j.saturating_sub(w);
-        let mut d = band[j * stride].re;
-        for k in lo..j {
-            d -= band[k * stride + (j - k)].norm_sqr() * band[k * stride].re;
-        }
-        // Not positive definite (also catches NaN).
-        if d.is_nan() || d <= 0.0 {
-            return None;
-        }
-        band[j * stride] = Complex::new(d, 0.0);
-        for i in j + 1..(j + stride).min(n) {
-            let mut x = band[j * stride + (i - j)];
-            // Columns k < j with both L_ik and L_jk inside the band.
-            for k in i.saturating_sub(w)..j {
-                x -= band[k * stride + (i - k)] * band[k * stride + (j - k)].conj() * band[k * stride].re;
-            }
-            band[j * stride + (i - j)] = x / d;
-        }
-    }
     // Selected inverse: work[i stride + k] = Z_{i, i+k}.
     let z = |work: &[Complex<f64>], a: usize, b: usize| {
         if a <= b {
@@ -364,6 +507,7 @@ fn band_inverse_trace(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use nalgebra::DMatrix;
 
     /// A random Hermitian matrix with half-bandwidth `w`, made positive definite (or not)
     /// by its diagonal.
@@ -423,5 +567,43 @@ mod tests {
         let mut band = lower_band(&m, 2);
         let mut work = vec![Complex::new(0.0, 0.0); 20 * 3];
         assert_eq!(band_inverse_trace(&mut band, 20, 2, &mut work), None);
+    }
+
+    /// The bisection's largest eigenvalue of `C^(1/2) J(0) C^(1/2)` against nalgebra's dense
+    /// symmetric eigenvalues (a general-purpose reference library): random couplings of
+    /// either sign within a band, each link with its reverse, links from a sublattice to
+    /// itself, and random occupancies.
+    #[test]
+    fn bisection_finds_the_dense_largest_eigenvalue() {
+        let mut state = 7u64;
+        let mut next = move || {
+            state = state.wrapping_mul(6364136223846793005).wrapping_add(1442695040888963407);
+            (state >> 11) as f64 / (1u64 << 53) as f64
+        };
+        for (n, w) in [(1, 0), (2, 1), (17, 2), (60, 5), (31, 30)] {
+            let occ: Vec<f64> = (0..n).map(|_| 0.3 + 0.7 * next()).collect();
+            let mut links = Vec::new();
+            for r in 0..n {
+                let own = 4.0 * next() - 1.0;
+                links.push((r, r, own, [1, 0, 0]));
+                links.push((r, r, own, [-1, 0, 0]));
+                for s in r + 1..n.min(r + w + 1) {
+                    let j = 10.0 * next() - 3.0;
+                    links.push((r, s, j, [0, 1, 0]));
+                    links.push((s, r, j, [0, -1, 0]));
+                }
+            }
+            let red = Reduced { ext: [n, 1, 1], nb: 1, links, occ, axes: vec![0, 1], gap: vec![0.0; n] };
+            let mut dense = DMatrix::<f64>::zeros(n, n);
+            for &(r, s, j, _) in &red.links {
+                dense[(r, s)] += j * (red.occ[r] * red.occ[s]).sqrt();
+            }
+            let expect = dense.symmetric_eigenvalues().iter().copied().fold(f64::MIN, f64::max);
+            let got = red.largest_j0_eigenvalue(w, &mut vec![0.0; n * (w + 1)]);
+            assert!(
+                (got - expect).abs() <= 1e-11 * expect.abs().max(1.0),
+                "n {n} w {w}: {got} against {expect}"
+            );
+        }
     }
 }

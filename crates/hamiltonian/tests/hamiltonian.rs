@@ -384,6 +384,33 @@ fn film_estimates_follow_thickness() {
     assert!(t > 0.0 && t < gapped.mean_field, "{t}");
 }
 
+/// Wires and boxes, open along two or three axes: with nearest-neighbour exchange `J` on
+/// simple cubic the coupling matrix is `J` times the adjacency matrix of a grid graph, the
+/// Kronecker sum of paths of `L_k` sites, whose largest eigenvalue is
+/// `2 cos(pi / (L_k + 1))` each (textbook: D. M. Cvetkovic, M. Doob and H. Sachs, Spectra
+/// of Graphs (1980)), plus `2` per periodic axis; mean field `kB Tc = lambda / 3`. The wire
+/// of 60 by 40 cells has 2400 sublattices, more than the dense eigenvalue routine was given
+/// (1500), and its longer axis first, which the numbering puts last to keep the band
+/// narrow. A box open along all three axes too large for the band (30 cells a side) is
+/// refused with a note, without listing its couplings.
+#[test]
+fn wires_and_boxes_get_the_grid_graph_mean_field() {
+    let j = 10.0;
+    let path = |l: usize| 2.0 * (std::f64::consts::PI / (l as f64 + 1.0)).cos();
+    let wire = curie_estimates(&bulk_ferromagnet("simple-cubic", j, 0.3, [60, 40, 4], [false, false, true]));
+    let lambda = j * (path(60) + path(40) + 2.0);
+    assert!((wire.mean_field - lambda / (3.0 * K_B)).abs() < 1e-9 * wire.mean_field, "{wire:?}");
+    // An easy axis opens a gap, so the wire has a finite RPA value, below the mean field.
+    let rpa = wire.rpa.unwrap_or_else(|| panic!("wire: no RPA: {:?}", wire.note));
+    assert!(rpa > 0.0 && rpa < wire.mean_field, "{wire:?}");
+    let boxed = curie_estimates(&bulk_ferromagnet("simple-cubic", j, 0.0, [8, 9, 10], [false; 3]));
+    let lambda = j * (path(8) + path(9) + path(10));
+    assert!((boxed.mean_field - lambda / (3.0 * K_B)).abs() < 1e-9 * boxed.mean_field, "{boxed:?}");
+    let large = curie_estimates(&bulk_ferromagnet("simple-cubic", j, 0.0, [30, 30, 30], [false; 3]));
+    assert!(large.mean_field.is_nan() && large.rpa.is_none(), "{large:?}");
+    assert!(large.note.as_deref().is_some_and(|n| n.contains("27000 sublattices")), "{large:?}");
+}
+
 #[test]
 fn recommended_dt_resolves_the_fastest_precession() {
     let h = bulk_ferromagnet("simple-cubic", 10.0, 0.0, [4, 4, 4], [true; 3]);

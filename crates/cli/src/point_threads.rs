@@ -2,10 +2,12 @@
 //!
 //! A small system gains little from a second thread: each step or sweep forks and joins its
 //! parallel loops, and below some ten thousand sites a thread's share is too short to pay
-//! for that. Points of a sweep are independent runs, so a sweep starts each point, in index
-//! order, once the threads its size needs ([`demand`]) and its memory are free ([`Budget`]),
-//! and gives it a share of the idle threads when the points still to start are too few to
-//! use them all ([`share`]): small points run side by side, large ones on every thread.
+//! for that. Points of a sweep are independent runs, so a sweep starts each point once the
+//! threads its size needs ([`demand`]) and its memory are free ([`Budget`]), the first in
+//! index order that fits ([`next_to_start`]: a large point waiting for threads still busy
+//! lets smaller ones after it use the idle ones), and gives it a share of the idle threads
+//! when the points still to start are too few to use them all ([`share`]): small points
+//! run side by side, large ones on every thread.
 //! Every run gives the same bits for any thread count, so this changes how long a sweep
 //! takes, never what it computes.
 
@@ -53,6 +55,15 @@ impl Budget {
     }
 }
 
+/// The first of the points still to start, given as their `(threads, memory)` needs in
+/// index order, that `budget` admits now, or `None` if none does. First fit: a point that
+/// needs more threads than are idle waits while smaller points after it start, and starts
+/// once its threads are free together, at the latest when the smaller ones have all
+/// started and run out (the list is finite, so no point waits for ever).
+pub fn next_to_start(pending: &[(usize, u64)], budget: &Budget) -> Option<usize> {
+    pending.iter().position(|&(threads, memory)| budget.admits(threads, memory))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -88,5 +99,21 @@ mod tests {
         assert!(!b.admits(2, 1 << 31));
         assert!(!b.admits(8, 1 << 20));
         assert!(Budget { running: 0, ..b }.admits(2, 1 << 40));
+    }
+
+    #[test]
+    fn a_point_that_fits_starts_before_one_that_waits() {
+        // Two cores, one busy: the large point (two threads) waits, the small one after it
+        // starts; with both idle the large one goes first, in index order.
+        let pending = [(2, 1 << 20), (1, 1 << 20), (1, 1 << 20)];
+        let one_idle = Budget { threads: 1, memory: 1 << 30, running: 1 };
+        assert_eq!(next_to_start(&pending, &one_idle), Some(1));
+        assert_eq!(next_to_start(&pending, &Budget { threads: 2, ..one_idle }), Some(0));
+        assert_eq!(next_to_start(&pending[..1], &one_idle), None);
+        // Memory as well: a point larger than the memory left waits behind one that fits.
+        let pending = [(1, 1 << 31), (1, 1 << 20)];
+        assert_eq!(next_to_start(&pending, &one_idle), Some(1));
+        assert_eq!(next_to_start(&pending, &Budget { running: 0, ..one_idle }), Some(0));
+        assert_eq!(next_to_start(&[], &one_idle), None);
     }
 }

@@ -217,21 +217,30 @@ pub fn sweep(args: &SweepArgs) -> Outcome {
     let budget = Mutex::new(Budget { threads, memory: available_memory().unwrap_or(u64::MAX), running: 0 });
     let freed = Condvar::new();
     let halt = AtomicBool::new(false);
-    // The points start in index order, each once the threads it needs (and its memory) are
-    // free; each runs on a thread of its own with a pool of its share of the threads.
+    // Each point starts once the threads it needs (and its memory) are free, the first in
+    // index order that fits (`point_threads::next_to_start`); each runs on a thread of its
+    // own with a pool of its share of the threads.
+    let mut pending: Vec<usize> = (0..queue.len()).collect();
+    let mut needs: Vec<(usize, u64)> =
+        queue.iter().map(|(k, _)| (point_threads::demand(threads, sizes[*k].0), sizes[*k].1)).collect();
     let ends: Vec<Result<PointEnd, Failure>> = std::thread::scope(|scope| {
         let mut running = Vec::new();
-        for (at, (k, sets)) in queue.iter().enumerate() {
-            let (sites, bytes) = sizes[*k];
-            let need = point_threads::demand(threads, sites);
+        while !pending.is_empty() {
             let mut b = budget.lock().unwrap_or_else(|e| e.into_inner());
-            while !halt.load(Ordering::Relaxed) && !b.admits(need, bytes) {
+            let mut pick = None;
+            while !halt.load(Ordering::Relaxed) {
+                pick = point_threads::next_to_start(&needs, &b);
+                if pick.is_some() {
+                    break;
+                }
                 b = freed.wait(b).unwrap_or_else(|e| e.into_inner());
             }
-            if halt.load(Ordering::Relaxed) {
+            let Some(p) = pick.filter(|_| !halt.load(Ordering::Relaxed)) else {
                 break;
-            }
-            let give = point_threads::share(need, b.threads, queue.len() - at);
+            };
+            let (at, (need, bytes)) = (pending.remove(p), needs.remove(p));
+            let (k, sets) = &queue[at];
+            let give = point_threads::share(need, b.threads, pending.len() + 1);
             // A point let in alone beyond the memory left takes what there is.
             let taken = bytes.min(b.memory);
             b.threads -= give;

@@ -912,6 +912,42 @@ fn run_file_layout_read_by_h5dump() {
 
 const SWEEP_CONFIG: &str = "[lattice]\npreset = \"square\"\na = 3.0\ncells = [12, 12, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\nanisotropy = 0.2\n[[exchange]]\nshell = 1\nj = 5.0\n[initial]\nstate = \"random\"\n[[stage]]\nkind = \"evolve\"\nduration = \"2 ps\"\ntemperature = 10\nobserve_every = 200\n";
 
+/// A sweep's points start first fit (our own scheduling rule, README "Sweeps on a
+/// cluster"): on two threads a point of 36864 sites needs both, so while the first small
+/// point runs on one thread the small point after the large one starts on the other, and
+/// the large one starts when both are free, on both. In index order the large point would
+/// have waited with a thread idle and the last point would have run alone on both.
+#[test]
+fn sweep_starts_a_small_point_while_a_large_one_waits() {
+    let dir = temp_dir("sweep-first-fit");
+    let cfg = write_config(&dir, "s.toml", &SWEEP_CONFIG.replace("\"2 ps\"", "\"5 ps\""));
+    let out = dir.join("out");
+    let o = spindrift(&[
+        "sweep",
+        cfg.to_str().unwrap(),
+        "--out",
+        out.to_str().unwrap(),
+        "--vary",
+        "lattice.cells=[72,72,1],[192,192,1],[12,12,1]",
+        "--threads",
+        "2",
+    ]);
+    let e = stderr(&o);
+    assert!(o.status.success(), "{e}");
+    let line = |k: usize| {
+        let at =
+            e.find(&format!("point {k} (")).unwrap_or_else(|| panic!("no start line for point {k}: {e}"));
+        (at, e[at..].lines().next().unwrap().to_string())
+    };
+    let (first, second, last) = (line(0), line(2), line(1));
+    assert!(first.1.ends_with("[1 of 2 threads]") && second.1.ends_with("[1 of 2 threads]"), "{e}");
+    assert!(last.0 > first.0 && last.0 > second.0 && !last.1.contains("threads]"), "{e}");
+    for k in 0..3 {
+        let status = std::fs::read_to_string(out.join(format!("point_{k:04}/status.json"))).unwrap();
+        assert!(status.contains("\"done\""), "point {k}: {status}");
+    }
+}
+
 /// A sweep of 4 points split into 2 shards run as separate processes gives the same
 /// merged table as the unsharded sweep; re-running skips finished points; bad --vary keys
 /// are refused before anything runs.

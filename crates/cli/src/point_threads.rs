@@ -19,7 +19,12 @@
 /// sites two threads on one run (2.1-2.8e7 spin-steps/s) and two one-thread runs at once
 /// (2.4-2.8e7 together) were about even, at 131072 sites 2.3-2.5e7 against 2.6-2.7e7.
 /// (The Heun step shares its parallel loops out in chunks of 4096 sites, so a system of
-/// up to 4096 sites runs its steps on one thread whatever the pool holds.)
+/// up to 4096 sites runs its steps on one thread whatever the pool holds.) Again on a
+/// third-generation Zen node (2026-12-05, the same runs, two rounds; two threads on one
+/// run against two one-thread runs side by side, each over one thread alone): 1024 sites
+/// 1.24-1.30 against 1.64-1.98, 8192 sites 1.33-1.60 against 1.83-1.96, 16384 sites
+/// 1.81-1.82 against 1.96-2.00, 32768 sites 1.84-1.86 against 1.94-2.05: side by side
+/// stays ahead a little longer there, but not by enough to move the threshold.
 pub const SITES_PER_THREAD: usize = 16384;
 
 /// Threads a point of `sites` sites should have, out of a sweep's `threads`: one per

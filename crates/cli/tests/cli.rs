@@ -912,6 +912,13 @@ fn run_file_layout_read_by_h5dump() {
 
 const SWEEP_CONFIG: &str = "[lattice]\npreset = \"square\"\na = 3.0\ncells = [12, 12, 1]\n[[species]]\nname = \"A\"\nmoment = 2.0\nanisotropy = 0.2\n[[exchange]]\nshell = 1\nj = 5.0\n[initial]\nstate = \"random\"\n[[stage]]\nkind = \"evolve\"\nduration = \"2 ps\"\ntemperature = 10\nobserve_every = 200\n";
 
+/// `spindrift sweep CONFIG --out OUT` with the further arguments `rest`.
+fn sweep(config: &Path, out: &Path, rest: &[&str]) -> std::process::Output {
+    let mut args = vec!["sweep", config.to_str().unwrap(), "--out", out.to_str().unwrap()];
+    args.extend_from_slice(rest);
+    spindrift(&args)
+}
+
 /// A sweep's points start first fit (our own scheduling rule, README "Sweeps on a
 /// cluster"): on two threads a point of 36864 sites needs both, so while the first small
 /// point runs on one thread the small point after the large one starts on the other, and
@@ -922,16 +929,7 @@ fn sweep_starts_a_small_point_while_a_large_one_waits() {
     let dir = temp_dir("sweep-first-fit");
     let cfg = write_config(&dir, "s.toml", &SWEEP_CONFIG.replace("\"2 ps\"", "\"5 ps\""));
     let out = dir.join("out");
-    let o = spindrift(&[
-        "sweep",
-        cfg.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-        "--vary",
-        "lattice.cells=[72,72,1],[192,192,1],[12,12,1]",
-        "--threads",
-        "2",
-    ]);
+    let o = sweep(&cfg, &out, &["--vary", "lattice.cells=[72,72,1],[192,192,1],[12,12,1]", "--threads", "2"]);
     let e = stderr(&o);
     assert!(o.status.success(), "{e}");
     let line = |k: usize| {
@@ -955,15 +953,11 @@ fn sweep_starts_a_small_point_while_a_large_one_waits() {
 fn sweep_shards_merge_to_the_same_table() {
     let dir = temp_dir("sweep");
     let cfg = write_config(&dir, "s.toml", SWEEP_CONFIG);
-    let c = cfg.to_str().unwrap();
     let whole = dir.join("whole");
     let sharded = dir.join("sharded");
     let vary = ["--vary", "stage.0.temperature=5,20", "--vary", "field.b=[0,0,0],[0,0,2]"];
     let run = |out: &Path, extra: &[&str]| {
-        let mut a = vec!["sweep", c, "--out", out.to_str().unwrap()];
-        a.extend_from_slice(&vary);
-        a.extend_from_slice(extra);
-        let o = spindrift(&a);
+        let o = sweep(&cfg, out, &[&vary[..], extra].concat());
         assert!(o.status.success(), "{}", stderr(&o));
         o
     };
@@ -990,29 +984,23 @@ fn sweep_shards_merge_to_the_same_table() {
     assert!(stderr(&o).contains("a sweep folder, not a run"), "{}", stderr(&o));
     // Bad keys and values: exit 2, naming the key, and no point folder made.
     let bad = dir.join("bad");
-    let o = spindrift(&["sweep", c, "--out", bad.to_str().unwrap(), "--vary", "stage.0.tempreature=1,2"]);
+    let o = sweep(&cfg, &bad, &["--vary", "stage.0.tempreature=1,2"]);
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("tempreature"), "{}", stderr(&o));
-    let o = spindrift(&["sweep", c, "--out", bad.to_str().unwrap(), "--vary", "stage.0.temperature=5,-3"]);
+    let o = sweep(&cfg, &bad, &["--vary", "stage.0.temperature=5,-3"]);
     assert_eq!(o.status.code(), Some(2));
     // A range's values as written, not as `0.1 + 2 * 0.1` rounds (0.30000000000000004).
     let range = dir.join("range");
-    let o = spindrift(&[
-        "sweep",
-        c,
-        "--out",
-        range.to_str().unwrap(),
-        "--set",
-        "stage.0.duration=\"10 fs\"",
-        "--vary",
-        "stage.0.temperature=0.1:0.7:0.1",
-    ]);
+    let o = sweep(
+        &cfg,
+        &range,
+        &["--set", "stage.0.duration=\"10 fs\"", "--vary", "stage.0.temperature=0.1:0.7:0.1"],
+    );
     assert!(o.status.success(), "{}", stderr(&o));
     let manifest = std::fs::read_to_string(range.join("sweep.json")).unwrap();
     let v: Value = serde_json::from_str(&manifest).unwrap();
     assert_eq!(v["vary"][0]["values"], serde_json::json!(["0.1", "0.2", "0.3", "0.4", "0.5", "0.6", "0.7"]));
-    let o =
-        spindrift(&["sweep", c, "--out", bad.to_str().unwrap(), "--vary", "stage.0.temperature=0:1e300:1"]);
+    let o = sweep(&cfg, &bad, &["--vary", "stage.0.temperature=0:1e300:1"]);
     assert_eq!(o.status.code(), Some(2));
     assert!(stderr(&o).contains("values (at most 100000)"), "{}", stderr(&o));
     assert!(!bad.join("point_0000").exists());
@@ -1027,7 +1015,7 @@ fn a_swept_seed_is_the_points_seed() {
     let cfg = write_config(&dir, "s.toml", SWEEP_CONFIG);
     let c = cfg.to_str().unwrap();
     let out = dir.join("seeds");
-    let o = spindrift(&["sweep", c, "--out", out.to_str().unwrap(), "--vary", "seed=11,12"]);
+    let o = sweep(&cfg, &out, &["--vary", "seed=11,12"]);
     assert!(o.status.success(), "{}", stderr(&o));
     let alone = dir.join("alone");
     let o = spindrift(&["run", c, "--out", alone.to_str().unwrap(), "--set", "seed=12", "-q"]);
@@ -1047,14 +1035,7 @@ fn merge_notes_why_a_point_has_no_results() {
     let dir = temp_dir("merge-note");
     let cfg = write_config(&dir, "s.toml", &SWEEP_CONFIG.replace("\"2 ps\"", "\"20 fs\""));
     let out = dir.join("sweep");
-    let o = spindrift(&[
-        "sweep",
-        cfg.to_str().unwrap(),
-        "--out",
-        out.to_str().unwrap(),
-        "--vary",
-        "species.0.damping=0.1,1e300",
-    ]);
+    let o = sweep(&cfg, &out, &["--vary", "species.0.damping=0.1,1e300"]);
     assert_eq!(o.status.code(), Some(3), "{}", stderr(&o));
     let o = spindrift(&["merge", out.to_str().unwrap()]);
     assert!(o.status.success(), "{}", stderr(&o));

@@ -134,9 +134,8 @@ fn isotropic_j(bond: &Bond) -> f64 {
 }
 
 struct Reduced {
-    /// Open-axis extents (1 along periodic axes).
-    ext: [usize; 3],
-    nb: usize,
+    /// Sublattices (`Shape::size`).
+    n: usize,
     /// Couplings `(r, s, J, offset along periodic axes)`, meV, not weighted by occupancy.
     links: Vec<(usize, usize, f64, [i32; 3])>,
     /// Occupancy of each sublattice.
@@ -148,7 +147,7 @@ struct Reduced {
 
 impl Reduced {
     fn size(&self) -> usize {
-        self.ext[0] * self.ext[1] * self.ext[2] * self.nb
+        self.n
     }
 
     fn build(h: &Hamiltonian, shape: &Shape) -> Self {
@@ -199,15 +198,16 @@ impl Reduced {
         }
         axes.sort_unstable();
         // The basis site is the fastest index (`Shape::index`).
-        let gap = (0..ext[0] * ext[1] * ext[2] * nb)
+        let n = shape.size();
+        let gap = (0..n)
             .map(|r| {
                 let b = r % nb;
                 let s = &h.species()[cell.crystal().basis[b].species];
                 2.0 * s.anisotropy.max(0.0)
             })
             .collect();
-        let occ = (0..ext[0] * ext[1] * ext[2] * nb).map(|r| occ[r % nb]).collect();
-        Self { ext, nb, links, occ, axes, gap }
+        let occ = (0..n).map(|r| occ[r % nb]).collect();
+        Self { n, links, occ, axes, gap }
     }
 
     /// The largest eigenvalue of `C^(1/2) J(0) C^(1/2)` (entries `J_rs(0) sqrt(c_r c_s)`,
@@ -323,6 +323,8 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
         };
     }
     let red = Reduced::build(h, &shape);
+    // The band the listed links occupy: `reach` by construction, but taken from the links
+    // themselves, so that the band can never be narrower than what is written into it.
     let w = red.bandwidth().min(n - 1);
     let lambda = red.largest_j0_eigenvalue(w, &mut vec![0.0; n * (w + 1)]);
     let mean_field = (lambda / (3.0 * K_B)).max(0.0);
@@ -593,7 +595,7 @@ mod tests {
                     links.push((s, r, j, [0, -1, 0]));
                 }
             }
-            let red = Reduced { ext: [n, 1, 1], nb: 1, links, occ, axes: vec![0, 1], gap: vec![0.0; n] };
+            let red = Reduced { n, links, occ, axes: vec![0, 1], gap: vec![0.0; n] };
             let mut dense = DMatrix::<f64>::zeros(n, n);
             for &(r, s, j, _) in &red.links {
                 dense[(r, s)] += j * (red.occ[r] * red.occ[s]).sqrt();

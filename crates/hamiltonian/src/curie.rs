@@ -313,12 +313,18 @@ pub fn curie_estimates(h: &Hamiltonian) -> CurieEstimates {
     let shape = Shape::of(h);
     let n = shape.size();
     let reach = shape.bandwidth(h).min(n - 1);
-    if n.saturating_mul((reach + 1).pow(2)) > MAX_BAND_COST {
+    let cost = n.saturating_mul((reach + 1).pow(2));
+    if cost > MAX_BAND_COST {
         return CurieEstimates {
             mean_field: f64::NAN,
             rpa: None,
             note: Some(format!(
-                "{n} sublattices along open axes, coupled up to {reach} ahead; estimates skipped"
+                "estimates skipped: {n} sublattices along open axes (one per basis site and cell), each coupled \
+                 to sublattices up to {reach} places ahead in their numbering, so the band solver would take \
+                 n (w + 1)^2 = {cost:.1e} operations per factorisation, above its limit of {MAX_BAND_COST:.1e}; \
+                 fewer open axes (a film or a wire) or fewer cells along them are estimated",
+                cost = cost as f64,
+                MAX_BAND_COST = MAX_BAND_COST as f64
             )),
         };
     }

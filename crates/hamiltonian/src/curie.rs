@@ -159,7 +159,6 @@ impl Reduced {
         let occ: Vec<f64> = cell.crystal().basis.iter().map(|s| s.occupancy).collect();
         let mut links = Vec::new();
         let mut axes = Vec::new();
-        let index = |c: [usize; 3], b: usize| shape.index(c, b);
         for c3 in 0..ext[2] {
             for c2 in 0..ext[1] {
                 for c1 in 0..ext[0] {
@@ -189,7 +188,7 @@ impl Reduced {
                                 }
                             }
                             if ok {
-                                links.push((index([c1, c2, c3], b), index(t, bond.to), j, phase));
+                                links.push((shape.index([c1, c2, c3], b), shape.index(t, bond.to), j, phase));
                             }
                         }
                     }

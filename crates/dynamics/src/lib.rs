@@ -37,6 +37,7 @@ pub mod metropolis;
 mod moment;
 pub mod relax;
 mod slabs;
+mod trial_groups;
 
 pub use colouring::Colouring;
 pub use error::{InitError, StepError};

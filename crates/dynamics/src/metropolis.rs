@@ -115,6 +115,7 @@ use crate::error::{check_len, StepError};
 use crate::layer_blocks::LayerBlocks;
 use crate::moment::{component_units, MomentTally};
 use crate::slabs::Slabs;
+use crate::trial_groups::trial_groups;
 use rayon::prelude::*;
 use spindrift_hamiltonian::constants::K_B;
 use spindrift_hamiltonian::{Hamiltonian, TrialScratch, CHUNK};
@@ -801,8 +802,12 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
     let mut keep = [0u64; DRAWS];
     // The energy kernel's sums, cleared once here rather than for every group.
     let mut scratch = TrialScratch::default();
-    for (g, sites) in sites.chunks(DRAWS).enumerate() {
-        let n = sites.len();
+    let row_len = h.cell().cells()[0] * h.cell().basis_len();
+    for group in trial_groups(sites, row_len, DRAWS) {
+        let (k0, sites) = (group.start, &sites[group]);
+        // At most `DRAWS` sites, restated so that the compiler knows it below.
+        let n = sites.len().min(DRAWS);
+        let sites = &sites[..n];
         let (pick, accept) = (&mut pick[..n], &mut accept[..n]);
         let (de, units, keep) = (&mut de[..n], &mut units[..n], &mut keep[..n]);
         stream.fill_trial_at_in(step, sites, kick.each_mut().map(|c| &mut c[..n]), pick, accept);
@@ -873,7 +878,7 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
         counts.cone_accepted += cone_accepted;
         counts.energy_change += integer_sum(units);
         counts.moment = crate::moment::add(counts.moment, component_units(weight, chosen));
-        to.store(g * DRAWS, sites, stretch, chosen);
+        to.store(k0, sites, stretch, chosen);
     }
     counts
 }

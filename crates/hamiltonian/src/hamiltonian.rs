@@ -23,7 +23,7 @@ use spindrift_lattice::{cross, dot, wrap_coordinate, BondList, Supercell, Vec3};
 
 mod trials;
 
-pub use trials::TrialScratch;
+pub use trials::{TrialScratch, MIN_TRIAL_RUN};
 
 /// Sites per parallel work item. Fixed, so that reductions add the same partial sums in
 /// the same order whatever the number of threads.

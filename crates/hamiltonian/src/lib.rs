@@ -32,7 +32,7 @@ pub use builder::{add_shell, DmiKind, NoNeighbours, ShellCoupling, ShellFound, S
 pub use dmi::{bulk_vector, interfacial_vector, Dmi};
 pub use energy::EnergyTerms;
 pub use exchange::Exchange;
-pub use hamiltonian::{Hamiltonian, HamiltonianError, TrialScratch, CHUNK};
+pub use hamiltonian::{Hamiltonian, HamiltonianError, TrialScratch, CHUNK, MIN_TRIAL_RUN};
 pub use rows::{FlatRows, SpinRows};
 pub use species::Species;
 pub use term::Term;

@@ -5,7 +5,7 @@
 //! without branches where it matters, so that the compiler vectorises across sites:
 //!
 //! 1. The basis site of each site (for a basis of several sites), and the runs of the
-//!    block: groups of at least [`MIN_RUN`] consecutive sites in one row of cells whose
+//!    block: groups of at least [`MIN_TRIAL_RUN`] consecutive sites in one row of cells whose
 //!    indices step by 1 or 2 (a checkerboard class of a simple cubic lattice steps by 2,
 //!    one sublattice of a two-site basis too). Along a run every bond's neighbours step
 //!    alike, so for each bond the neighbour row is found once and the neighbours' spins
@@ -41,8 +41,10 @@ use spindrift_lattice::{dot, wrap_index, Vec3};
 /// Sites per block: the per-site arrays of a block (about 4 KiB) stay in L1.
 pub(super) const LANES: usize = 64;
 
-/// Shortest run of sites read with strided loads (see `add_bonds_by_runs`).
-const MIN_RUN: usize = 4;
+/// Shortest run of sites read with strided loads (see `add_bonds_by_runs`); a block's
+/// sites in shorter stretches of a row take the per-site path, which costs several times
+/// as much per site (the Monte Carlo sweep groups its trials so as to leave none).
+pub const MIN_TRIAL_RUN: usize = 4;
 
 /// Sites `k0 .. k0 + len` of a block: one row of cells, the first in cell `c`, each the
 /// next `dc` cells along a1 (1 or 2: a run steps by one or two sites, and by a multiple of
@@ -354,7 +356,7 @@ impl Hamiltonian {
     }
 
     /// Adds the pair fields of the runs of the block: maximal groups of at least
-    /// [`MIN_RUN`] consecutive sites of one row of cells whose indices step by 1 or 2 (a
+    /// [`MIN_TRIAL_RUN`] consecutive sites of one row of cells whose indices step by 1 or 2 (a
     /// checkerboard class steps by 2, a sublattice of a two-site basis too). Along a run
     /// each bond's neighbours step alike, so their spins are read with plain strided loads
     /// instead of gathers. Sites in no such run are marked in `generic`.
@@ -399,7 +401,7 @@ impl Hamiltonian {
                 }
             }
             // Sites of one basis site step by a multiple of the basis.
-            if k1 - k0 >= MIN_RUN && d % nb == 0 {
+            if k1 - k0 >= MIN_TRIAL_RUN && d % nb == 0 {
                 let c = [(i0 - row * row_len) / nb, row % n2, row / n2];
                 let run = Run { k0, len: k1 - k0, c, dc: d / nb };
                 for entry in &self.entries[b] {

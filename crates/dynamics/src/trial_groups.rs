@@ -10,7 +10,9 @@
 //!
 //! * a row's stretch of at least half a group and at most a group is a group of its own
 //!   (a checkerboard class of rows of 100 cells: groups of 50, not 64 made of 50 and 14,
-//!   36 and 28, ..., 2 and 50 and 12);
+//!   36 and 28, ..., 2 and 50 and 12) when it leaves at most [`MIN_TRIAL_RUN`] sites past
+//!   the trial generator's last whole block of [`LANES`], which draws the rest one by one
+//!   (as groups of their own, rows of 60 and 40 sites cost 12% and 2% more);
 //! * otherwise a group is `max` sites, ending a row's stretch early where that row would
 //!   leave fewer than [`MIN_TRIAL_RUN`] sites on either side of the cut.
 //!
@@ -19,12 +21,15 @@
 //! 100 x 100 x 8 cells 288 -> 222, 96 x 96 x 8 247 -> 214, 64 x 64 x 8 247 -> 236,
 //! 200 x 200 x 8 228 -> 218; periodic cubes of 20, 28 and 36 cells a side 450 -> 389,
 //! 442 -> 355, 394 -> 330; 128 x 128 x 8 and cubes of 16, 24 and 40 unchanged within
-//! 0.4%; 80 x 80 x 8 (rows of 40 class sites) 259 -> 265. Which trials share a group
+//! 0.4%; 80 x 80 x 8 (rows of 40 class sites) 259 -> 260; bcc films of 50 x 50 x 8 and
+//! 60 x 60 x 8 cells 655 -> 536 and 568 -> 564; honeycomb films of the same 460 -> 415 and
+//! 416 -> 427. Which trials share a group
 //! changes no result: each trial's random numbers belong to its site and sweep, its
 //! energy change is the same bits on every path of the kernel, and the sweep's sums are
 //! integer sums.
 
 use spindrift_hamiltonian::MIN_TRIAL_RUN;
+use spindrift_noise::LANES;
 use std::ops::Range;
 
 /// The groups of `sites` (ascending site indices, rows of `row_len` sites), in order, as
@@ -58,7 +63,7 @@ fn group_len(rest: &[u32], row_len: u64, max: usize) -> usize {
     // The sites at the head of `part` in its first site's row.
     let in_row = |part: &[u32], start: u64| part.partition_point(|&i| u64::from(i) < start + row_len);
     let head = in_row(&rest[..=max], row_start(rest[0]));
-    if (max / 2..=max).contains(&head) {
+    if (max / 2..=max).contains(&head) && head % LANES <= MIN_TRIAL_RUN {
         return head;
     }
     // Does the group cut the row of its last site, leaving a short piece on either side?
@@ -113,12 +118,16 @@ mod tests {
         // 8 and 12 per row: cut every 64 sites (pieces of 4 and more).
         assert_eq!(check(&checkerboard(16, 16), 16, 64), vec![64, 64]);
         assert_eq!(check(&checkerboard(24, 12), 24, 64), vec![64, 64, 16]);
-        // A list starting part-way through a row of 50: 40 of that row, then 50 a group;
-        // one starting 10 sites before a row's end: cut at 64, then the row's other 46.
+        // A list starting part-way through a row of 50: 40 of that row leave 8 past the
+        // last block of 16, so 64 (40 and 24), then 64 (26 and 38), then the rest; one
+        // starting 2 sites into such a row: its 48, then a row of 50 a group.
         let sites: Vec<u32> = checkerboard(100, 4)[10..].to_vec();
-        assert_eq!(check(&sites, 100, 64), vec![40, 50, 50, 50]);
-        let sites: Vec<u32> = checkerboard(100, 4)[40..].to_vec();
-        assert_eq!(check(&sites, 100, 64), vec![64, 46, 50]);
+        assert_eq!(check(&sites, 100, 64), vec![64, 64, 62]);
+        let sites: Vec<u32> = checkerboard(100, 4)[2..].to_vec();
+        assert_eq!(check(&sites, 100, 64), vec![48, 50, 50, 50]);
+        // 30 per row: under half a group, so cut at 64, whose piece of the third row is 4
+        // sites, the shortest the kernel takes as a run; then 56.
+        assert_eq!(check(&checkerboard(60, 4), 60, 64), vec![64, 56]);
     }
 
     // Our own behaviour: any ascending list is cut into groups of 1 to `max` sites in order

@@ -126,8 +126,11 @@ pub const STREAM_METROPOLIS: u32 = 1;
 pub const STREAM_INITIAL_STATE: u32 = 2;
 
 /// Sites per block in the bulk functions. The block's words (256 bytes) stay in L1; 16 to
-/// 128 measured the same within noise with the present kernels, 8 slower.
-const LANES: usize = 16;
+/// 128 measured the same within noise with the present kernels, 8 slower. The sites of a
+/// call past the last whole block are drawn one at a time, each at about the cost of a
+/// block ([`NoiseStream::fill_trial_at`]), so callers that choose their lists' lengths
+/// prefer multiples of it.
+pub const LANES: usize = 16;
 
 /// Sites per group in [`NoiseStream::fill_gaussian3_dense`]: a multiple of four whose
 /// blocks fill whole vectors of eight lanes.

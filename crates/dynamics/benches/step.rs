@@ -2,8 +2,10 @@
 //! cubic with exchange, interfacial DMI on in-plane bonds, anisotropy and a field.
 //! Criterion reports elements (spins) per second; ns per spin-step is its inverse. The
 //! second group runs the 300 K step and the sweep in pools of one and two threads, for the
-//! parallel speed-up (the default group uses rayon's global pool). Seeded spins; set-up
-//! (system, colouring, pools) outside the timing.
+//! parallel speed-up (the default group uses rayon's global pool). The third runs the sweep
+//! on one thread at sizes whose rows do not hold a multiple of the sweep's 64-trial groups
+//! (see `trial_groups.rs`), per spin against 128 x 128 x 8. Seeded spins; set-up (system,
+//! colouring, pools) outside the timing.
 
 // criterion_group! defines an undocumented function.
 #![allow(missing_docs)]
@@ -13,9 +15,8 @@ use spindrift_dynamics::{initial, Heun, HeunParams, Metropolis};
 use spindrift_hamiltonian::{add_shell, Hamiltonian, ShellCoupling, ShellRef, Species};
 use spindrift_lattice::{preset, BondList, Coupling, Supercell};
 
-fn system() -> Hamiltonian {
-    let cell =
-        Supercell::new(preset("simple-cubic", 3.0, None).unwrap(), [128, 128, 8], [true; 3], 0).unwrap();
+fn system(cells: [usize; 3]) -> Hamiltonian {
+    let cell = Supercell::new(preset("simple-cubic", 3.0, None).unwrap(), cells, [true; 3], 0).unwrap();
     let mut bonds = BondList::new(1);
     // Exchange on all six neighbours, DMI only on the four in-plane ones.
     add_shell(
@@ -35,7 +36,7 @@ fn system() -> Hamiltonian {
 }
 
 fn bench(c: &mut Criterion) {
-    let h = system();
+    let h = system([128, 128, 8]);
     let n = h.len();
     let mut spins = vec![[0.0; 3]; n];
     initial::random(&h, &mut spins, 1).unwrap();
@@ -84,6 +85,26 @@ fn bench(c: &mut Criterion) {
         let mut s = spins.clone();
         let mut sweep = 0u64;
         group.bench_function(format!("metropolis sweep T=300 K, {threads} thread(s)"), |b| {
+            b.iter(|| {
+                pool.install(|| mc.sweep(&h, &mut s, 300.0, sweep, false)).unwrap();
+                sweep += 1;
+            })
+        });
+    }
+    group.finish();
+
+    let mut group = c.benchmark_group("metropolis sweep by size, 1 thread");
+    group.sample_size(20);
+    let pool = rayon::ThreadPoolBuilder::new().num_threads(1).build().unwrap();
+    for cells in [[128, 128, 8], [100, 100, 8], [28, 28, 28]] {
+        let h = system(cells);
+        let mut s = vec![[0.0; 3]; h.len()];
+        initial::random(&h, &mut s, 1).unwrap();
+        group.throughput(Throughput::Elements(h.len() as u64));
+        let mut mc = Metropolis::new(&h, 1).unwrap();
+        let mut sweep = 0u64;
+        let [n1, n2, n3] = cells;
+        group.bench_function(format!("{n1}x{n2}x{n3} sc"), |b| {
             b.iter(|| {
                 pool.install(|| mc.sweep(&h, &mut s, 300.0, sweep, false)).unwrap();
                 sweep += 1;

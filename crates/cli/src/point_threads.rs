@@ -24,8 +24,16 @@
 /// run against two one-thread runs side by side, each over one thread alone): 1024 sites
 /// 1.24-1.30 against 1.64-1.98, 8192 sites 1.33-1.60 against 1.83-1.96, 16384 sites
 /// 1.81-1.82 against 1.96-2.00, 32768 sites 1.84-1.86 against 1.94-2.05: side by side
-/// stays ahead a little longer there, but not by enough to move the threshold.
-pub const SITES_PER_THREAD: usize = 16384;
+/// stays ahead a little longer there. Larger systems there (2026-12-05, two rounds; sc with
+/// the bench configs' couplings): Metropolis, a periodic 32^3 cube 1.26-1.48 against
+/// 1.95-2.08, a 40^3 cube (64000 sites) 1.10-1.41 against 1.56-1.78, a film of 64x64x16
+/// (65536) 1.19-1.73 against 1.91-2.21; Heun, the 40^3 cube 1.83-1.85 against 1.80-2.05,
+/// the 64x64x16 film 1.45-1.53 against 1.83-1.91. So a point takes a second thread from
+/// 131072 sites (where both nodes measured two threads on one run about even with side by
+/// side, and the bench's 128x128x8 runs at 1.9-2.2 times one thread on two), not from 32768
+/// as before: a sweep of temperatures over cubes of 32 to 50 cells a side runs its points
+/// side by side.
+pub const SITES_PER_THREAD: usize = 65536;
 
 /// Threads a point of `sites` sites should have, out of a sweep's `threads`: one per
 /// [`SITES_PER_THREAD`] sites, at least one and at most `threads`.
@@ -76,9 +84,10 @@ mod tests {
     #[test]
     fn a_point_needs_a_thread_per_share_of_sites() {
         assert_eq!(demand(2, 1024), 1);
-        assert_eq!(demand(2, 32_768), 2);
+        assert_eq!(demand(2, 65_536), 1);
+        assert_eq!(demand(2, 131_072), 2);
         assert_eq!(demand(2, 10_000_000), 2);
-        assert_eq!(demand(32, 100_000), 6);
+        assert_eq!(demand(32, 1_000_000), 15);
         assert_eq!(demand(0, 0), 1);
     }
 

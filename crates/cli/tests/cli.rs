@@ -920,7 +920,7 @@ fn sweep(config: &Path, out: &Path, rest: &[&str]) -> std::process::Output {
 }
 
 /// A sweep's points start first fit (our own scheduling rule, README "Sweeps on a
-/// cluster"): on two threads a point of 36864 sites needs both, so while the first small
+/// cluster"): on two threads a point of 135424 sites needs both, so while the first small
 /// point runs on one thread the small point after the large one starts on the other, and
 /// the large one starts when both are free, on both. In index order the large point would
 /// have waited with a thread idle and the last point would have run alone on both.
@@ -929,7 +929,7 @@ fn sweep_starts_a_small_point_while_a_large_one_waits() {
     let dir = temp_dir("sweep-first-fit");
     let cfg = write_config(&dir, "s.toml", &SWEEP_CONFIG.replace("\"2 ps\"", "\"5 ps\""));
     let out = dir.join("out");
-    let o = sweep(&cfg, &out, &["--vary", "lattice.cells=[72,72,1],[192,192,1],[12,12,1]", "--threads", "2"]);
+    let o = sweep(&cfg, &out, &["--vary", "lattice.cells=[72,72,1],[368,368,1],[12,12,1]", "--threads", "2"]);
     let e = stderr(&o);
     assert!(o.status.success(), "{e}");
     let line = |k: usize| {

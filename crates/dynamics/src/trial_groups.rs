@@ -18,15 +18,14 @@
 //!
 //! callgrind (one thread, instructions per site and sweep of `Metropolis::sweep`, the sc
 //! config of `bench/configs/sc128-metropolis.toml` at other sizes, 2026-12-05): films of
-//! 100 x 100 x 8 cells 288 -> 222, 96 x 96 x 8 247 -> 214, 64 x 64 x 8 247 -> 236,
-//! 200 x 200 x 8 228 -> 218; periodic cubes of 20, 28 and 36 cells a side 450 -> 389,
+//! 100 x 100 x 8 cells 288 -> 222, 96 x 96 x 8 247 -> 214, 64 x 64 x 8 247 -> 237,
+//! 200 x 200 x 8 228 -> 219; periodic cubes of 20, 28 and 36 cells a side 450 -> 389,
 //! 442 -> 355, 394 -> 330; 128 x 128 x 8 and cubes of 16, 24 and 40 unchanged within
 //! 0.4%; 80 x 80 x 8 (rows of 40 class sites) 259 -> 260; bcc films of 50 x 50 x 8 and
 //! 60 x 60 x 8 cells 655 -> 536 and 568 -> 564; honeycomb films of the same 460 -> 415 and
-//! 416 -> 427. Which trials share a group
-//! changes no result: each trial's random numbers belong to its site and sweep, its
-//! energy change is the same bits on every path of the kernel, and the sweep's sums are
-//! integer sums.
+//! 416 -> 427. Which trials share a group changes no result: each trial's random numbers
+//! belong to its site and sweep, its energy change is the same bits on every path of the
+//! kernel, and the sweep's sums are integer sums.
 
 use spindrift_hamiltonian::MIN_TRIAL_RUN;
 use spindrift_noise::LANES;
@@ -60,7 +59,7 @@ fn group_len(rest: &[u32], row_len: u64, max: usize) -> usize {
         return rest.len();
     }
     let row_start = |i: u32| u64::from(i) / row_len * row_len;
-    // The sites at the head of `part` in its first site's row.
+    // How many sites at the head of `part` lie in the row of cells that starts at `start`.
     let in_row = |part: &[u32], start: u64| part.partition_point(|&i| u64::from(i) < start + row_len);
     let head = in_row(&rest[..=max], row_start(rest[0]));
     if (max / 2..=max).contains(&head) && head % LANES <= MIN_TRIAL_RUN {

@@ -11,6 +11,7 @@ use spindrift_config::{config_difference, parse_wall_duration, Loaded, Validated
 use spindrift_engine::{
     Control, EngineError, Outcome as RunEnd, RunHeader, Runner, StageSummary, StopReason,
 };
+use spindrift_io::layout::SITE_ORDER_VERSION;
 use spindrift_io::{read_checkpoint, write_summary, RunFile, RunReader, RunSummary};
 use std::path::{Path, PathBuf};
 use std::sync::atomic::AtomicI32;
@@ -97,6 +98,15 @@ pub fn run_until(args: &RunArgs, stop: Arc<AtomicI32>) -> Outcome {
         let stored = RunReader::open(dir)
             .and_then(|r| r.attributes())
             .map_err(|e| bad_input(anyhow!("--resume: {e}")))?;
+        // Sites of a lattice with several basis sites were numbered otherwise before
+        // format version 2: the run's arrays and the checkpoint's spins are in that order.
+        if stored.format_version < SITE_ORDER_VERSION && v.hamiltonian.cell().basis_len() > 1 {
+            return Err(bad_input(anyhow!(
+                "--resume {}: the run was written by an earlier version of spindrift (format_version {}), which numbered the sites of a lattice with several basis sites otherwise; resume it with that version, or start a new run from its spins with [initial] state = \"file\"",
+                dir.display(),
+                stored.format_version
+            )));
+        }
         // The same keys and values, whatever the comments and layout (a note added to the
         // config file while the run waited does not change what it computes).
         if let Some(difference) = config_difference(&stored.config, &loaded.text) {

@@ -5,6 +5,7 @@ use crate::exit::{bad_input, Failure};
 use anyhow::anyhow;
 use spindrift_config::{load, validate, Loaded, Validated};
 use spindrift_engine::{Initial, InitialState};
+use spindrift_io::layout::SITE_ORDER_VERSION;
 use std::path::Path;
 
 /// Memory the system can still give, bytes (`MemAvailable` of `/proc/meminfo`).
@@ -20,7 +21,7 @@ pub fn load_system(config: &Path, sets: &[String]) -> Result<(Loaded, Validated)
     let loaded = load(config, sets).map_err(bad_input)?;
     let mut v = validate(&loaded, available_memory()).map_err(bad_input)?;
     if let Initial::FromRun(dir) = &v.protocol.initial {
-        let spins = read_final_spins(dir)
+        let (spins, version) = read_final_spins(dir)
             .map_err(|e| bad_input(loaded.error_at("initial.path", format!("{e:#}"))))?;
         if spins.len() != v.hamiltonian.len() {
             return Err(bad_input(loaded.error_at(
@@ -33,23 +34,32 @@ pub fn load_system(config: &Path, sets: &[String]) -> Result<(Loaded, Validated)
                 ),
             )));
         }
+        // A run written before the present site order holds the spins of a lattice with
+        // several basis sites in the old one (the same order for one basis site).
+        let spins = if version < SITE_ORDER_VERSION {
+            v.hamiltonian.cell().from_basis_innermost(&spins).expect("one spin per site, checked above")
+        } else {
+            spins
+        };
         v.protocol.initial = Initial::State(InitialState::Given(spins));
     }
     Ok((loaded, v))
 }
 
 /// The latest state a run folder holds: its final spins, else (a run stopped before its
-/// end) the checkpoint's spins, else its last snapshot.
-fn read_final_spins(dir: &Path) -> anyhow::Result<Vec<[f64; 3]>> {
+/// end) the checkpoint's spins, else its last snapshot; with the run file's
+/// `format_version`, which tells their site order.
+fn read_final_spins(dir: &Path) -> anyhow::Result<(Vec<[f64; 3]>, u64)> {
     let reader = spindrift_io::RunReader::open(dir)?;
+    let version = reader.attributes()?.format_version;
     if let Some(s) = reader.final_spins()? {
-        return Ok(s);
+        return Ok((s, version));
     }
     if dir.join("checkpoint.h5").exists() {
-        return Ok(spindrift_io::read_checkpoint(dir)?.spins);
+        return Ok((spindrift_io::read_checkpoint(dir)?.spins, version));
     }
     match reader.last_snapshot()? {
-        Some(s) => Ok(s.spins),
+        Some(s) => Ok((s.spins, version)),
         None => Err(anyhow!("{} holds neither final spins nor a snapshot", dir.display())),
     }
 }

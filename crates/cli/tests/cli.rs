@@ -1205,6 +1205,62 @@ fn initial_state_from_an_earlier_run() {
     assert!((m0[2] - mz).abs() < 1e-12, "{} vs {mz}", m0[2]);
 }
 
+/// Run files of `format_version` 1, written before the site order changed, hold the
+/// per-site arrays of a lattice with several basis sites with the basis innermost
+/// (`spindrift_io::layout::SITE_ORDER_VERSION`; our own file format): `[initial] state =
+/// "file"` reorders them, so a bcc helix written that way starts the next run with the
+/// energy it ended with (taken in the present order unchanged, the two sublattices' spins
+/// would be scrambled and the exchange energy would differ), and `--resume` of such a run
+/// is refused with exit 2.
+#[test]
+fn runs_in_the_earlier_site_order_are_reordered_or_refused() {
+    let dir = temp_dir("site-order");
+    let config = "[lattice]\npreset = \"bcc\"\na = 2.9\ncells = [6, 5, 4]\nperiodic = [true, true, false]\n[[species]]\nname = \"A\"\nmoment = 2.0\nanisotropy = 0.1\n[[exchange]]\nshell = 1\nj = 5.0\n[initial]\nstate = \"helix\"\nwavevector = [0.4, 0.1, 0.2]\n[[stage]]\nkind = \"evolve\"\nduration = \"0.1 ps\"\ntemperature = 0\nobserve_every = 50\n";
+    let first = write_config(&dir, "first.toml", config);
+    let out = dir.join("first");
+    let o = spindrift(&["run", first.to_str().unwrap(), "--out", out.to_str().unwrap(), "-q"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    // The run as version 1 wrote it: the final spins with the basis innermost. The present
+    // order is `i = ((c3 n2 + c2) nb + b) n1 + c1`, the earlier `((c3 n2 + c2) n1 + c1) nb + b`.
+    let spins = RunReader::open(&out).unwrap().final_spins().unwrap().unwrap();
+    let (n1, nb) = (6, 2);
+    let mut old = vec![[0.0; 3]; spins.len()];
+    for (i, s) in spins.iter().enumerate() {
+        let (c1, b, row) = (i % n1, (i / n1) % nb, i / (n1 * nb));
+        old[(row * n1 + c1) * nb + b] = *s;
+    }
+    assert_ne!(old, spins, "the two orders differ for this state");
+    let rewrite_as_version_1 = |run: &Path, spins: Option<&[[f64; 3]]>| {
+        let f = hdf5::File::open_rw(run.join("run.h5")).unwrap();
+        f.attr("format_version").unwrap().write_scalar(&1u64).unwrap();
+        if let Some(spins) = spins {
+            f.dataset("final/spins").unwrap().write_raw(spins.as_flattened()).unwrap();
+        }
+    };
+    rewrite_as_version_1(&out, Some(&old));
+    let second = config.replace("state = \"helix\"", "state = \"file\"\npath = \"first\"");
+    let cfg = write_config(&dir, "second.toml", &second);
+    let o = spindrift(&["run", cfg.to_str().unwrap(), "--out", dir.join("second").to_str().unwrap(), "-q"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let a: Value = serde_json::from_str(&std::fs::read_to_string(out.join("summary.json")).unwrap()).unwrap();
+    let e0 = RunReader::open(&dir.join("second")).unwrap().read_1d("/stage_000/series/energy").unwrap()[0];
+    let e1 = a["stages"][0]["final"]["energy"].as_f64().unwrap();
+    assert!((e0 - e1).abs() < 1e-12 * e1.abs(), "{e0} vs {e1}");
+    // A stopped run of version 1 does not resume.
+    let stopped = dir.join("stopped");
+    let longer = ["--set", "stage.0.duration=\"20 ps\""];
+    let mut args = vec!["run", first.to_str().unwrap(), "--out", stopped.to_str().unwrap(), "-q"];
+    args.extend(longer);
+    let o = spindrift(&[args.as_slice(), &["--max-wall", "0.001 s"]].concat());
+    assert_eq!(o.status.code(), Some(75), "{}", stderr(&o));
+    rewrite_as_version_1(&stopped, None);
+    let mut args = vec!["run", first.to_str().unwrap(), "--resume", stopped.to_str().unwrap(), "-q"];
+    args.extend(longer);
+    let o = spindrift(&args);
+    assert_eq!(o.status.code(), Some(2), "{}", stderr(&o));
+    assert!(stderr(&o).contains("format_version 1"), "{}", stderr(&o));
+}
+
 /// A run folder that cannot be written is an output failure, exit 4 (INTERFACE.md).
 #[test]
 fn unwritable_output_is_exit_4() {

@@ -93,8 +93,8 @@ fn interiors(h: &Hamiltonian) -> Vec<Interior> {
                 .iter()
                 .map(|bond| {
                     let o = bond.offset.map(|x| x as isize);
-                    let cell_step = (o[2] * cells[1] as isize + o[1]) * cells[0] as isize + o[0];
-                    cell_step * nb as isize + bond.to as isize - b as isize
+                    let row_step = o[2] * cells[1] as isize + o[1];
+                    (row_step * nb as isize + bond.to as isize - b as isize) * cells[0] as isize + o[0]
                 })
                 .collect();
             Interior { lo, hi, delta }
@@ -117,7 +117,7 @@ fn neighbour(cells: [usize; 3], periodic: [bool; 3], nb: usize, c: [usize; 3], s
             x as usize
         };
     }
-    Some(((t[2] * cells[1] + t[1]) * cells[0] + t[0]) * nb + step.to)
+    Some(((t[2] * cells[1] + t[1]) * nb + step.to) * cells[0] + t[0])
 }
 
 /// The sites `0 .. n` in index order with their cell coordinates and basis site, counted
@@ -131,12 +131,12 @@ fn in_index_order(
     let (mut c, mut b) = ([0usize; 3], 0usize);
     (0..n).map(move |i| {
         let here = (i, c, b);
-        b += 1;
-        if b == nb {
-            b = 0;
-            c[0] += 1;
-            if c[0] == cells[0] {
-                c[0] = 0;
+        c[0] += 1;
+        if c[0] == cells[0] {
+            c[0] = 0;
+            b += 1;
+            if b == nb {
+                b = 0;
                 c[1] += 1;
                 if c[1] == cells[1] {
                     c[1] = 0;
@@ -269,8 +269,8 @@ impl Colouring {
         // Split each colour by basis site: a class of the refined colouring is still an
         // independent set, and its sites all have the same bonds, which the Monte Carlo
         // kernel needs to treat a block of them at once. Empty classes are dropped.
-        // The basis site of site i is i mod nb: a cycling counter, not a division.
-        let basis = || (0..nb).cycle();
+        // The basis sites in site order, counted rather than divided out.
+        let basis = || cell.basis_from(0);
         let mut used_class = vec![false; count * nb];
         for (c, b) in colour.iter().zip(basis()) {
             if *c != NONE {

@@ -210,7 +210,15 @@ const BLOCK: usize = 256;
 pub struct Heun {
     stream: NoiseStream,
     damping: Vec<f64>,
+    /// The constants of each basis site.
+    basis_consts: Vec<SiteConst>,
+    /// The constants of `BLOCK + period` consecutive sites from a row's first site.
     consts: Vec<SiteConst>,
+    /// Sites after which the basis sites' pattern repeats: 1 for a one-site basis, else a
+    /// row, `n1 nb` (each basis site's `n1` sites together, see `Supercell`).
+    period: usize,
+    /// Cells per row, `n1`.
+    n1: usize,
     buffers: Buffers,
     /// Sites.
     len: usize,
@@ -259,9 +267,14 @@ impl Heun {
             }
             None => Buffers::TwoPass { predictor: vec![[0.0; 3]; n], noise: vec![[0.0; 3]; n] },
         };
+        let n1 = h.cell().cells()[0];
+        let period = if damping.len() == 1 { 1 } else { h.cell().row_len() };
         Self {
             stream: NoiseStream::new(seed, STREAM_LLG_THERMAL),
-            consts: vec![SiteConst::default(); BLOCK + damping.len()],
+            basis_consts: vec![SiteConst::default(); damping.len()],
+            consts: vec![SiteConst::default(); BLOCK + period],
+            period,
+            n1,
             damping,
             buffers,
             len: n,
@@ -334,31 +347,32 @@ impl Heun {
         let nb = self.damping.len();
         for (b, &alpha) in self.damping.iter().enumerate() {
             let variance = 2.0 * alpha * K_B * temperature / (GAMMA_PER_PS * mu[b] * dt);
-            self.consts[b] =
+            self.basis_consts[b] =
                 SiteConst { gamma_ll: GAMMA_PER_PS / (1.0 + alpha * alpha), alpha, sigma: variance.sqrt() };
             thermal |= variance > 0.0;
         }
         // Repeat the basis pattern so that a block starting at site `first` reads its
-        // constants from `consts[first % nb..]` in order, with no index arithmetic per site.
-        for j in nb..self.consts.len() {
-            self.consts[j] = self.consts[j % nb];
+        // constants from `consts[first % period..]` in order, with no index arithmetic per
+        // site.
+        for (j, c) in self.consts.iter_mut().enumerate() {
+            *c = self.basis_consts[(j / self.n1) % nb];
         }
 
         // One pair for every site when the basis sites share their damping (see
         // `SiteConsts`): `gamma_ll` depends on nothing else.
         let shared = self.damping.iter().all(|&alpha| alpha == self.damping[0]);
-        let uniform = shared.then_some((self.consts[0].gamma_ll, self.consts[0].alpha));
+        let uniform = shared.then_some((self.basis_consts[0].gamma_ll, self.basis_consts[0].alpha));
         let ctx = StepContext {
             h,
             consts: &self.consts,
             uniform,
-            nb,
+            period: self.period,
             occupation: h.cell().occupation(),
             stream: self.stream,
             dt,
             thermal: thermal.then(|| {
-                let sigma = self.consts[0].sigma;
-                self.consts[..nb].iter().all(|c| c.sigma == sigma).then_some(sigma)
+                let sigma = self.basis_consts[0].sigma;
+                self.basis_consts.iter().all(|c| c.sigma == sigma).then_some(sigma)
             }),
             step_index,
         };
@@ -541,11 +555,12 @@ impl Order {
 #[derive(Clone, Copy)]
 struct StepContext<'a> {
     h: &'a Hamiltonian,
-    /// Per-site constants of `BLOCK + nb` consecutive sites from a cell's first site.
+    /// Per-site constants of `BLOCK + period` consecutive sites from a row's first site.
     consts: &'a [SiteConst],
     /// `(gamma_ll, alpha)` when every basis site has the same.
     uniform: Option<(f64, f64)>,
-    nb: usize,
+    /// Sites after which `consts` repeats (see [`Heun`]).
+    period: usize,
     occupation: Option<&'a [bool]>,
     stream: NoiseStream,
     dt: f64,
@@ -566,13 +581,13 @@ spindrift_isa::multiversion! {
         pred: &mut [Vec3],
         noise: &mut [Vec3]
     ) {
-        let StepContext { h, consts, uniform, nb, occupation, stream, dt, thermal, step_index } = *ctx;
+        let StepContext { h, consts, uniform, period, occupation, stream, dt, thermal, step_index } = *ctx;
         // Blocks of BLOCK sites keep the field and the noise in L1 between being made and
         // being used. The site loops have no branches, so that they vectorise.
         for (block, (pred, noise)) in pred.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate() {
             let first = start + block * BLOCK;
             let len = pred.len();
-            let consts = &consts[first % nb..][..len];
+            let consts = &consts[first % period..][..len];
             h.field_range(spins, first, pred);
             let here = &spins[first..first + len];
             if let Some(sigma) = thermal {
@@ -612,14 +627,14 @@ spindrift_isa::multiversion! {
         start: usize,
         next: &mut [Vec3]
     ) -> Option<usize> {
-        let StepContext { h, consts, uniform, nb, occupation, dt, thermal, .. } = *ctx;
+        let StepContext { h, consts, uniform, period, occupation, dt, thermal, .. } = *ctx;
         let mut field_block = [[0.0; 3]; BLOCK];
         let mut ok_block = [true; BLOCK];
         let mut bad = None;
         for (block, next) in next.chunks_mut(BLOCK).enumerate() {
             let first = start + block * BLOCK;
             let len = next.len();
-            let consts = SiteConsts::of(uniform, &consts[first % nb..][..len]);
+            let consts = SiteConsts::of(uniform, &consts[first % period..][..len]);
             let fields = &mut field_block[..len];
             let ok = &mut ok_block[..len];
             h.field_range(predictor, first, fields);

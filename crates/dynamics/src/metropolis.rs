@@ -119,7 +119,7 @@ use crate::trial_groups::trial_groups;
 use rayon::prelude::*;
 use spindrift_hamiltonian::constants::K_B;
 use spindrift_hamiltonian::{Hamiltonian, TrialScratch, CHUNK};
-use spindrift_lattice::{dot, Vec3};
+use spindrift_lattice::{dot, Supercell, Vec3};
 use spindrift_noise::{NoiseStream, STREAM_METROPOLIS};
 use std::ops::Range;
 
@@ -336,13 +336,12 @@ impl Metropolis {
         let stream = self.stream;
         let sigma = self.sigma;
         let n = spins.len();
-        let nb = h.cell().basis_len();
         let mut total = Counts::default();
 
         for c in 0..self.colouring.len() {
             let class = self.colouring.class(c);
             // Every site of a class has the same basis site.
-            let weight = class_weight(&self.tally, class, nb);
+            let weight = class_weight(&self.tally, class, h.cell());
             let mut block_start = 0;
             while block_start < class.len() {
                 let block = &class[block_start..(block_start + block_len).min(class.len())];
@@ -401,11 +400,10 @@ impl Metropolis {
         }
         let Self { stream, colouring, tally, buffer, sigma, .. } = self;
         let beta = 1.0 / (K_B * temperature);
-        let nb = h.cell().basis_len();
         let mut total = Counts::default();
         for c in 0..colouring.len() {
             let class = colouring.class(c);
-            let weight = class_weight(tally, class, nb);
+            let weight = class_weight(tally, class, h.cell());
             let ctx = TrialContext { h, stream: *stream, sigma: *sigma, beta, step: sweep_index, weight };
             let boundary = slabs.boundary(c);
             let decided = &mut buffer[..boundary.len()];
@@ -436,8 +434,7 @@ impl Metropolis {
             weight: 0.0,
         };
         let threads = rayon::current_num_threads();
-        let pass =
-            BlockPass { blocks, colouring: &self.colouring, tally: &self.tally, nb: h.cell().basis_len() };
+        let pass = BlockPass { blocks, colouring: &self.colouring, tally: &self.tally, cell: h.cell() };
         // The buffer of a phase's class, where a phase has fewer blocks than threads.
         let mut need = 0;
         for p in (0..2).filter(|&p| threads > blocks.phase(p).len()) {
@@ -522,8 +519,8 @@ fn slab_class(pass: &SlabPass<'_>, ctx: &TrialContext<'_>, p: usize, slab: &mut 
 
 /// The [`MomentTally`] weight of a colour class's basis site (every site of a class has
 /// the same), 0 for an empty class.
-fn class_weight(tally: &MomentTally, class: &[u32], nb: usize) -> f64 {
-    class.first().map_or(0.0, |&i| tally.weight(i as usize % nb))
+fn class_weight(tally: &MomentTally, class: &[u32], cell: &Supercell) -> f64 {
+    class.first().map_or(0.0, |&i| tally.weight(cell.basis_of(i as usize)))
 }
 
 /// What the blocks of a phase share (see [`Metropolis::sweep_in_layer_blocks`]).
@@ -531,8 +528,8 @@ struct BlockPass<'a> {
     blocks: &'a LayerBlocks,
     colouring: &'a Colouring,
     tally: &'a MomentTally,
-    /// Basis sites per cell.
-    nb: usize,
+    /// The supercell: each class's basis site.
+    cell: &'a Supercell,
 }
 
 /// The blocks `ks` of one phase over `window`, which holds sites `origin ..` and their
@@ -582,7 +579,7 @@ fn block(
 impl BlockPass<'_> {
     /// The [`MomentTally`] weight of class `c`'s basis site.
     fn weight(&self, c: usize) -> f64 {
-        class_weight(self.tally, self.colouring.class(c), self.nb)
+        class_weight(self.tally, self.colouring.class(c), self.cell)
     }
 
     /// Class `c`'s sites in block `k`.
@@ -686,8 +683,8 @@ trait Decisions {
     fn origin(&self) -> usize;
     /// Keeps the decided spins of `sites`, components `new` (x, y, z), the group of trials
     /// from position `k0` of the call's site list; `stretch` is where `spins()` holds them
-    /// as every other spin, if it does (see [`pair_stretch`]).
-    fn store(&mut self, k0: usize, sites: &[u32], stretch: Option<Range<usize>>, new: [&[f64]; 3]);
+    /// as one stretch, if it does (see [`stretch`]).
+    fn store(&mut self, k0: usize, sites: &[u32], stretch: Option<Stretch>, new: [&[f64]; 3]);
 }
 
 /// Decisions into a buffer, the spins unchanged (the trials of one class may then be
@@ -707,7 +704,7 @@ impl Decisions for IntoBuffer<'_> {
         0
     }
     #[inline(always)]
-    fn store(&mut self, k0: usize, _: &[u32], _: Option<Range<usize>>, new: [&[f64]; 3]) {
+    fn store(&mut self, k0: usize, _: &[u32], _: Option<Stretch>, new: [&[f64]; 3]) {
         let [x, y, z] = new;
         for (((o, x), y), z) in self.out[k0..k0 + x.len()].iter_mut().zip(x).zip(y).zip(z) {
             *o = [*x, *y, *z];
@@ -733,35 +730,62 @@ impl Decisions for InPlace<'_> {
         self.origin
     }
     #[inline(always)]
-    fn store(&mut self, _: usize, sites: &[u32], stretch: Option<Range<usize>>, new: [&[f64]; 3]) {
+    fn store(&mut self, _: usize, sites: &[u32], stretch: Option<Stretch>, new: [&[f64]; 3]) {
         let [x, y, z] = new;
         let n = x.len();
-        if let Some(stretch) = stretch {
-            // Every other spin of a stretch: no index per site.
-            let flat = self.spins[stretch.clone()].as_flattened_mut();
-            for (((c, x), y), z) in flat.chunks_exact_mut(6).zip(x).zip(y).zip(z) {
-                (c[0], c[1], c[2]) = (*x, *y, *z);
+        match stretch {
+            // Every spin of a stretch: no index per site.
+            Some(Stretch::Whole(stretch)) => {
+                for (((c, x), y), z) in self.spins[stretch].iter_mut().zip(x).zip(y).zip(z) {
+                    *c = [*x, *y, *z];
+                }
             }
-            self.spins[stretch.end - 1] = [x[n - 1], y[n - 1], z[n - 1]];
-            return;
-        }
-        for (k, &i) in sites.iter().enumerate() {
-            self.spins[i as usize - self.origin] = [x[k], y[k], z[k]];
+            // Every other spin of a stretch: no index per site.
+            Some(Stretch::Pairs(stretch)) => {
+                let flat = self.spins[stretch.clone()].as_flattened_mut();
+                for (((c, x), y), z) in flat.chunks_exact_mut(6).zip(x).zip(y).zip(z) {
+                    (c[0], c[1], c[2]) = (*x, *y, *z);
+                }
+                self.spins[stretch.end - 1] = [x[n - 1], y[n - 1], z[n - 1]];
+            }
+            None => {
+                for (k, &i) in sites.iter().enumerate() {
+                    self.spins[i as usize - self.origin] = [x[k], y[k], z[k]];
+                }
+            }
         }
     }
 }
 
-/// Where a window of `len` spins from site `origin` holds `sites` as every other spin of
-/// one stretch (their spins and those between), if the sites step by two (`sites[k] =
-/// sites[0] + 2 k`, as a checkerboard class does along a row of cells) and the window
-/// holds them all. The step is tested without branches, so that it vectorises.
+/// Where a window of spins holds a group's sites as one stretch (see [`stretch`]).
+#[derive(Debug, Clone)]
+enum Stretch {
+    /// Every spin of the range: the sites step by one, as one basis site's cells along a
+    /// row do (a sublattice of bcc is a colour class).
+    Whole(Range<usize>),
+    /// Every other spin of the range, its first and last included: the sites step by two,
+    /// as a checkerboard class does along a row of cells.
+    Pairs(Range<usize>),
+}
+
+/// Where a window of `len` spins from site `origin` holds `sites` as one stretch (their
+/// spins, and for a step of two those between), if the sites step by two (`sites[k] =
+/// sites[0] + 2 k`) or by one, and the window holds them all. The steps are tested
+/// without branches, so that it vectorises.
 #[inline(always)]
-fn pair_stretch(sites: &[u32], origin: usize, len: usize) -> Option<Range<usize>> {
+fn stretch(sites: &[u32], origin: usize, len: usize) -> Option<Stretch> {
     let i0 = *sites.first()?;
-    let step = sites.iter().enumerate().fold(true, |ok, (k, &i)| ok & (i == i0.wrapping_add(2 * k as u32)));
+    let steps_by =
+        |d: u32| sites.iter().enumerate().fold(true, |ok, (k, &i)| ok & (i == i0.wrapping_add(d * k as u32)));
     let start = (i0 as usize).checked_sub(origin)?;
-    let end = start + 2 * sites.len() - 1;
-    (step && end <= len).then_some(start..end)
+    let n = sites.len();
+    if steps_by(2) {
+        (start + 2 * n - 1 <= len).then(|| Stretch::Pairs(start..start + 2 * n - 1))
+    } else if steps_by(1) {
+        (start + n <= len).then(|| Stretch::Whole(start..start + n))
+    } else {
+        None
+    }
 }
 
 spindrift_isa::multiversion! {
@@ -812,12 +836,19 @@ fn decide_into(ctx: &TrialContext<'_>, mut to: impl Decisions, sites: &[u32]) ->
         let (de, units, keep) = (&mut de[..n], &mut units[..n], &mut keep[..n]);
         stream.fill_trial_at_in(step, sites, kick.each_mut().map(|c| &mut c[..n]), pick, accept);
         let (spins, origin) = (to.spins(), to.origin());
-        let stretch = pair_stretch(sites, origin, spins.len());
+        let stretch = stretch(sites, origin, spins.len());
         {
             let [ox, oy, oz] = old.each_mut().map(|c| &mut c[..n]);
             match stretch.clone() {
+                // Every spin of a stretch: no index per site.
+                Some(Stretch::Whole(stretch)) => {
+                    let rows = ox.iter_mut().zip(oy.iter_mut()).zip(oz.iter_mut());
+                    for (((x, y), z), s) in rows.zip(&spins[stretch]) {
+                        (*x, *y, *z) = (s[0], s[1], s[2]);
+                    }
+                }
                 // Every other spin of a stretch: no index per site.
-                Some(stretch) => {
+                Some(Stretch::Pairs(stretch)) => {
                     let flat = spins[stretch.clone()].as_flattened();
                     let rows = ox.iter_mut().zip(oy.iter_mut()).zip(oz.iter_mut());
                     for (((x, y), z), c) in rows.zip(flat.chunks_exact(6)) {
@@ -1034,7 +1065,6 @@ mod tests {
         ] {
             let mut start = vec![[0.0; 3]; h.len()];
             crate::initial::random(&h, &mut start, 5).unwrap();
-            let nb = h.cell().basis_len();
             // One thread, block after block: in the blocks' own order, or class by class.
             let sequential = |mc: &mut Metropolis, s: &mut [Vec3], n: u64, class_major: bool| {
                 let blocks = mc.layer_blocks.take().unwrap();
@@ -1051,7 +1081,7 @@ mod tests {
                     };
                     for (c, r) in ranges {
                         let class = mc.colouring.class(c as usize);
-                        let weight = mc.tally.weight(class[0] as usize % nb);
+                        let weight = mc.tally.weight(h.cell().basis_of(class[0] as usize));
                         let ctx =
                             TrialContext { h: &h, stream: mc.stream, sigma: mc.sigma, beta, step: n, weight };
                         let sites = &class[r.start as usize..r.end as usize];

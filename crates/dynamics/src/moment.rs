@@ -76,6 +76,8 @@ pub(crate) fn component_units(w: f64, spins: [&[f64]; 3]) -> [i128; 3] {
 pub struct MomentTally {
     /// `mu_b 2^K` of each basis site, μB (exact: a moment times a power of two).
     weight: Vec<f64>,
+    /// Cells per row, `n1`: the sites of one basis site come in pieces of `n1`.
+    n1: usize,
     /// `2^-K / sum_i mu_i` over the occupied sites (0 when there are none), 1/μB.
     to_magnetization: f64,
 }
@@ -84,7 +86,6 @@ impl MomentTally {
     /// The weights of the sites of `h` (moments from its species).
     pub fn new(h: &Hamiltonian) -> Self {
         let cell = h.cell();
-        let nb = cell.basis_len();
         let moment: Vec<f64> = cell.crystal().basis.iter().map(|b| h.species()[b.species].moment).collect();
         let largest = moment.iter().fold(0.0f64, |m, &x| m.max(x.abs()));
         // The smallest power of two at or above the largest moment, then K = 49 - its
@@ -98,13 +99,14 @@ impl MomentTally {
         }
         let scale = 2f64.powi(49 - exponent);
         let mut total = 0.0;
-        for i in 0..cell.len() {
+        for (i, b) in (0..cell.len()).zip(cell.basis_from(0)) {
             if cell.is_occupied(i) {
-                total += moment[i % nb];
+                total += moment[b];
             }
         }
         let to_magnetization = if total > 0.0 { 1.0 / (scale * total) } else { 0.0 };
-        Self { weight: moment.iter().map(|m| m * scale).collect(), to_magnetization }
+        let n1 = cell.cells()[0];
+        Self { weight: moment.iter().map(|m| m * scale).collect(), n1, to_magnetization }
     }
 
     /// `mu_b 2^K` of basis site `b`, μB (the weight of [`moment_units`]).
@@ -117,7 +119,7 @@ impl MomentTally {
     /// zero on vacant sites), per component, in units of `2^-K` μB. Exact, so the same for
     /// any thread count.
     pub fn units(&self, spins: &[Vec3]) -> [i128; 3] {
-        let nb = self.weight.len();
+        let (nb, n1) = (self.weight.len(), self.n1);
         spins
             .par_chunks(CHUNK)
             .enumerate()
@@ -125,17 +127,15 @@ impl MomentTally {
                 if nb == 1 {
                     return moment_units(self.weight[0], chunk);
                 }
-                let mut sum = [0i64; 3];
-                let mut b = (k * CHUNK) % nb;
-                for &s in chunk {
-                    let u = biased_units(self.weight[b], s);
-                    for a in 0..3 {
-                        sum[a] = sum[a].wrapping_add(u[a]);
-                    }
-                    b = if b + 1 == nb { 0 } else { b + 1 };
+                // Each basis site's sites come in pieces of `n1` (see `Supercell`).
+                let (mut sum, mut lo) = ([0; 3], 0);
+                while lo < chunk.len() {
+                    let i = k * CHUNK + lo;
+                    let hi = (lo + n1 - i % n1).min(chunk.len());
+                    sum = add(sum, moment_units(self.weight[(i / n1) % nb], &chunk[lo..hi]));
+                    lo = hi;
                 }
-                let bias = (chunk.len() as i64).wrapping_mul(MAGIC_BITS);
-                sum.map(|x| i128::from(x.wrapping_sub(bias)))
+                sum
             })
             .reduce(|| [0; 3], add)
     }

@@ -25,20 +25,18 @@ impl Term for Anisotropy {
         "anisotropy"
     }
 
-    fn energy(&self, _cell: &Supercell, spins: &[Vec3]) -> f64 {
-        let nb = self.k.len();
-        spins.iter().enumerate().map(|(i, s)| -self.k[i % nb] * dot(*s, self.axis[i % nb]).powi(2)).sum()
+    fn energy(&self, cell: &Supercell, spins: &[Vec3]) -> f64 {
+        spins.iter().zip(cell.basis_from(0)).map(|(s, b)| -self.k[b] * dot(*s, self.axis[b]).powi(2)).sum()
     }
 
-    fn site_energy(&self, _cell: &Supercell, _spins: &[Vec3], i: usize, s: Vec3) -> f64 {
-        let b = i % self.k.len();
+    fn site_energy(&self, cell: &Supercell, _spins: &[Vec3], i: usize, s: Vec3) -> f64 {
+        let b = cell.basis_of(i);
         -self.k[b] * dot(s, self.axis[b]).powi(2)
     }
 
-    fn add_gradient(&self, _cell: &Supercell, spins: &[Vec3], out: &mut [Vec3]) {
-        let nb = self.k.len();
-        for (i, o) in out.iter_mut().enumerate() {
-            let (k, e) = (self.k[i % nb], self.axis[i % nb]);
+    fn add_gradient(&self, cell: &Supercell, spins: &[Vec3], out: &mut [Vec3]) {
+        for ((i, o), b) in out.iter_mut().enumerate().zip(cell.basis_from(0)) {
+            let (k, e) = (self.k[b], self.axis[b]);
             let p = 2.0 * k * dot(spins[i], e);
             for a in 0..3 {
                 o[a] += p * e[a];

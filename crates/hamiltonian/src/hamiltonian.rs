@@ -323,10 +323,10 @@ impl Hamiltonian {
                     j: f64,
                     d: Vec3,
                     tensor: Option<[Vec3; 3]>| {
-            let delta = ((o[2] as isize * n2 as isize + o[1] as isize) * n1 as isize + o[0] as isize)
-                * nb as isize
-                + to as isize
-                - b as isize;
+            let delta = ((o[2] as isize * n2 as isize + o[1] as isize) * nb as isize + to as isize
+                - b as isize)
+                * n1 as isize
+                + o[0] as isize;
             // [D]x S = S x D = (Sy Dz - Sz Dy, Sz Dx - Sx Dz, Sx Dy - Sy Dx).
             let mut m = [[j, d[2], -d[1]], [-d[2], j, d[0]], [d[1], -d[0], j]];
             if let Some(t) = tensor {
@@ -457,7 +457,7 @@ impl Hamiltonian {
     /// Moment of site `i`, μB (0 on a vacant site).
     pub fn moment(&self, i: usize) -> f64 {
         if self.cell.is_occupied(i) {
-            self.mu_mev[i % self.mu_mev.len()] / MU_B
+            self.mu_mev[self.cell.basis_of(i)] / MU_B
         } else {
             0.0
         }
@@ -496,7 +496,8 @@ impl Hamiltonian {
     ///
     /// The range is cut into rows of cells along `a1` (`n1 * basis` consecutive sites). For
     /// each row and bond the neighbour row is resolved once (a [`SpinRows`] lookup), so the
-    /// inner loop over the row reads `row[(c1 + o1) * basis + to]`, with a wrap only for the
+    /// inner loop over the row reads `row[to * n1 + c1 + o1]` (each basis site's cells are
+    /// consecutive sites, see `spindrift_lattice::Supercell`), with a wrap only for the
     /// few sites whose neighbour wraps around the row's ends. Each site still adds its bonds
     /// in the order of the bond list, so the result is bitwise that of a plain per-site loop.
     ///
@@ -574,11 +575,10 @@ impl Hamiltonian {
         let n1 = cells[0] as i64;
         let hi = lo + out.len();
         for b in 0..nb {
-            // Cells c1 of this row whose site b lies in lo .. hi.
-            // The first cell whose site b is at or after `x` sites into the row.
-            let cell_from = |x: usize| if x <= b { 0 } else { (x - b).div_ceil(nb) };
-            let first = cell_from(lo - row_start) as i64;
-            let last = cell_from(hi - row_start) as i64;
+            // Cells c1 of this row whose site b (at `row_start + b n1 + c1`) lies in lo .. hi.
+            let base = (row_start + b * cells[0]) as i64;
+            let first = (lo as i64 - base).clamp(0, n1);
+            let last = (hi as i64 - base).clamp(0, n1);
             if first >= last {
                 continue;
             }
@@ -587,10 +587,9 @@ impl Hamiltonian {
             // The first pack writes the sums; later ones add to them.
             let mut fresh = true;
             let row = RowPass {
-                own: &rows.row(c23[0], c23[1])[b..],
-                nb: nb as i64,
-                // out[c1 * nb + shift] is the site of cell c1.
-                shift: row_start as i64 + b as i64 - lo as i64,
+                own: &rows.row(c23[0], c23[1])[b * cells[0]..],
+                // out[c1 + shift] is the site of cell c1.
+                shift: base - lo as i64,
                 first,
                 last,
                 n1,
@@ -612,7 +611,8 @@ impl Hamiltonian {
                     (None, None | Some(None)) => continue,
                     // A pair with one side cut reads zeros there: `M 0` adds nothing.
                     (r, Some(r2)) => {
-                        (r.unwrap_or(&self.zeros[bond.to..]), r2.unwrap_or(&self.zeros[opposite.to..]))
+                        let zeros = |to: usize| &self.zeros[to * cells[0]..];
+                        (r.unwrap_or(zeros(bond.to)), r2.unwrap_or(zeros(opposite.to)))
                     }
                 };
                 let next = RowBond {
@@ -703,7 +703,7 @@ impl Hamiltonian {
     /// On-site energy of site `i` holding spin `s` (anisotropy plus Zeeman), meV.
     #[inline]
     pub fn onsite_energy(&self, i: usize, s: Vec3) -> f64 {
-        let b = i % self.mu_mev.len();
+        let b = self.cell.basis_of(i);
         let p = dot(s, self.axis[b]);
         -self.k[b] * (p * p) - self.mu_mev[b] * dot(self.field, s)
     }
@@ -764,21 +764,18 @@ impl Hamiltonian {
     /// [`pair_field_block`], compiled per instruction-set level; the sums over the sites
     /// are sequential, so the same on every level.
     fn energy_total_range(&self, spins: &[Vec3], start: usize, len: usize) -> f64 {
-        let nb = self.cell.basis_len();
         let rows = FlatRows::new(self, spins);
         let mut h = [[0.0; 3]; ENERGY_BLOCK];
         let mut total = 0.0;
         self.row_blocks(start, len, |c23, row_start, lo, hi| {
             let h = &mut h[..hi - lo];
             pair_field_block(self, &rows, c23, row_start, lo, h, (&self.fused, &self.entries));
-            let mut b = lo % nb;
-            for (k, hk) in h.iter().enumerate() {
-                let s = spins[lo + k];
+            for ((s, hk), b) in spins[lo..hi].iter().zip(h.iter()).zip(self.cell.basis_from(lo)) {
                 // Vacant sites hold zero spins and add nothing.
-                let pair = -0.5 * self.mu_mev[b] * dot(s, *hk);
-                let onsite = -self.k[b] * dot(s, self.axis[b]).powi(2) - self.mu_mev[b] * dot(self.field, s);
+                let pair = -0.5 * self.mu_mev[b] * dot(*s, *hk);
+                let onsite =
+                    -self.k[b] * dot(*s, self.axis[b]).powi(2) - self.mu_mev[b] * dot(self.field, *s);
                 total += pair + onsite;
-                b = if b + 1 == nb { 0 } else { b + 1 };
             }
         });
         total
@@ -803,7 +800,6 @@ impl Hamiltonian {
     /// The energy by term of the sites `start .. start + len`, with the bond fields of
     /// each part through [`pair_field_block`] (see [`Hamiltonian::energy_total_range`]).
     fn energy_terms_range(&self, spins: &[Vec3], start: usize, len: usize) -> EnergyTerms {
-        let nb = self.cell.basis_len();
         let rows = FlatRows::new(self, spins);
         let [exchange, dmi] = &self.parts;
         let mut h = [[0.0; 3]; ENERGY_BLOCK];
@@ -812,10 +808,9 @@ impl Hamiltonian {
             let (h, s) = (&mut h[..hi - lo], &spins[lo..hi]);
             // Vacant sites hold zero spins and add nothing.
             let pair = |h: &[Vec3]| {
-                let (mut sum, mut b) = (0.0, lo % nb);
-                for (s, h) in s.iter().zip(h) {
+                let mut sum = 0.0;
+                for ((s, h), b) in s.iter().zip(h).zip(self.cell.basis_from(lo)) {
                     sum += -0.5 * self.mu_mev[b] * dot(*s, *h);
-                    b = if b + 1 == nb { 0 } else { b + 1 };
                 }
                 sum
             };
@@ -826,11 +821,9 @@ impl Hamiltonian {
                     *sum += pair(h);
                 }
             }
-            let mut b = lo % nb;
-            for s in s {
+            for (s, b) in s.iter().zip(self.cell.basis_from(lo)) {
                 e.anisotropy -= self.k[b] * dot(*s, self.axis[b]).powi(2);
                 e.zeeman -= self.mu_mev[b] * dot(self.field, *s);
-                b = if b + 1 == nb { 0 } else { b + 1 };
             }
         });
         e
@@ -922,9 +915,9 @@ const ENERGY_BLOCK: usize = 256;
 /// Most bonds applied in one pass over a row (see `Hamiltonian::field_row`).
 const PACK: usize = 4;
 
-/// One [`Entry`] resolved for a row: the neighbour of cell `c1` is `row[(c1 + o1) nb]`
+/// One [`Entry`] resolved for a row: the neighbour of cell `c1` is `row[c1 + o1]`
 /// (after wrapping `c1 + o1` at the row's ends), and for a pair the opposite one is
-/// `row2[(c1 + o1b) nb]`.
+/// `row2[c1 + o1b]`.
 #[derive(Debug, Clone, Copy, Default)]
 struct RowBond<'a> {
     /// The neighbour row from the bond's target basis site on.
@@ -1027,10 +1020,10 @@ fn flat_onsite(k_field: &[f64], axis: &[Vec3], field: Vec3) -> Vec<Option<FlatOn
 /// The cells `first .. last` of one basis site in a row, and how to reach their
 /// neighbours.
 struct RowPass<'a> {
-    /// The evaluated row's spins from its basis site on: cell `c1`'s is `own[c1 nb]`.
+    /// The evaluated row's spins from its basis site's first cell on: cell `c1`'s is
+    /// `own[c1]`.
     own: &'a [Vec3],
-    nb: i64,
-    /// `out[c1 nb + shift]` is the site of cell `c1`.
+    /// `out[c1 + shift]` is the site of cell `c1`.
     shift: i64,
     first: i64,
     last: i64,
@@ -1073,7 +1066,7 @@ impl RowPass<'_> {
     #[inline(always)]
     fn zero(&self, out: &mut [Vec3]) {
         for c1 in self.first..self.last {
-            out[(c1 * self.nb + self.shift) as usize] = [0.0; 3];
+            out[(c1 + self.shift) as usize] = [0.0; 3];
         }
     }
 
@@ -1100,37 +1093,25 @@ impl RowPass<'_> {
         self.edges::<KIND>(out, pack, first, inner_lo, FRESH);
         if inner_lo < inner_hi {
             let len = (inner_hi - inner_lo) as usize;
-            let k0 = (inner_lo * self.nb + self.shift) as usize;
-            let j0 = pack.map(|r| ((inner_lo + r.o1) * self.nb) as usize);
-            let j1 = pack.map(|r| ((inner_lo + r.o1b) * self.nb) as usize);
+            let k0 = (inner_lo + self.shift) as usize;
+            let j0 = pack.map(|r| (inner_lo + r.o1) as usize);
+            let j1 = pack.map(|r| (inner_lo + r.o1b) as usize);
             let m = pack.map(|r| r.m);
             let j = pack.map(|r| r.j);
             let e = pack.map(|r| r.e);
-            if self.nb == 1 {
-                // Plain slices, which the compiler vectorises.
-                let out = &mut out[k0..k0 + len];
-                let s: [&[Vec3]; K] = std::array::from_fn(|p| &pack[p].row[j0[p]..j0[p] + len]);
-                let t: [&[Vec3]; K] = std::array::from_fn(|p| &pack[p].row2[j1[p]..j1[p] + len]);
-                for (k, o) in out.iter_mut().enumerate() {
-                    let mut h = if FRESH { [0.0; 3] } else { *o };
-                    for p in 0..K {
-                        add_entry::<KIND>(&mut h, &s[p][k], &t[p][k], &m[p], j[p], &e[p]);
-                    }
-                    *o = h;
+            // Plain slices, which the compiler vectorises: each basis site's cells are
+            // consecutive sites (see `spindrift_lattice::Supercell`).
+            let out = &mut out[k0..k0 + len];
+            let s: [&[Vec3]; K] = std::array::from_fn(|p| &pack[p].row[j0[p]..j0[p] + len]);
+            // A single bond has no second row: no slice (and no bounds check).
+            let t: [&[Vec3]; K] =
+                std::array::from_fn(|p| if is_pair(KIND) { &pack[p].row2[j1[p]..j1[p] + len] } else { s[p] });
+            for (k, o) in out.iter_mut().enumerate() {
+                let mut h = if FRESH { [0.0; 3] } else { *o };
+                for p in 0..K {
+                    add_entry::<KIND>(&mut h, &s[p][k], &t[p][k], &m[p], j[p], &e[p]);
                 }
-            } else {
-                let nb = self.nb as usize;
-                for k in 0..len {
-                    let o = &mut out[k0 + k * nb];
-                    let mut h = if FRESH { [0.0; 3] } else { *o };
-                    for p in 0..K {
-                        let s = &pack[p].row[j0[p] + k * nb];
-                        // A single bond has no second row: no index (and no bounds check).
-                        let t = if is_pair(KIND) { &pack[p].row2[j1[p] + k * nb] } else { s };
-                        add_entry::<KIND>(&mut h, s, t, &m[p], j[p], &e[p]);
-                    }
-                    *o = h;
-                }
+                *o = h;
             }
         }
         self.edges::<KIND>(out, pack, inner_hi, last, FRESH);
@@ -1148,14 +1129,13 @@ impl RowPass<'_> {
     fn edges<const KIND: u8>(&self, out: &mut [Vec3], pack: &[RowBond], from: i64, to: i64, fresh: bool) {
         let zero = [0.0; 3];
         for c1 in from..to {
-            let k = (c1 * self.nb + self.shift) as usize;
+            let k = (c1 + self.shift) as usize;
             let mut h = if fresh { zero } else { out[k] };
             for r in pack {
-                let near = wrap_coordinate(c1 + r.o1, self.n1, self.periodic)
-                    .map(|t1| &r.row[(t1 * self.nb) as usize]);
+                let near = wrap_coordinate(c1 + r.o1, self.n1, self.periodic).map(|t1| &r.row[t1 as usize]);
                 if is_pair(KIND) {
-                    let far = wrap_coordinate(c1 + r.o1b, self.n1, self.periodic)
-                        .map(|t1| &r.row2[(t1 * self.nb) as usize]);
+                    let far =
+                        wrap_coordinate(c1 + r.o1b, self.n1, self.periodic).map(|t1| &r.row2[t1 as usize]);
                     // A side that an open face cuts reads a zero spin, as in `field_row`.
                     if near.is_some() || far.is_some() {
                         let (s, t) = (near.unwrap_or(&zero), far.unwrap_or(&zero));
@@ -1170,10 +1150,10 @@ impl RowPass<'_> {
     }
 
     /// Whether the last pack `pack` and the on-site terms can go in one flat pass
-    /// ([`RowPass::pair_iso_onsite`]): one basis site and pairs without DMI.
+    /// ([`RowPass::pair_iso_onsite`]): pairs without DMI.
     #[inline(always)]
     fn merges(&self, pack: &[RowBond]) -> bool {
-        self.nb == 1 && !pack.is_empty() && pack[0].kind == PAIR_ISO
+        !pack.is_empty() && pack[0].kind == PAIR_ISO
     }
 
     /// The pack of isotropic pairs `pack` (see [`RowPass::merges`]), starting the sums when
@@ -1284,45 +1264,23 @@ impl RowPass<'_> {
     /// Adds the on-site terms to the sums in `out`.
     #[inline(always)]
     fn onsite(&self, out: &mut [Vec3], onsite: &OnSite, flat: Option<&FlatOnSite>) {
-        let k0 = (self.first * self.nb + self.shift) as usize;
+        let k0 = (self.first + self.shift) as usize;
         let len = (self.last - self.first) as usize;
-        if self.nb == 1 {
-            let first = self.first as usize;
-            let spins = &self.own[first..first + len];
-            let out = &mut out[k0..k0 + len];
-            if let Some(flat) = flat {
-                // The row as flat numbers against the constants repeated to the same period:
-                // plain loops over slices, which vectorise without regrouping 3-vectors.
-                let (out, spins) = (out.as_flattened_mut(), spins.as_flattened());
-                for (o, s) in out.chunks_mut(FLAT_LEN).zip(spins.chunks(FLAT_LEN)) {
-                    for (((o, s), d), b) in o.iter_mut().zip(s).zip(&flat.d).zip(&flat.b) {
-                        *o = *o + d * s + b;
-                    }
-                }
-            } else {
-                for (o, s) in out.iter_mut().zip(spins) {
-                    onsite.add(o, s);
+        let first = self.first as usize;
+        let spins = &self.own[first..first + len];
+        let out = &mut out[k0..k0 + len];
+        if let Some(flat) = flat {
+            // The row as flat numbers against the constants repeated to the same period:
+            // plain loops over slices, which vectorise without regrouping 3-vectors.
+            let (out, spins) = (out.as_flattened_mut(), spins.as_flattened());
+            for (o, s) in out.chunks_mut(FLAT_LEN).zip(spins.chunks(FLAT_LEN)) {
+                for (((o, s), d), b) in o.iter_mut().zip(s).zip(&flat.d).zip(&flat.b) {
+                    *o = *o + d * s + b;
                 }
             }
         } else {
-            // One cell's sites at a time, the site of this basis site first.
-            let nb = self.nb as usize;
-            let sums = out[k0..].chunks_mut(nb).take(len);
-            let spins = self.own[self.first as usize * nb..].chunks(nb);
-            if let Some(flat) = flat {
-                // The Cartesian axis's form, `(h_a + d_a s_a) + B_a` per component: the same
-                // bits, without the dot product.
-                let (d, b) = ([flat.d[0], flat.d[1], flat.d[2]], [flat.b[0], flat.b[1], flat.b[2]]);
-                for (o, s) in sums.zip(spins) {
-                    let (o, s) = (&mut o[0], &s[0]);
-                    for a in 0..3 {
-                        o[a] = o[a] + d[a] * s[a] + b[a];
-                    }
-                }
-            } else {
-                for (o, s) in sums.zip(spins) {
-                    onsite.add(&mut o[0], &s[0]);
-                }
+            for (o, s) in out.iter_mut().zip(spins) {
+                onsite.add(o, s);
             }
         }
     }
@@ -1443,7 +1401,7 @@ fn neighbour_row<'r, R: SpinRows>(
         let x = c23[k] as i64 + bond.offset[k + 1] as i64;
         t[k] = wrap_coordinate(x, cells[k + 1] as i64, periodic[k + 1])? as usize;
     }
-    Some(&rows.row(t[0], t[1])[bond.to..])
+    Some(&rows.row(t[0], t[1])[bond.to * cells[0]..])
 }
 
 #[cfg(test)]

@@ -27,19 +27,17 @@ impl Term for Zeeman {
         "zeeman"
     }
 
-    fn energy(&self, _cell: &Supercell, spins: &[Vec3]) -> f64 {
-        let nb = self.moment.len();
-        spins.iter().enumerate().map(|(i, s)| -self.moment[i % nb] * MU_B * dot(self.field, *s)).sum()
+    fn energy(&self, cell: &Supercell, spins: &[Vec3]) -> f64 {
+        spins.iter().zip(cell.basis_from(0)).map(|(s, b)| -self.moment[b] * MU_B * dot(self.field, *s)).sum()
     }
 
-    fn site_energy(&self, _cell: &Supercell, _spins: &[Vec3], i: usize, s: Vec3) -> f64 {
-        -self.moment[i % self.moment.len()] * MU_B * dot(self.field, s)
+    fn site_energy(&self, cell: &Supercell, _spins: &[Vec3], i: usize, s: Vec3) -> f64 {
+        -self.moment[cell.basis_of(i)] * MU_B * dot(self.field, s)
     }
 
-    fn add_gradient(&self, _cell: &Supercell, _spins: &[Vec3], out: &mut [Vec3]) {
-        let nb = self.moment.len();
-        for (i, o) in out.iter_mut().enumerate() {
-            let m = self.moment[i % nb] * MU_B;
+    fn add_gradient(&self, cell: &Supercell, _spins: &[Vec3], out: &mut [Vec3]) {
+        for (o, b) in out.iter_mut().zip(cell.basis_from(0)) {
+            let m = self.moment[b] * MU_B;
             for a in 0..3 {
                 o[a] += m * self.field[a];
             }

@@ -28,12 +28,22 @@ pub const XDMF_FILE: &str = "run.xdmf";
 
 /// Root `format` attribute of a run file.
 pub const RUN_FORMAT: &str = "spindrift-run";
-/// Root `format_version` attribute of a run file written by this program.
-pub const RUN_FORMAT_VERSION: u64 = 1;
+/// Root `format_version` attribute of a run file written by this program. Version 2
+/// (2026-12-05) numbers the sites of a lattice with several basis sites basis-major within
+/// each row of cells (see `spindrift_lattice::Supercell`); version 1 had the basis
+/// innermost. The per-site arrays of the two differ in order only, and only for such
+/// lattices ([`SITE_ORDER_VERSION`]).
+pub const RUN_FORMAT_VERSION: u64 = 2;
 /// Root `format` attribute of a checkpoint file.
 pub const CHECKPOINT_FORMAT: &str = "spindrift-checkpoint";
-/// Root `format_version` attribute of a checkpoint written by this program.
-pub const CHECKPOINT_FORMAT_VERSION: u64 = 1;
+/// Root `format_version` attribute of a checkpoint written by this program (2: the site
+/// order of [`RUN_FORMAT_VERSION`] 2).
+pub const CHECKPOINT_FORMAT_VERSION: u64 = 2;
+/// The first `format_version` of run files and checkpoints whose per-site arrays follow
+/// the present site order; earlier files of lattices with several basis sites per cell
+/// hold them with the basis innermost
+/// (`spindrift_lattice::Supercell::from_basis_innermost` reorders them).
+pub const SITE_ORDER_VERSION: u64 = 2;
 
 /// Unit string of lengths.
 pub const UNIT_LENGTH: &str = "angstrom";

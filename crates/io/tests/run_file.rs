@@ -140,7 +140,7 @@ fn h5ls_lists_the_interface_layout_with_shapes_and_units() {
     let seed = run_tool("h5dump", &["-a", "/seed", file.to_str().unwrap()]);
     assert!(seed.contains(&format!("(0): {}", header().seed)), "seed attribute: {seed}");
     let version = run_tool("h5dump", &["-a", "/format_version", file.to_str().unwrap()]);
-    assert!(version.contains("(0): 1"), "format_version attribute: {version}");
+    assert!(version.contains("(0): 2"), "format_version attribute: {version}");
 }
 
 #[test]
@@ -178,7 +178,7 @@ fn reader_reads_back_what_the_sink_wrote() {
     let h = header();
     let a = r.attributes().unwrap();
     assert_eq!(a.format, "spindrift-run");
-    assert_eq!(a.format_version, 1);
+    assert_eq!(a.format_version, 2);
     assert_eq!(a.config, h.config_toml);
     assert_eq!(a.inputs, h.inputs);
     assert_eq!(a.seed, h.seed);

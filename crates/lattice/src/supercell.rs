@@ -1,8 +1,11 @@
 //! Supercells: the crystal repeated `n1 x n2 x n3` times, with a linear numbering of sites.
 //!
-//! Site numbering is `i = ((c3 * n2 + c2) * n1 + c1) * nb + b` for cell `(c1, c2, c3)` and
-//! basis site `b`: the basis is innermost and `c1` runs fastest, so a row of cells along
-//! `a1` is one contiguous block of spins and neighbours along `a1` are `nb` apart.
+//! Site numbering is `i = ((c3 * n2 + c2) * nb + b) * n1 + c1` for cell `(c1, c2, c3)` and
+//! basis site `b`: a row of cells along `a1` is one contiguous block of `n1 nb` spins, and
+//! within it each basis site's `n1` spins are contiguous (basis-major within the row), so
+//! neighbours along `a1` are adjacent and the field kernel's loops over a row run over
+//! consecutive spins whatever the basis (with the basis innermost, as before 2026-12-05,
+//! lattices of several sites per cell took strided loops that the compiler left scalar).
 
 use crate::crystal::Crystal;
 use crate::error::LatticeError;
@@ -37,7 +40,22 @@ impl Supercell {
         let nb = crystal.basis.len();
         let n = cells[0] * cells[1] * cells[2] * nb;
         let occupied = if crystal.basis.iter().any(|s| s.occupancy < 1.0) {
-            Some((0..n).map(|i| unit_hash(seed, 0x0CC, i as u64) < crystal.basis[i % nb].occupancy).collect())
+            // Drawn per site in the order of the numbering before 2026-12-05 (basis innermost),
+            // so that a seed dilutes the same sites as it did then.
+            let [n1, n2, n3] = cells;
+            let mut occupied = vec![false; n];
+            for c3 in 0..n3 {
+                for c2 in 0..n2 {
+                    for c1 in 0..n1 {
+                        for (b, site) in crystal.basis.iter().enumerate() {
+                            let old = ((c3 * n2 + c2) * n1 + c1) * nb + b;
+                            occupied[((c3 * n2 + c2) * nb + b) * n1 + c1] =
+                                unit_hash(seed, 0x0CC, old as u64) < site.occupancy;
+                        }
+                    }
+                }
+            }
+            Some(occupied)
         } else {
             None
         };
@@ -111,20 +129,66 @@ impl Supercell {
     /// Linear index of basis site `b` in cell `c`.
     #[inline(always)]
     pub fn index(&self, c: [usize; 3], b: usize) -> usize {
-        ((c[2] * self.cells[1] + c[1]) * self.cells[0] + c[0]) * self.basis_len() + b
+        ((c[2] * self.cells[1] + c[1]) * self.basis_len() + b) * self.cells[0] + c[0]
     }
 
     /// Cell and basis site of linear index `i`.
     #[inline(always)]
     pub fn decompose(&self, i: usize) -> ([usize; 3], usize) {
         let nb = self.basis_len();
-        let b = i % nb;
-        let mut r = i / nb;
-        let c1 = r % self.cells[0];
-        r /= self.cells[0];
-        let c2 = r % self.cells[1];
-        let c3 = r / self.cells[1];
-        ([c1, c2, c3], b)
+        let c1 = i % self.cells[0];
+        let r = i / self.cells[0];
+        let b = r % nb;
+        let row = r / nb;
+        ([c1, row % self.cells[1], row / self.cells[1]], b)
+    }
+
+    /// Basis site of linear index `i`.
+    #[inline(always)]
+    pub fn basis_of(&self, i: usize) -> usize {
+        (i / self.cells[0]) % self.basis_len()
+    }
+
+    /// Sites per row of cells along `a1`, `n1 nb`: a row is a contiguous block of sites.
+    #[inline(always)]
+    pub fn row_len(&self) -> usize {
+        self.cells[0] * self.basis_len()
+    }
+
+    /// Per-site values listed in the site order used before 2026-12-05, with the basis
+    /// innermost (`i = ((c3 n2 + c2) n1 + c1) nb + b`), in the present order. The two
+    /// orders are the same for a one-site basis. `None` when `values` is not one per site.
+    pub fn from_basis_innermost<T: Copy>(&self, values: &[T]) -> Option<Vec<T>> {
+        if values.len() != self.len() {
+            return None;
+        }
+        let (n1, nb) = (self.cells[0], self.basis_len());
+        Some(
+            (0..self.len())
+                .map(|i| {
+                    let (c1, b, row) = (i % n1, (i / n1) % nb, i / (n1 * nb));
+                    values[(row * n1 + c1) * nb + b]
+                })
+                .collect(),
+        )
+    }
+
+    /// The basis sites of sites `i, i + 1, ...` (endless, wrapping after the last site):
+    /// in each row `n1` sites of basis site 0, then `n1` of basis site 1, and so on. No
+    /// division per site, for loops over ranges of sites.
+    #[inline]
+    pub fn basis_from(&self, i: usize) -> impl Iterator<Item = usize> {
+        let (n1, nb) = (self.cells[0], self.basis_len());
+        let (mut c1, mut b) = (i % n1, (i / n1) % nb);
+        std::iter::from_fn(move || {
+            let this = b;
+            c1 += 1;
+            if c1 == n1 {
+                c1 = 0;
+                b = if b + 1 == nb { 0 } else { b + 1 };
+            }
+            Some(this)
+        })
     }
 
     /// The site reached from cell `c` by `offset` cells, on basis site `to`, or `None`
@@ -208,7 +272,7 @@ impl Supercell {
     /// Species index of site `i`.
     #[inline]
     pub fn species(&self, i: usize) -> usize {
-        self.crystal.basis[i % self.basis_len()].species
+        self.crystal.basis[self.basis_of(i)].species
     }
 }
 
@@ -256,6 +320,32 @@ mod tests {
         }
         // Offsets (2k, 3l, 0) other than zero, for each of the two sites: 5 x 3 - 1.
         assert_eq!(found, 2 * 14);
+    }
+
+    // The order documented at the top of this file (our own definition): within a row of
+    // cells each basis site's cells are consecutive sites, rows follow each other along a2
+    // then a3; `basis_from` counts what `basis_of` divides out; the old order maps over.
+    #[test]
+    fn sites_are_basis_major_within_rows() {
+        let s = Supercell::new(preset("honeycomb", 2.5, None).unwrap(), [3, 2, 2], [true, true, false], 1)
+            .unwrap();
+        assert_eq!(s.row_len(), 6);
+        assert_eq!(s.index([0, 0, 0], 1), 3);
+        assert_eq!(s.index([2, 0, 0], 0), 2);
+        assert_eq!(s.index([0, 1, 0], 0), 6);
+        assert_eq!(s.index([1, 1, 1], 1), 12 + 6 + 3 + 1);
+        let counted: Vec<usize> = s.basis_from(4).take(s.len()).collect();
+        for (k, b) in counted.iter().enumerate() {
+            assert_eq!(*b, s.decompose((4 + k) % s.len()).1, "site {}", 4 + k);
+            assert_eq!(*b, s.basis_of((4 + k) % s.len()));
+        }
+        let old: Vec<usize> = (0..s.len()).collect();
+        let new = s.from_basis_innermost(&old).unwrap();
+        for (i, &o) in new.iter().enumerate() {
+            let (c, b) = s.decompose(i);
+            assert_eq!(o, ((c[2] * 2 + c[1]) * 3 + c[0]) * 2 + b, "site {i}");
+        }
+        assert!(s.from_basis_innermost(&old[1..]).is_none());
     }
 
     #[test]

@@ -209,15 +209,16 @@ fn anchored(s0: Vec3, s1: Vec3, s12: Vec3, s2: Vec3) -> f64 {
 }
 
 spindrift_isa::multiversion! {
-    /// `out[k] = anchored(row[k], row[k + nb], next[k + nb], next[k])`: the solid angles
-    /// anchored at consecutive positions of a row of cells whose neighbour cell along a1
-    /// is the next one in the row (no wrap), `next` being the row one cell further along
-    /// a2. Compiled per instruction-set level (same bits on each).
-    fn anchored_run(row: &[Vec3], next: &[Vec3], nb: usize, out: &mut [f64]) {
+    /// `out[k] = anchored(row[k], row[k + 1], next[k + 1], next[k])`: the solid angles
+    /// anchored at consecutive cells of one basis site's piece of a row whose neighbour
+    /// cell along a1 is the next one in the row (no wrap), `next` being the piece of the
+    /// row one cell further along a2. Compiled per instruction-set level (same bits on
+    /// each).
+    fn anchored_run(row: &[Vec3], next: &[Vec3], out: &mut [f64]) {
         let n = out.len();
-        let (row, next) = (&row[..n + nb], &next[..n + nb]);
+        let (row, next) = (&row[..n + 1], &next[..n + 1]);
         for k in 0..n {
-            out[k] = anchored(row[k], row[k + nb], next[k + nb], next[k]);
+            out[k] = anchored(row[k], row[k + 1], next[k + 1], next[k]);
         }
     }
 }
@@ -239,10 +240,11 @@ impl Geometry {
     /// into one partial sum per plane of cells and basis site, site by site in index
     /// order.
     ///
-    /// The chunk is walked by rows of cells along a1. Where the row's neighbour along a2
-    /// exists, the angles of a stretch of up to [`SPAN`] positions are computed by
+    /// The chunk is walked by pieces of rows of cells along a1, one basis site's `n1`
+    /// sites each (see `Supercell` for the site order). Where the row's neighbour along a2
+    /// exists, the angles of a stretch of up to [`SPAN`] cells are computed by
     /// [`anchored_run`] (the last cell of a row, whose neighbour along a1 wraps or is
-    /// cut, one position at a time) and then added in order. A site without triangles
+    /// cut, one at a time) and then added in order. A site without triangles
     /// adds `+0`, which changes no partial sum: each starts at `+0` and is a sum of terms
     /// none of which is `-0` (each term is `0 + ...`), so it is never `-0`; hence the bits
     /// are those of the sum over the sites that have triangles alone.
@@ -250,34 +252,35 @@ impl Geometry {
         acc.fill(0.0);
         let nb = self.basis_len;
         let [n1, n2, _] = self.cells;
-        let row_len = n1 * nb;
-        let plane = row_len * n2;
+        let plane = n1 * nb * n2;
         let first_plane = start / plane;
-        // The positions of a row whose neighbour along a1 is the next cell of the row.
-        let inner = n1.saturating_sub(1) * nb;
+        // The cells of a row whose neighbour along a1 is the next cell of the row.
+        let inner = n1.saturating_sub(1);
         let mut omega = [0.0; SPAN];
         let end = start + count;
         let mut site = start;
         while site < end {
-            let row = site / row_len;
-            let row_start = row * row_len;
-            let seg_end = (row_start + row_len).min(end);
+            // The piece of basis site `b` of the row of cells `(*, c2, c3)`.
+            let piece = site / n1;
+            let (row, b) = (piece / nb, piece % nb);
+            let piece_start = piece * n1;
+            let seg_end = (piece_start + n1).min(end);
             let (c2, c3) = (row % n2, row / n2);
             let Some(d2) = self.next(1, c2) else {
                 site = seg_end;
                 continue;
             };
-            let this = &spins[row_start..row_start + row_len];
-            let next_start = (c3 * n2 + d2) * row_len;
-            let next = &spins[next_start..next_start + row_len];
-            let sums = &mut acc[(c3 - first_plane) * nb..(c3 - first_plane + 1) * nb];
-            let mut p = site - row_start;
-            let p_end = seg_end - row_start;
+            let this = &spins[piece_start..piece_start + n1];
+            let next_start = ((c3 * n2 + d2) * nb + b) * n1;
+            let next = &spins[next_start..next_start + n1];
+            let sum = &mut acc[(c3 - first_plane) * nb + b];
+            let mut p = site - piece_start;
+            let p_end = seg_end - piece_start;
             while p < p_end {
                 let q = if p < inner { (p + SPAN).min(inner).min(p_end) } else { p_end };
                 let out = &mut omega[..q - p];
                 if p < inner {
-                    anchored_run(&this[p..], &next[p..], nb, out);
+                    anchored_run(&this[p..], &next[p..], out);
                 } else {
                     // The last cell: its neighbour along a1 is the row's first cell, or none.
                     let wrap = self.next(0, n1 - 1).is_some();
@@ -286,13 +289,8 @@ impl Geometry {
                         *w = if wrap { anchored(this[i], this[j], next[j], next[i]) } else { 0.0 };
                     }
                 }
-                let mut b = p % nb;
                 for &w in out.iter() {
-                    sums[b] += w;
-                    b += 1;
-                    if b == nb {
-                        b = 0;
-                    }
+                    *sum += w;
                 }
                 p = q;
             }
@@ -313,13 +311,13 @@ mod tests {
         let [n1, n2, _] = g.cells;
         let first_plane = start / (n1 * n2 * nb);
         for i in start..start + count {
-            let (b, c1, c2, c3) = (i % nb, (i / nb) % n1, (i / (nb * n1)) % n2, i / (nb * n1 * n2));
+            let (c1, b, c2, c3) = (i % n1, (i / n1) % nb, (i / (nb * n1)) % n2, i / (nb * n1 * n2));
             let s0 = spins[i];
             if s0 == [0.0; 3] {
                 continue;
             }
             let (Some(d1), Some(d2)) = (g.next(0, c1), g.next(1, c2)) else { continue };
-            let index = |x: usize, y: usize| ((c3 * n2 + y) * n1 + x) * nb + b;
+            let index = |x: usize, y: usize| ((c3 * n2 + y) * nb + b) * n1 + x;
             let (s1, s12, s2) = (spins[index(d1, c2)], spins[index(d1, d2)], spins[index(c1, d2)]);
             let mut omega = 0.0;
             if s1 != [0.0; 3] && s12 != [0.0; 3] {

@@ -32,6 +32,9 @@ pub struct Magnetization {
 #[derive(Debug, Clone)]
 struct Weights {
     len: usize,
+    /// Sites of one basis site in a row (`n1`; a plane, `n1 n2`, for a one-site basis):
+    /// the pieces that the sums take whole (see `Supercell` for the site order).
+    piece: usize,
     basis_len: usize,
     /// Sites per plane of cells, `n1 n2 nb`.
     plane: usize,
@@ -79,9 +82,8 @@ impl MagnetizationObserver {
         let mut total = 0.0;
         let mut by_species = vec![0.0; species_count];
         let mut by_layer = vec![0.0; layer_count];
-        for i in 0..cell.len() {
+        for (i, b) in (0..cell.len()).zip(cell.basis_from(0)) {
             if cell.is_occupied(i) {
-                let b = i % nb;
                 total += moment[b];
                 by_species[species[b]] += moment[b];
                 by_layer[cell.layer(i)] += moment[b];
@@ -94,6 +96,7 @@ impl MagnetizationObserver {
         Self {
             weights: Weights {
                 len: cell.len(),
+                piece: if nb == 1 { n1 * n2 } else { n1 },
                 basis_len: nb,
                 plane: n1 * n2 * nb,
                 layers_per_cell,
@@ -172,33 +175,30 @@ impl MagnetizationObserver {
 impl Weights {
     /// Sums `mu_i S_i` over one chunk into its slot of partial sums.
     ///
-    /// The chunk is cut at plane boundaries; within a plane the spins of each basis site
-    /// are summed first and weighted once, so that the accumulators of total, species and
-    /// layer are touched once per basis site and plane rather than once per spin, and the
-    /// sum over a single-site basis vectorises (the order of additions is fixed by the
+    /// The chunk is cut into pieces of one basis site (a row's `n1` sites of it; for a
+    /// one-site basis, whole planes), each summed first and weighted once, so that the
+    /// accumulators of total, species and layer are touched once per piece rather than
+    /// once per spin, and the sums vectorise (the order of additions is fixed by the
     /// chunk, so the result is the same for any thread count).
     fn accumulate(&self, start: usize, chunk: &[Vec3], acc: &mut [Vec3]) {
         acc.fill([0.0; 3]);
-        let nb = self.basis_len;
+        let (nb, piece) = (self.basis_len, self.piece);
         let species_count = self.inv_species.len();
         let (head, layers) = acc.split_at_mut(1 + species_count);
+        let first_plane = start / self.plane;
         let mut pos = 0;
-        let mut layer_base = 0;
         while pos < chunk.len() {
             let site = start + pos;
-            let end = (pos + self.plane - site % self.plane).min(chunk.len());
-            let segment = &chunk[pos..end];
-            for offset in 0..nb.min(segment.len()) {
-                let b = (site + offset) % nb;
-                let sum = if nb == 1 { sum_contiguous(segment) } else { sum_strided(&segment[offset..], nb) };
-                let mu = self.moment[b];
-                let v = [mu * sum[0], mu * sum[1], mu * sum[2]];
-                add(&mut head[0], v);
-                add(&mut head[1 + self.species[b]], v);
-                add(&mut layers[layer_base + self.layer[b]], v);
-            }
+            let end = (pos + piece - site % piece).min(chunk.len());
+            let b = (site / piece) % nb;
+            let sum = sum_contiguous(&chunk[pos..end]);
+            let mu = self.moment[b];
+            let v = [mu * sum[0], mu * sum[1], mu * sum[2]];
+            add(&mut head[0], v);
+            add(&mut head[1 + self.species[b]], v);
+            let layer_base = (site / self.plane - first_plane) * self.layers_per_cell;
+            add(&mut layers[layer_base + self.layer[b]], v);
             pos = end;
-            layer_base += self.layers_per_cell;
         }
     }
 }
@@ -220,16 +220,6 @@ fn sum_contiguous(spins: &[Vec3]) -> Vec3 {
         add(&mut total, l);
     }
     for s in blocks.remainder() {
-        add(&mut total, *s);
-    }
-    total
-}
-
-/// Sum of `spins[0], spins[stride], spins[2 stride], ...`.
-#[inline]
-fn sum_strided(spins: &[Vec3], stride: usize) -> Vec3 {
-    let mut total = [0.0; 3];
-    for s in spins.iter().step_by(stride) {
         add(&mut total, *s);
     }
     total

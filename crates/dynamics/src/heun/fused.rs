@@ -223,7 +223,7 @@ spindrift_isa::multiversion! {
         noise: &[Vec3],
         out: &mut [Vec3]
     ) -> Option<usize> {
-        let StepContext { h, consts, uniform, nb, occupation, dt, thermal, .. } = *ctx;
+        let StepContext { h, consts, uniform, period, occupation, dt, thermal, .. } = *ctx;
         let mut field_block = [[0.0; 3]; BLOCK];
         let mut ok_block = [true; BLOCK];
         let mut bad = None;
@@ -231,7 +231,7 @@ spindrift_isa::multiversion! {
         for (block, ((out, pred), noise)) in blocks.enumerate() {
             let first = start + block * BLOCK;
             let len = out.len();
-            let consts = SiteConsts::of(uniform, &consts[first % nb..][..len]);
+            let consts = SiteConsts::of(uniform, &consts[first % period..][..len]);
             let fields = &mut field_block[..len];
             let ok = &mut ok_block[..len];
             h.field_range_in(view, first, fields);

@@ -169,7 +169,7 @@ fn sweep_moment_is_the_moment_of_the_spins() {
     heavy.name = "B".into();
     let light = species(1.3, 0.1, 0.0, [0.0, 0.0, 1.0]);
     let h = Hamiltonian::new(cell, vec![light, heavy], bonds, [0.0, 0.0, 0.5]).unwrap();
-    let moment = |i: usize| if i % 2 == 0 { 1.3 } else { 3.7 };
+    let moment = |i: usize| if h.cell().basis_of(i) == 0 { 1.3 } else { 3.7 };
     let run = |threads| {
         with_threads(threads, || {
             let mut s = vec![[0.0; 3]; h.len()];

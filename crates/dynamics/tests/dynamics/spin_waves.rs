@@ -140,8 +140,9 @@ fn two_sublattices_show_the_exchange_mode() {
     let w1 = GAMMA_PER_PS * b;
     let w2 = GAMMA_PER_PS * (b + z * j * (1.0 / mu_a + 1.0 / mu_b) / MU_B);
     let eps = 0.01;
-    let mut spins: Vec<Vec3> =
-        (0..h.len()).map(|i| if i % 2 == 0 { tilted((eps, 0.0)) } else { tilted((0.0, 0.0)) }).collect();
+    let mut spins: Vec<Vec3> = (0..h.len())
+        .map(|i| if h.cell().basis_of(i) == 0 { tilted((eps, 0.0)) } else { tilted((0.0, 0.0)) })
+        .collect();
     let (dt, steps) = (1e-4, 10_000);
     let total = mu_a + mu_b;
     let mut worst: f64 = 0.0;
@@ -154,7 +155,7 @@ fn two_sublattices_show_the_exchange_mode() {
         let expect_a = ((mu_a * e1.0 + mu_b * e2.0) * eps / total, (mu_a * e1.1 + mu_b * e2.1) * eps / total);
         let expect_b = (mu_a * (e1.0 - e2.0) * eps / total, mu_a * (e1.1 - e2.1) * eps / total);
         for (i, v) in s.iter().enumerate() {
-            let e = if i % 2 == 0 { expect_a } else { expect_b };
+            let e = if h.cell().basis_of(i) == 0 { expect_a } else { expect_b };
             worst = worst.max(((v[0] - e.0).powi(2) + (v[1] - e.1).powi(2)).sqrt() / eps);
         }
     });

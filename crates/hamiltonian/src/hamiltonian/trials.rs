@@ -5,9 +5,10 @@
 //! without branches where it matters, so that the compiler vectorises across sites:
 //!
 //! 1. The basis site of each site (for a basis of several sites), and the runs of the
-//!    block: groups of at least [`MIN_TRIAL_RUN`] consecutive sites in one row of cells whose
-//!    indices step by 1 or 2 (a checkerboard class of a simple cubic lattice steps by 2,
-//!    one sublattice of a two-site basis too). Along a run every bond's neighbours step
+//!    block: groups of at least [`MIN_TRIAL_RUN`] consecutive sites of one basis site in one
+//!    row of cells (a row holds each basis site's cells contiguously, see
+//!    `spindrift_lattice::Supercell`) whose indices step by 1 or 2 (a checkerboard class
+//!    of a simple cubic lattice steps by 2, one sublattice of bcc by 1). Along a run every bond's neighbours step
 //!    alike, so for each bond the neighbour row is found once and the neighbours' spins
 //!    are read with strided contiguous loads (wide loads and shuffles, no gathers), in at
 //!    most two stretches, before and after a periodic wrap (for a pair of bonds, at most
@@ -46,9 +47,9 @@ pub(super) const LANES: usize = 64;
 /// as much per site (the Monte Carlo sweep groups its trials so as to leave none).
 pub const MIN_TRIAL_RUN: usize = 4;
 
-/// Sites `k0 .. k0 + len` of a block: one row of cells, the first in cell `c`, each the
-/// next `dc` cells along a1 (1 or 2: a run steps by one or two sites, and by a multiple of
-/// the basis).
+/// Sites `k0 .. k0 + len` of a block: one basis site of one row of cells, the first in
+/// cell `c`, each the next `dc` cells along a1 (1 or 2: a run steps by one or two sites,
+/// which are one or two cells).
 struct Run {
     k0: usize,
     len: usize,
@@ -293,11 +294,14 @@ impl Hamiltonian {
         let (n1, n2) = (cells[0] as u32, cells[1] as u32);
         let (inv_nb, inv1, inv2) = (1.0 / f64::from(nb), 1.0 / f64::from(n1), 1.0 / f64::from(n2));
 
-        // Phase 1: the basis site of each site (all the same for a one-site basis).
+        // Phase 1: the basis site of each site (all the same for a one-site basis): site
+        // `i` is cell `i mod n1` of the row piece `i / n1`, whose basis site is that piece
+        // modulo the basis.
         let mut basis = [0u32; LANES];
         if nb > 1 {
             for (b, &i) in basis.iter_mut().zip(sites) {
-                *b = i - quotient(i, nb, inv_nb) * nb;
+                let piece = quotient(i, n1, inv1);
+                *b = piece - quotient(piece, nb, inv_nb) * nb;
             }
         }
         let b0 = basis[0];
@@ -307,9 +311,9 @@ impl Hamiltonian {
         let coordinates = || {
             let mut c: Coords = [[0; LANES]; 3];
             for (k, &i) in sites.iter().enumerate() {
-                let cell = if nb == 1 { i } else { quotient(i, nb, inv_nb) };
-                let row = quotient(cell, n1, inv1);
-                c[0][k] = cell - row * n1;
+                let piece = quotient(i, n1, inv1);
+                let row = if nb == 1 { piece } else { quotient(piece, nb, inv_nb) };
+                c[0][k] = i - piece * n1;
                 c[2][k] = quotient(row, n2, inv2);
                 c[1][k] = row - c[2][k] * n2;
             }
@@ -356,8 +360,8 @@ impl Hamiltonian {
     }
 
     /// Adds the pair fields of the runs of the block: maximal groups of at least
-    /// [`MIN_TRIAL_RUN`] consecutive sites of one row of cells whose indices step by 1 or 2 (a
-    /// checkerboard class steps by 2, a sublattice of a two-site basis too). Along a run
+    /// [`MIN_TRIAL_RUN`] consecutive sites of one basis site in one row of cells whose indices
+    /// step by 1 or 2 (a checkerboard class steps by 2, a sublattice of bcc by 1). Along a run
     /// each bond's neighbours step alike, so their spins are read with plain strided loads
     /// instead of gathers. Sites in no such run are marked in `generic`.
     #[inline(always)]
@@ -373,13 +377,14 @@ impl Hamiltonian {
         let cells = self.cell.cells();
         let nb = self.cell.basis_len() as u32;
         let (n1, n2) = (cells[0] as u32, cells[1] as u32);
-        let row_len = n1 * nb;
         let mut k0 = 0;
         while k0 < len {
-            // One integer division per run, not per site.
+            // One integer division per run, not per site. A run stays within one basis
+            // site's piece of a row, `n1` sites.
             let i0 = sites[k0];
-            let row = i0 / row_len;
-            let row_end = (row + 1) * row_len;
+            let piece = i0 / n1;
+            let row = piece / nb;
+            let row_end = (piece + 1) * n1;
             let d = if k0 + 1 < len { sites[k0 + 1].wrapping_sub(i0) } else { 0 };
             let mut k1 = k0 + 1;
             if d == 1 || d == 2 {
@@ -400,10 +405,9 @@ impl Hamiltonian {
                     k1 += 1;
                 }
             }
-            // Sites of one basis site step by a multiple of the basis.
-            if k1 - k0 >= MIN_TRIAL_RUN && d % nb == 0 {
-                let c = [(i0 - row * row_len) / nb, row % n2, row / n2];
-                let run = Run { k0, len: k1 - k0, c, dc: d / nb };
+            if k1 - k0 >= MIN_TRIAL_RUN {
+                let c = [i0 - piece * n1, row % n2, row / n2];
+                let run = Run { k0, len: k1 - k0, c, dc: d };
                 for entry in &self.entries[b] {
                     if d == 1 {
                         with_kind!(entry.kind, K => self.add_entry_run::<1, K>(spins, b, entry, &run, h));
@@ -426,9 +430,9 @@ impl Hamiltonian {
         let x = steps[0];
         let (t2, v2) = steps[1].step(run.c[1]);
         let (t3, v3) = steps[2].step(run.c[2]);
-        let row = (t3 as usize * cells[1] + t2 as usize) * cells[0];
         let nb = self.cell.basis_len();
-        let at = Side { lo: 0, split: 0, hi: 0, x, row, c0: run.c[0], dc: run.dc, nb, to: bond.to };
+        let row = ((t3 as usize * cells[1] + t2 as usize) * nb + bond.to) * cells[0];
+        let at = Side { lo: 0, split: 0, hi: 0, x, row, c0: run.c[0], dc: run.dc };
         if !(v2 && v3) {
             return at;
         }
@@ -560,12 +564,10 @@ struct Side {
     split: usize,
     hi: usize,
     x: AxisStep,
-    /// First site index of the neighbours' row of cells.
+    /// First site index of the bond's target basis site in the neighbours' row of cells.
     row: usize,
     c0: u32,
     dc: u32,
-    nb: usize,
-    to: usize,
 }
 
 impl Side {
@@ -581,7 +583,7 @@ impl Side {
     fn at(&self, k: usize) -> Option<usize> {
         (self.lo <= k && k < self.hi).then(|| {
             let (t, _) = self.x.step(self.c0 + self.dc * k as u32);
-            (self.row + t as usize) * self.nb + self.to
+            self.row + t as usize
         })
     }
 }
@@ -616,9 +618,9 @@ impl Lookup {
         let (t1, v1) = self.steps[1].step(c[1]);
         let (t2, v2) = self.steps[2].step(c[2]);
         let valid = v0 & v1 & v2;
-        let j = ((t2.wrapping_mul(self.n2).wrapping_add(t1)).wrapping_mul(self.n1).wrapping_add(t0))
-            .wrapping_mul(self.nb)
-            .wrapping_add(self.to);
+        let j = ((t2.wrapping_mul(self.n2).wrapping_add(t1)).wrapping_mul(self.nb).wrapping_add(self.to))
+            .wrapping_mul(self.n1)
+            .wrapping_add(t0);
         // Where the bond is cut, `j` may be any value; the load is masked. A neighbour
         // outside the window (below the origin too, by wrapping) is the caller's error,
         // reported as the third value rather than by a branch here, which would keep the
@@ -709,6 +711,11 @@ mod tests {
                 (0..n as u32).filter(|&i| unit_hash(5, 0, u64::from(i)) < 0.4).collect(),
             ];
             lists.extend((0..nb as u32).map(|b| (b..n as u32).step_by(nb).collect()));
+            // One sublattice, and one sublattice's checkerboard half.
+            let cell = h.cell();
+            let sublattice = |b: usize| (0..n as u32).filter(move |&i| cell.basis_of(i as usize) == b);
+            lists.extend((0..nb).map(|b| sublattice(b).collect::<Vec<u32>>()));
+            lists.extend((0..nb).map(|b| sublattice(b).step_by(2).collect::<Vec<u32>>()));
             for sites in lists {
                 let new: Vec<Vec3> = sites.iter().map(|&i| unit(8, i as usize)).collect();
                 let old: Vec<Vec3> = sites.iter().map(|&i| spins[i as usize]).collect();

@@ -991,10 +991,9 @@ fn period(c: &[f64; FLAT_LEN]) -> [f64; GROUP] {
     p
 }
 
-/// The on-site constants of one basis site as flat rows, for the pass over a row of
-/// cells when the lattice has one basis site (consecutive sites, so consecutive numbers)
-/// and [`OnSite::diagonal`] holds: `d[3 k + a] = k_field e_a e_a` and `b[3 k + a] = B_a`.
-/// With several basis sites their first three numbers serve the per-site form.
+/// The on-site constants of one basis site as flat rows, for the pass over its cells of a
+/// row (consecutive sites, so consecutive numbers) when [`OnSite::diagonal`] holds:
+/// `d[3 k + a] = k_field e_a e_a` and `b[3 k + a] = B_a`.
 #[derive(Debug, Clone)]
 struct FlatOnSite {
     d: [f64; FLAT_LEN],
@@ -1174,7 +1173,7 @@ impl RowPass<'_> {
         dispatch!(1, 2, 3, 4)
     }
 
-    /// The row of a one-site basis as flat numbers: `K` isotropic pairs (starting the sums
+    /// One basis site's cells of a row as flat numbers: `K` isotropic pairs (starting the sums
     /// when `FRESH`), then the on-site terms, `((h + j (s + t)) + d s) + b` per number.
     /// These are the operations and the order of the pack's pass followed by the on-site
     /// pass, so the bits are the same as theirs, with the sums read and written once. The
@@ -1577,7 +1576,7 @@ mod tests {
         }
     }
 
-    /// Pure exchange (every entry an isotropic pair, so for a one-site basis the one pack
+    /// Pure exchange (every entry an isotropic pair, so for each basis site the one pack
     /// and the on-site terms go in one flat pass that starts the sums, with the end cells
     /// of periodic and open rows one by one), bitwise against the per-site loop over the
     /// same entries, for several starts of the evaluated range. Our own behaviour: the
@@ -1632,8 +1631,8 @@ mod tests {
             // A row longer than one step of the flat on-site pass (64 sites).
             ("simple-cubic", [150, 2, 2], [true, false, true], 1, 1.0),
         ];
-        // A tilted axis, and the axes and absent anisotropy for which the on-site pass of a
-        // one-site basis runs over flat numbers.
+        // A tilted axis, and the axes and absent anisotropy for which the on-site pass runs
+        // over flat numbers.
         let axes = [TILTED, (0.3, [0.0, 0.0, 2.0]), (-0.2, [1.0, 0.0, 0.0]), (0.0, [0.3, 0.1, 0.5])];
         for ((name, cells, periodic, shells, occ), anisotropy) in
             cases.into_iter().flat_map(|case| axes.map(|axis| (case, axis)))

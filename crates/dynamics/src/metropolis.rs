@@ -650,11 +650,18 @@ fn write_blocks(
 
 /// Decides the trials of `sites` into `out`, in parallel chunks of [`CHUNK`] sites.
 fn decide_in_chunks(ctx: &TrialContext<'_>, spins: &[Vec3], out: &mut [Vec3], sites: &[u32]) -> Counts {
-    if sites.len() <= CHUNK {
+    // Chunks of at most `CHUNK` trials, and one per thread where that leaves at least a
+    // group of trials (`DRAWS`) to each: a slab's boundary of a few thousand sites, which
+    // the slab passes decide before anything else, went to one thread while the others
+    // waited. The chunks change no result: every trial reads only `spins`, groups of
+    // trials give the same bits however they are cut, and the counts are integer sums.
+    let chunk =
+        sites.len().div_ceil(rayon::current_num_threads()).next_multiple_of(DRAWS).clamp(DRAWS, CHUNK);
+    if sites.len() <= chunk {
         decide(ctx, spins, out, sites)
     } else {
-        out.par_chunks_mut(CHUNK)
-            .zip(sites.par_chunks(CHUNK))
+        out.par_chunks_mut(chunk)
+            .zip(sites.par_chunks(chunk))
             .map(|(o, s)| decide(ctx, spins, o, s))
             .reduce(Counts::default, Counts::add)
     }

@@ -32,7 +32,8 @@
 /// 131072 sites (where both nodes measured two threads on one run about even with side by
 /// side, and the bench's 128x128x8 runs at 1.9-2.2 times one thread on two), not from 32768
 /// as before: a sweep of temperatures over cubes of 32 to 50 cells a side runs its points
-/// side by side.
+/// side by side. (Since af48760 the Metropolis figures of the cubes are about 1.1 times
+/// higher, their slab boundaries now shared among the threads: still below side by side.)
 pub const SITES_PER_THREAD: usize = 65536;
 
 /// Threads a point of `sites` sites should have, out of a sweep's `threads`: one per

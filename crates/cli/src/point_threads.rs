@@ -18,8 +18,10 @@
 /// and 1.7 (Metropolis), while two one-thread runs side by side gave 2 times; at 32768
 /// sites two threads on one run (2.1-2.8e7 spin-steps/s) and two one-thread runs at once
 /// (2.4-2.8e7 together) were about even, at 131072 sites 2.3-2.5e7 against 2.6-2.7e7.
-/// (The Heun step shares its parallel loops out in chunks of 4096 sites, so a system of
-/// up to 4096 sites runs its steps on one thread whatever the pool holds.) Again on a
+/// (The Heun step then shared its parallel loops out in chunks of 4096 sites, so a system
+/// of up to 4096 sites ran its steps on one thread whatever the pool held; since
+/// 2026-12-05 it splits such a system among the threads, 1.3-1.8 times as fast on two,
+/// still short of two runs side by side.) Again on a
 /// third-generation Zen node (2026-12-05, the same runs, two rounds; two threads on one
 /// run against two one-thread runs side by side, each over one thread alone): 1024 sites
 /// 1.24-1.30 against 1.64-1.98, 8192 sites 1.33-1.60 against 1.83-1.96, 16384 sites

@@ -512,11 +512,14 @@ impl Order {
         Order { row, rows: n2, band, threads: rayon::current_num_threads(), large }
     }
 
-    /// Sites per parallel task: [`CHUNK`], or an equal share of whole rows per thread for
-    /// large systems.
+    /// Sites per parallel task: [`CHUNK`]; for systems of fewer than `CHUNK` sites per
+    /// thread an equal share per thread in whole blocks of [`BLOCK`], at least two blocks
+    /// (as one task, a system of up to `CHUNK` sites took its steps on one thread whatever
+    /// the pool held; below two blocks a task costs about what a parallel region does);
+    /// an equal share of whole rows per thread for large systems.
     fn task_len(&self, n: usize) -> usize {
         if n <= self.large {
-            CHUNK
+            n.div_ceil(self.threads).next_multiple_of(BLOCK).clamp(2 * BLOCK, CHUNK)
         } else {
             n.div_ceil(self.threads).div_ceil(self.row) * self.row
         }

@@ -95,7 +95,7 @@ impl Default for HeunParams {
 }
 
 /// Constants of one basis site for the current step.
-#[derive(Debug, Clone, Copy, Default)]
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
 struct SiteConst {
     /// `gamma / (1 + alpha^2)`, rad/(ps T).
     gamma_ll: f64,
@@ -210,9 +210,11 @@ const BLOCK: usize = 256;
 pub struct Heun {
     stream: NoiseStream,
     damping: Vec<f64>,
-    /// The constants of each basis site.
+    /// The constants of each basis site (zero until the first step).
     basis_consts: Vec<SiteConst>,
-    /// The constants of `BLOCK + period` consecutive sites from a row's first site.
+    /// The constants of `BLOCK + period` consecutive sites from a row's first site, filled
+    /// from `basis_consts` whenever those change (a row of a multi-site lattice can be long:
+    /// refilled every step, a one-row system of `10^6` cells would pay a pass of its own).
     consts: Vec<SiteConst>,
     /// Sites after which the basis sites' pattern repeats: 1 for a one-site basis, else a
     /// row, `n1 nb` (each basis site's `n1` sites together, see `Supercell`).
@@ -243,6 +245,15 @@ enum Buffers {
     Fused { bands: fused::Bands, next: Vec<Vec3>, rings: Vec<fused::Ring> },
 }
 
+/// Sites after which the basis sites' constants repeat (see [`Heun`]'s `period`).
+fn const_period(h: &Hamiltonian) -> usize {
+    if h.cell().basis_len() == 1 {
+        1
+    } else {
+        h.cell().row_len()
+    }
+}
+
 impl Heun {
     /// An integrator for the supercell and species of `h`, drawing its thermal noise from
     /// stream 0 of `seed`. Every later call must pass a Hamiltonian with the same
@@ -268,7 +279,7 @@ impl Heun {
             None => Buffers::TwoPass { predictor: vec![[0.0; 3]; n], noise: vec![[0.0; 3]; n] },
         };
         let n1 = h.cell().cells()[0];
-        let period = if damping.len() == 1 { 1 } else { h.cell().row_len() };
+        let period = const_period(h);
         Self {
             stream: NoiseStream::new(seed, STREAM_LLG_THERMAL),
             basis_consts: vec![SiteConst::default(); damping.len()],
@@ -290,10 +301,12 @@ impl Heun {
     /// Touches no thread pool, so it can be called before the program sets up its own.
     pub fn scratch_bytes(h: &Hamiltonian, threads: usize) -> usize {
         let v = std::mem::size_of::<Vec3>();
-        match fused_bands(h, LARGE, BAND_BYTES, Some(ROWS_PER_REACH), threads) {
-            Some(bands) => h.len() * v + bands.tasks(threads) * bands.ring_len() * 2 * v,
-            None => h.len() * 2 * v,
-        }
+        let consts = (BLOCK + const_period(h)) * std::mem::size_of::<SiteConst>();
+        consts
+            + match fused_bands(h, LARGE, BAND_BYTES, Some(ROWS_PER_REACH), threads) {
+                Some(bands) => h.len() * v + bands.tasks(threads) * bands.ring_len() * 2 * v,
+                None => h.len() * 2 * v,
+            }
     }
 
     /// Bytes of scratch memory this integrator holds (what [`Heun::scratch_bytes`]
@@ -301,12 +314,13 @@ impl Heun {
     #[cfg(test)]
     fn bytes(&self) -> usize {
         let v = std::mem::size_of::<Vec3>();
-        match &self.buffers {
-            Buffers::TwoPass { predictor, noise } => (predictor.len() + noise.len()) * v,
-            Buffers::Fused { next, rings, .. } => {
-                (next.len() + rings.iter().map(|r| 2 * r.len()).sum::<usize>()) * v
+        self.consts.len() * std::mem::size_of::<SiteConst>()
+            + match &self.buffers {
+                Buffers::TwoPass { predictor, noise } => (predictor.len() + noise.len()) * v,
+                Buffers::Fused { next, rings, .. } => {
+                    (next.len() + rings.iter().map(|r| 2 * r.len()).sum::<usize>()) * v
+                }
             }
-        }
     }
 
     /// Advances `spins` by one step `params.dt` at `params.temperature`, under the
@@ -345,17 +359,22 @@ impl Heun {
         let mu = h.basis_mu_mev();
         let mut thermal = false;
         let nb = self.damping.len();
+        let mut changed = false;
         for (b, &alpha) in self.damping.iter().enumerate() {
             let variance = 2.0 * alpha * K_B * temperature / (GAMMA_PER_PS * mu[b] * dt);
-            self.basis_consts[b] =
+            let c =
                 SiteConst { gamma_ll: GAMMA_PER_PS / (1.0 + alpha * alpha), alpha, sigma: variance.sqrt() };
+            changed |= self.basis_consts[b] != c;
+            self.basis_consts[b] = c;
             thermal |= variance > 0.0;
         }
         // Repeat the basis pattern so that a block starting at site `first` reads its
         // constants from `consts[first % period..]` in order, with no index arithmetic per
-        // site.
-        for (j, c) in self.consts.iter_mut().enumerate() {
-            *c = self.basis_consts[(j / self.n1) % nb];
+        // site (the first step always fills it: `gamma_ll` is never zero).
+        if changed {
+            for (j, c) in self.consts.iter_mut().enumerate() {
+                *c = self.basis_consts[(j / self.n1) % nb];
+            }
         }
 
         // One pair for every site when the basis sites share their damping (see
@@ -802,15 +821,24 @@ pub(crate) mod tests {
     }
 
     // What `check` is told a run will hold is what the integrator holds: two arrays for a
-    // small system, one spin array and the rings for a large one.
+    // small system, one spin array and the rings for a large one, and the per-site
+    // constants of a block and a period (one site, or a row of a lattice of several sites
+    // per cell).
     #[test]
     fn scratch_bytes_are_what_new_allocates() {
-        for (cells, per_site) in [([12, 8, 5], 48), ([600, 600, 2], 24)] {
-            let h = system_of("simple-cubic", cells, 1, [true, true, false], 1.0);
+        let cases = [
+            ("simple-cubic", [12, 8, 5], 48, 1),
+            ("simple-cubic", [600, 600, 2], 24, 1),
+            ("bcc", [12, 8, 5], 48, 24),
+            ("bcc", [450, 450, 2], 24, 900),
+        ];
+        for (name, cells, per_site, period) in cases {
+            let h = system_of(name, cells, 1, [true, true, false], 1.0);
             let bytes = Heun::new(&h, 1).bytes();
             assert_eq!(Heun::scratch_bytes(&h, rayon::current_num_threads()), bytes);
-            let rings = bytes - per_site * h.len();
-            assert!(rings < 2 * h.len(), "{cells:?}: {rings} bytes of rings");
+            let consts = (BLOCK + period) * std::mem::size_of::<SiteConst>();
+            let rings = bytes - consts - per_site * h.len();
+            assert!(rings < 2 * h.len(), "{name} {cells:?}: {rings} bytes of rings");
         }
     }
 

@@ -5,10 +5,11 @@
 //! without branches where it matters, so that the compiler vectorises across sites:
 //!
 //! 1. The basis site of each site (for a basis of several sites), and the runs of the
-//!    block: groups of at least [`MIN_TRIAL_RUN`] consecutive sites of one basis site in one
-//!    row of cells (a row holds each basis site's cells contiguously, see
+//!    block: groups of at least [`MIN_TRIAL_RUN`] consecutive sites of one basis site in
+//!    one row of cells (a row holds each basis site's cells contiguously, see
 //!    `spindrift_lattice::Supercell`) whose indices step by 1 or 2 (a checkerboard class
-//!    of a simple cubic lattice steps by 2, one sublattice of bcc by 1). Along a run every bond's neighbours step
+//!    of a simple cubic lattice steps by 2, one sublattice of bcc by 1). Along a run every
+//!    bond's neighbours step
 //!    alike, so for each bond the neighbour row is found once and the neighbours' spins
 //!    are read with strided contiguous loads (wide loads and shuffles, no gathers), in at
 //!    most two stretches, before and after a periodic wrap (for a pair of bonds, at most
@@ -384,7 +385,7 @@ impl Hamiltonian {
             let i0 = sites[k0];
             let piece = i0 / n1;
             let row = piece / nb;
-            let row_end = (piece + 1) * n1;
+            let piece_end = (piece + 1) * n1;
             let d = if k0 + 1 < len { sites[k0 + 1].wrapping_sub(i0) } else { 0 };
             let mut k1 = k0 + 1;
             if d == 1 || d == 2 {
@@ -397,7 +398,7 @@ impl Hamiltonian {
                 // over the whole rest of the block and the run was otherwise extended site
                 // by site: on rows shorter than a block, as in periodic cubes, that cost
                 // about 9 instructions per site and sweep.)
-                let most = (len - k0).min((row_end - i0).div_ceil(d) as usize);
+                let most = (len - k0).min((piece_end - i0).div_ceil(d) as usize);
                 let whole = sites[k0..k0 + most]
                     .iter()
                     .enumerate()
@@ -405,7 +406,7 @@ impl Hamiltonian {
                 if whole {
                     k1 = k0 + most;
                 } else {
-                    while k1 < len && sites[k1].wrapping_sub(sites[k1 - 1]) == d && sites[k1] < row_end {
+                    while k1 < len && sites[k1].wrapping_sub(sites[k1 - 1]) == d && sites[k1] < piece_end {
                         k1 += 1;
                     }
                 }

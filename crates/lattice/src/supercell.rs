@@ -48,7 +48,7 @@ impl Supercell {
                 for c2 in 0..n2 {
                     for c1 in 0..n1 {
                         for (b, site) in crystal.basis.iter().enumerate() {
-                            let old = ((c3 * n2 + c2) * n1 + c1) * nb + b;
+                            let old = basis_innermost_index(cells, nb, [c1, c2, c3], b);
                             occupied[((c3 * n2 + c2) * nb + b) * n1 + c1] =
                                 unit_hash(seed, 0x0CC, old as u64) < site.occupancy;
                         }
@@ -162,12 +162,12 @@ impl Supercell {
         if values.len() != self.len() {
             return None;
         }
-        let (n1, nb) = (self.cells[0], self.basis_len());
+        let nb = self.basis_len();
         Some(
             (0..self.len())
                 .map(|i| {
-                    let (c1, b, row) = (i % n1, (i / n1) % nb, i / (n1 * nb));
-                    values[(row * n1 + c1) * nb + b]
+                    let (c, b) = self.decompose(i);
+                    values[basis_innermost_index(self.cells, nb, c, b)]
                 })
                 .collect(),
         )
@@ -276,6 +276,12 @@ impl Supercell {
     }
 }
 
+/// The index of basis site `b` in cell `c` in the numbering used before 2026-12-05, with
+/// the basis innermost: `((c3 n2 + c2) n1 + c1) nb + b`.
+fn basis_innermost_index(cells: [usize; 3], nb: usize, c: [usize; 3], b: usize) -> usize {
+    ((c[2] * cells[1] + c[1]) * cells[0] + c[0]) * nb + b
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -346,6 +352,20 @@ mod tests {
             assert_eq!(o, ((c[2] * 2 + c[1]) * 3 + c[0]) * 2 + b, "site {i}");
         }
         assert!(s.from_basis_innermost(&old[1..]).is_none());
+    }
+
+    // Dilution keeps the sites it chose before the site order changed (our own behaviour):
+    // the mask drawn per site of the old numbering, `((c3 n2 + c2) n1 + c1) nb + b`, and
+    // reordered, is the mask.
+    #[test]
+    fn dilution_keeps_its_sites_across_the_site_order() {
+        let mut c = preset("bcc", 2.87, None).unwrap();
+        c.basis[1].occupancy = 0.6;
+        let s = Supercell::new(c.clone(), [5, 4, 3], [true, true, false], 9).unwrap();
+        let old: Vec<bool> =
+            (0..s.len()).map(|i| unit_hash(9, 0x0CC, i as u64) < c.basis[i % 2].occupancy).collect();
+        assert_eq!(s.from_basis_innermost(&old).unwrap(), s.occupation().unwrap());
+        assert!(old.iter().any(|o| !o), "some site is vacant");
     }
 
     #[test]

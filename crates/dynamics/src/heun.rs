@@ -45,7 +45,7 @@
 //! instead a second spin array (24 bytes per site), which the step writes and then swaps
 //! with the caller's, and one ring of rows per thread (a band and `2 reach` rows over
 //! every plane: 1.4 MiB for 1000 x 1000 x 10). The field at the predictor lives only in a
-//! block of `BLOCK` (256) sites on the stack. [`Heun::step`] allocates nothing in
+//! block of `BLOCK` (1024; `FUSED_BLOCK`, 256, in the fused step) sites on the stack. [`Heun::step`] allocates nothing in
 //! proportion to the system: the fused step makes one list of slice handles (threads times
 //! planes) per step.
 
@@ -201,9 +201,22 @@ fn first_failed(ok: &[bool], occupation: Option<&[bool]>, first: usize) -> Optio
     (0..ok.len()).find(|&k| !ok[k] && occupation.is_none_or(|o| o[first + k])).map(|k| first + k)
 }
 
-/// Sites per block within a chunk: the predictor's field and noise, and the corrector's
-/// field buffer on the stack (6 KiB), stay in L1 between being made and being used.
-const BLOCK: usize = 256;
+/// Sites per block within a chunk of the two passes: the predictor's field and noise, and
+/// the corrector's field buffer on the stack (24 KiB), stay in L1 or close to it between
+/// being made and being used, and a block of a one-site lattice holds several rows, which
+/// the field kernel takes as one run (`spindrift_hamiltonian`'s row kernel, "runs of
+/// rows"): 1024 against 256 sites, callgrind 198.0 -> 188.8 instructions per site and
+/// step on sc 128x128x8 and 313.8 -> 249.4 on a periodic 24^3 cube (with runs; without
+/// them the block size changed nothing), time side by side 1.03 and 1.05 (512 against
+/// 256, with runs) and then 1.025 (1024 against 512).
+const BLOCK: usize = 1024;
+
+/// Sites per block of the fused step's passes, which the field kernel takes row by row
+/// (its ring of rows holds no run of rows as one slice).
+const FUSED_BLOCK: usize = 256;
+
+/// Sites per unit of a small system's share of the threads (see [`Order::task_len`]).
+const TASK_UNIT: usize = 256;
 
 /// The stochastic Heun integrator. It owns only scratch buffers; the caller owns the spins.
 #[derive(Debug, Clone)]
@@ -415,7 +428,7 @@ impl Heun {
             let spins: &[Vec3] = spins;
             if spins.len() <= task {
                 order.visit(0, spins.len(), |a, b| {
-                    predictor_chunk(&ctx, spins, a, &mut predictor[a..b], &mut noise[a..b])
+                    predictor_chunk(&ctx, spins, a, &mut predictor[a..b], &mut noise[a..b], BLOCK)
                 });
             } else {
                 predictor.par_chunks_mut(task).zip(noise.par_chunks_mut(task)).enumerate().for_each(
@@ -428,6 +441,7 @@ impl Heun {
                                 a,
                                 &mut pred[a - start..b - start],
                                 &mut noise[a - start..b - start],
+                                BLOCK,
                             )
                         })
                     },
@@ -532,13 +546,13 @@ impl Order {
     }
 
     /// Sites per parallel task: [`CHUNK`]; for systems of fewer than `CHUNK` sites per
-    /// thread an equal share per thread in whole blocks of [`BLOCK`], at least two blocks
+    /// thread an equal share per thread in whole units of [`TASK_UNIT`] sites, at least two
     /// (as one task, a system of up to `CHUNK` sites took its steps on one thread whatever
     /// the pool held; below two blocks a task costs about what a parallel region does);
     /// an equal share of whole rows per thread for large systems.
     fn task_len(&self, n: usize) -> usize {
         if n <= self.large {
-            n.div_ceil(self.threads).next_multiple_of(BLOCK).clamp(2 * BLOCK, CHUNK)
+            n.div_ceil(self.threads).next_multiple_of(TASK_UNIT).clamp(2 * TASK_UNIT, CHUNK)
         } else {
             n.div_ceil(self.threads).div_ceil(self.row) * self.row
         }
@@ -593,21 +607,24 @@ struct StepContext<'a> {
 }
 
 spindrift_isa::multiversion! {
-    /// Pass 1 on the chunk of sites `start ..`: field at S, noise, predictor. The field is
-    /// written straight into the predictor's chunk, which only this chunk reads in this
-    /// pass. Compiled per instruction-set level (same bits on each).
+    /// Pass 1 on the chunk of sites `start ..`, in blocks of `block` sites: field at S,
+    /// noise, predictor. The field is written straight into the predictor's chunk, which
+    /// only this chunk reads in this pass. Compiled per instruction-set level (same bits on
+    /// each).
     fn predictor_chunk(
         ctx: &StepContext<'_>,
         spins: &[Vec3],
         start: usize,
         pred: &mut [Vec3],
-        noise: &mut [Vec3]
+        noise: &mut [Vec3],
+        block_len: usize
     ) {
         let StepContext { h, consts, uniform, period, occupation, stream, dt, thermal, step_index } = *ctx;
-        // Blocks of BLOCK sites keep the field and the noise in L1 between being made and
+        // Blocks keep the field and the noise in L1 between being made and
         // being used. The site loops have no branches, so that they vectorise.
-        for (block, (pred, noise)) in pred.chunks_mut(BLOCK).zip(noise.chunks_mut(BLOCK)).enumerate() {
-            let first = start + block * BLOCK;
+        let blocks = pred.chunks_mut(block_len).zip(noise.chunks_mut(block_len));
+        for (block, (pred, noise)) in blocks.enumerate() {
+            let first = start + block * block_len;
             let len = pred.len();
             let consts = &consts[first % period..][..len];
             h.field_range(spins, first, pred);

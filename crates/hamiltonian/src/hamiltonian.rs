@@ -246,9 +246,12 @@ pub struct Hamiltonian {
     /// DMI part, for the energy by term through the row kernel
     /// ([`Hamiltonian::energy_terms`]).
     parts: [RowBonds; 2],
-    /// One row of zero spins (`n1 * nb`): what the row kernel reads for the side of a pair
-    /// that an open face cuts.
+    /// Zero spins, a row (`n1 * nb`) or a run of rows ([`RUN_SITES`]), whichever is
+    /// longer: what the row kernel reads for the side of a pair that an open face cuts.
     zeros: Vec<Vec3>,
+    /// How far the bonds reach along `a1` and `a2`: the largest `|o1|` and `|o2|` of a
+    /// bond's cell offset (for runs of rows, see [`Hamiltonian::run_rows`]).
+    reach: [usize; 2],
     /// `mu muB` per basis site, meV/T.
     mu_mev: Vec<f64>,
     /// `2 k / (mu muB)` per basis site, T.
@@ -386,7 +389,10 @@ impl Hamiltonian {
                 .collect(),
         );
         let entries = fused.iter().map(|f: &Vec<FusedBond>| entries_of(f)).collect();
-        let zeros = vec![[0.0; 3]; n1 * nb];
+        let zeros = vec![[0.0; 3]; (n1 * nb).max(RUN_SITES)];
+        let reach = std::array::from_fn(|k| {
+            fused.iter().flatten().map(|b: &FusedBond| b.offset[k].unsigned_abs() as usize).max().unwrap_or(0)
+        });
         let moments = basis_species.iter().map(|s| s.moment).collect();
         let spin_count = cell.spin_count();
         let flat_onsite = flat_onsite(&k_field, &axis, field);
@@ -402,6 +408,7 @@ impl Hamiltonian {
             entries,
             parts: [exchange_part, dmi_part],
             zeros,
+            reach,
             mu_mev,
             k_field,
             k,
@@ -523,15 +530,23 @@ impl Hamiltonian {
         while lo < end {
             let r = lo / row_len;
             let row_start = r * row_len;
-            let hi = (row_start + row_len).min(end);
+            // Whole rows go as a run where they can (one call of the row kernel, so that its
+            // loops are compiled once).
+            let run = if lo == row_start { self.run_rows(rows, r, (end - lo) / row_len) } else { 1 };
+            let hi = (row_start + run * row_len).min(end);
+            let out = &mut out[lo - start..hi - start];
             self.field_row::<true, R>(
                 rows,
                 [r % n2, r / n2],
+                run,
                 row_start,
                 lo,
-                &mut out[lo - start..hi - start],
+                out,
                 (&self.fused, &self.entries),
             );
+            if run > 1 {
+                self.run_ends(rows, r, run, out);
+            }
             lo = hi;
         }
         if let Some(occ) = self.cell.occupation() {
@@ -564,6 +579,7 @@ impl Hamiltonian {
         &self,
         rows: &R,
         c23: [usize; 2],
+        run: usize,
         row_start: usize,
         lo: usize,
         out: &mut [Vec3],
@@ -572,7 +588,8 @@ impl Hamiltonian {
         let nb = self.cell.basis_len();
         let cells = self.cell.cells();
         let periodic = self.cell.periodic();
-        let n1 = cells[0] as i64;
+        // A run of rows (one-site basis only) is one long row, open at its ends.
+        let n1 = (cells[0] * run) as i64;
         let hi = lo + out.len();
         for b in 0..nb {
             // Cells c1 of this row whose site b (at `row_start + b n1 + c1`) lies in lo .. hi.
@@ -587,22 +604,22 @@ impl Hamiltonian {
             // The first pack writes the sums; later ones add to them.
             let mut fresh = true;
             let row = RowPass {
-                own: &rows.row(c23[0], c23[1])[b * cells[0]..],
+                own: &rows.run(c23[0], c23[1], run).expect("a run that `run_rows` allowed")[b * cells[0]..],
                 // out[c1 + shift] is the site of cell c1.
                 shift: base - lo as i64,
                 first,
                 last,
                 n1,
-                periodic: periodic[0],
+                periodic: periodic[0] && run == 1,
             };
             let bonds = &fused[b];
             for entry in &entries[b] {
                 let (bond, opposite) = (&bonds[entry.bond], &bonds[entry.opposite]);
-                let near = neighbour_row(rows, c23, cells, periodic, bond);
+                let near = neighbour_row(rows, c23, run, cells, periodic, bond);
                 // Plain `if`, not `bool::then` with a closure: no closure in this loop, so
                 // that nothing in it is left out of line.
                 let far = if is_pair(entry.kind) {
-                    Some(neighbour_row(rows, c23, cells, periodic, opposite))
+                    Some(neighbour_row(rows, c23, run, cells, periodic, opposite))
                 } else {
                     None
                 };
@@ -647,6 +664,120 @@ impl Hamiltonian {
             if ONSITE {
                 let onsite = OnSite { k_field: self.k_field[b], axis: self.axis[b], field: self.field };
                 row.onsite(out, &onsite, flat);
+            }
+        }
+    }
+
+    /// Whole rows from row `r` (at most `whole`) that the row kernel takes as one run, or
+    /// 1 (see [`Hamiltonian::run_ends`]). A run needs a one-site basis (each row one contiguous stretch of
+    /// one basis site's cells, so consecutive rows are one longer stretch), rows within one
+    /// plane whose neighbours across every bond lie in the same plane's rows without
+    /// wrapping around along `a2` (so a bond's neighbour rows are consecutive too), rows
+    /// long enough that most cells are not at their ends, and spins that `rows` holds as
+    /// one slice.
+    #[inline(always)]
+    fn run_rows<R: SpinRows>(&self, rows: &R, r: usize, whole: usize) -> usize {
+        let [n1, n2, _] = self.cell.cells();
+        let [reach1, reach2] = self.reach;
+        if self.cell.basis_len() != 1 || n1 < 4 * reach1.max(1) || reach1 > MAX_RUN_REACH || whole < 2 {
+            return 1;
+        }
+        let c2 = r % n2;
+        if c2 < reach2 || c2 + reach2 >= n2 {
+            return 1;
+        }
+        let run = whole.min(n2 - reach2 - c2).min(RUN_SITES / n1);
+        if run < 2 || rows.run(c2, r / n2, run).is_none() {
+            return 1;
+        }
+        run
+    }
+
+    /// After the row kernel has taken the `run` whole rows from row `r` (see
+    /// [`Hamiltonian::run_rows`]) as one row of `run n1` cells, which resolves the bonds and
+    /// sets up its packs once for the run instead of once per row, the field of each row's
+    /// end cells (within `reach1` of either end, where the long row found the wrong
+    /// neighbours along `a1`) again: the entries in the kernel's order, each resolved once
+    /// for the run, and each side read as the row kernel reads it (a pair whose both rows
+    /// an open face cuts adds nothing, a side whose row it cuts reads zero, and a side cut
+    /// along `a1` reads zero when the other side is there), then the on-site terms, flat
+    /// where they are diagonal. Every end cell's sum is made of the same operations in the
+    /// same order as on the row-by-row path, so the bits are the same. Out of line: a few
+    /// cells per row, and the row kernel's loops around it keep the compiler's inlining
+    /// budget.
+    #[inline(never)]
+    fn run_ends<R: SpinRows>(&self, rows: &R, r: usize, run: usize, out: &mut [Vec3]) {
+        let cells = self.cell.cells();
+        let periodic = self.cell.periodic();
+        let [n1, n2, _] = cells;
+        let c23 = [r % n2, r / n2];
+        let reach1 = self.reach[0];
+        let zero = [0.0; 3];
+        // The end cells: cell c1 of row k of the run is site k n1 + c1 of the run and of
+        // `out`, at `ends[e] + k n1`.
+        let mut ends = [0usize; 2 * MAX_RUN_REACH];
+        let ends = &mut ends[..2 * reach1];
+        for (e, c1) in ends.iter_mut().enumerate() {
+            *c1 = if e < reach1 { e } else { n1 - 2 * reach1 + e };
+        }
+        let ends = &*ends;
+        for k in 0..run {
+            for &c1 in ends {
+                out[k * n1 + c1] = zero;
+            }
+        }
+        // The spin of a side: none where the cell's neighbour along a1 is cut, zero where
+        // an open face cuts its row.
+        let side = |run: Option<&[Vec3]>, k: usize, c1: usize, o1: i32| {
+            let t1 = wrap_coordinate(c1 as i64 + o1 as i64, n1 as i64, periodic[0])? as usize;
+            Some(match run {
+                Some(run) => run[k * n1 + t1],
+                None => zero,
+            })
+        };
+        let bonds = &self.fused[0];
+        for entry in &self.entries[0] {
+            let (bond, opposite) = (&bonds[entry.bond], &bonds[entry.opposite]);
+            let near = neighbour_row(rows, c23, run, cells, periodic, bond);
+            with_kind!(entry.kind, KIND => {
+                if is_pair(KIND) {
+                    let far = neighbour_row(rows, c23, run, cells, periodic, opposite);
+                    if near.is_none() && far.is_none() {
+                        continue;
+                    }
+                    for k in 0..run {
+                        for &c1 in ends {
+                            let (s, t) = (side(near, k, c1, bond.offset[0]), side(far, k, c1, opposite.offset[0]));
+                            if s.is_some() || t.is_some() {
+                                let (s, t) = (s.unwrap_or(zero), t.unwrap_or(zero));
+                                add_entry::<KIND>(&mut out[k * n1 + c1], &s, &t, &bond.m, entry.j, &entry.e);
+                            }
+                        }
+                    }
+                } else if near.is_some() {
+                    for k in 0..run {
+                        for &c1 in ends {
+                            if let Some(s) = side(near, k, c1, bond.offset[0]) {
+                                add_entry::<KIND>(&mut out[k * n1 + c1], &s, &s, &bond.m, entry.j, &entry.e);
+                            }
+                        }
+                    }
+                }
+            });
+        }
+        let own = rows.run(c23[0], c23[1], run).expect("a run that `run_rows` allowed");
+        let onsite = OnSite { k_field: self.k_field[0], axis: self.axis[0], field: self.field };
+        for k in 0..run {
+            for &c1 in ends {
+                let (h, s) = (&mut out[k * n1 + c1], &own[k * n1 + c1]);
+                match &self.flat_onsite[0] {
+                    Some(flat) => {
+                        for a in 0..3 {
+                            h[a] = h[a] + flat.d[a] * s[a] + flat.b[a];
+                        }
+                    }
+                    None => onsite.add(h, s),
+                }
             }
         }
     }
@@ -904,9 +1035,17 @@ spindrift_isa::multiversion! {
         out: &mut [Vec3],
         set: (&[Vec<FusedBond>], &[Vec<Entry>])
     ) {
-        h.field_row::<false, FlatRows<'_>>(rows, c23, row_start, lo, out, set)
+        h.field_row::<false, FlatRows<'_>>(rows, c23, 1, row_start, lo, out, set)
     }
 }
+
+/// Most sites in a run of rows that the field kernel takes as one (see
+/// [`Hamiltonian::run_rows`]; the length of the zero row it may read).
+const RUN_SITES: usize = 1024;
+
+/// Most cells a bond may reach along `a1` for rows to go in runs (see
+/// [`Hamiltonian::run_ends`], which lists the end cells on the stack).
+const MAX_RUN_REACH: usize = 8;
 
 /// Sites per block of the energy sums (`Hamiltonian::row_blocks`): the block's fields
 /// (6 KB) stay in L1.
@@ -1391,6 +1530,7 @@ use with_kind;
 fn neighbour_row<'r, R: SpinRows>(
     rows: &'r R,
     c23: [usize; 2],
+    run: usize,
     cells: [usize; 3],
     periodic: [bool; 3],
     bond: &FusedBond,
@@ -1400,7 +1540,7 @@ fn neighbour_row<'r, R: SpinRows>(
         let x = c23[k] as i64 + bond.offset[k + 1] as i64;
         t[k] = wrap_coordinate(x, cells[k + 1] as i64, periodic[k + 1])? as usize;
     }
-    Some(&rows.row(t[0], t[1])[bond.to * cells[0]..])
+    Some(&rows.run(t[0], t[1], run).expect("a run that `run_rows` allowed")[bond.to * cells[0]..])
 }
 
 #[cfg(test)]
@@ -1593,6 +1733,12 @@ mod tests {
             ("triangular", [17, 3, 2], [true, true, false], 2),
             ("fcc", [17, 2, 2], [true, false, true], 3),
             ("bcc", [9, 2, 2], [true, true, true], 2),
+            // Planes of enough rows for runs of rows (see `runs_of_rows_are_taken`), their
+            // rows periodic or open along a1, the planes periodic or open along a2, and a
+            // reach of two cells along both.
+            ("simple-cubic", [21, 6, 3], [true, true, false], 3),
+            ("simple-cubic", [19, 7, 2], [false, false, true], 2),
+            ("simple-cubic", [24, 8, 3], [true, true, true], 4),
         ];
         for (name, cells, periodic, shells) in cases {
             for anisotropy in [(0.3, [0.0, 0.0, 2.0]), (0.0, [0.3, 0.1, 0.5]), TILTED] {
@@ -1609,6 +1755,42 @@ mod tests {
                 );
             }
         }
+    }
+
+    /// The systems the bitwise tests above and below give runs of rows do take them, so
+    /// that those tests cover the run's kernel and its end cells; and the systems that
+    /// cannot (several sites per cell, too few rows, rows too short) do not. Our own
+    /// behaviour.
+    #[test]
+    fn runs_of_rows_are_taken() {
+        let couplings = |shells| TestCouplings {
+            seed: 5,
+            d: 0.7,
+            dmi_shells: shells,
+            tensor: false,
+            anisotropy: (0.3, [0.0, 0.0, 2.0]),
+        };
+        let run = |name, cells: [usize; 3], periodic, shells, r, whole| {
+            let h = test_system(name, cells, periodic, shells, 1.0, couplings(shells));
+            let spins = vec![[0.0, 0.0, 1.0]; h.len()];
+            h.run_rows(&FlatRows::new(&h, &spins), r, whole)
+        };
+        // Rows 1 ..= 4 of six are interior along a2 (reach 1): a run of four from row 1,
+        // three from row 2, none from rows 0 and 5, or with one row asked for.
+        assert_eq!(run("simple-cubic", [21, 6, 3], [true, true, false], 3, 1, 5), 4);
+        assert_eq!(run("simple-cubic", [21, 6, 3], [true, true, false], 3, 2, 9), 3);
+        assert_eq!(run("simple-cubic", [21, 6, 3], [true, true, false], 3, 6, 9), 1);
+        assert_eq!(run("simple-cubic", [21, 6, 3], [true, true, false], 3, 11, 9), 1);
+        assert_eq!(run("simple-cubic", [21, 6, 3], [true, true, false], 3, 1, 1), 1);
+        // Reach 2 along a1 and a2 (the fourth shell): rows 2 ..= 5 of eight.
+        assert_eq!(run("simple-cubic", [24, 8, 3], [true, true, true], 4, 2, 8), 4);
+        assert_eq!(run("simple-cubic", [24, 8, 3], [true, true, true], 4, 1, 8), 1);
+        assert_eq!(run("triangular", [17, 6, 2], [true, true, false], 2, 7, 8), 4);
+        // No run: two sites per cell; rows shorter than four cells per cell of reach; a
+        // plane of three rows (one interior row).
+        assert_eq!(run("bcc", [19, 6, 2], [false, true, true], 2, 1, 4), 1);
+        assert_eq!(run("simple-cubic", [7, 6, 3], [true, true, false], 4, 2, 4), 1);
+        assert_eq!(run("simple-cubic", [21, 3, 3], [true, true, false], 3, 1, 2), 1);
     }
 
     #[test]
@@ -1630,6 +1812,13 @@ mod tests {
             ("fcc", [17, 2, 2], [true, false, true], 3, 1.0),
             // A row longer than one step of the flat on-site pass (64 sites).
             ("simple-cubic", [150, 2, 2], [true, false, true], 1, 1.0),
+            // Runs of rows (see `runs_of_rows_are_taken`): periodic and open rows and
+            // planes, vacancies, a reach of two cells, and bonds that step along a1 and a2
+            // at once (triangular).
+            ("simple-cubic", [21, 6, 3], [true, true, false], 3, 1.0),
+            ("simple-cubic", [19, 7, 2], [false, false, true], 2, 0.9),
+            ("simple-cubic", [24, 8, 3], [true, true, true], 4, 1.0),
+            ("triangular", [17, 6, 2], [true, true, false], 2, 1.0),
         ];
         // A tilted axis, and the axes and absent anisotropy for which the on-site pass runs
         // over flat numbers.

@@ -15,6 +15,14 @@ pub trait SpinRows {
     /// The `n1 * nb` spins of the row of cells `(*, c2, c3)`, in site order. The kernel
     /// asks only for rows that its bonds reach from the rows it evaluates.
     fn row(&self, c2: usize, c3: usize) -> &[Vec3];
+
+    /// The spins of the `count` rows from `(*, c2, c3)` on within their plane as one slice,
+    /// where the rows are held so (the kernel asks only for rows within the plane), else
+    /// `None`; one row is always [`SpinRows::row`].
+    #[inline(always)]
+    fn run(&self, c2: usize, c3: usize, count: usize) -> Option<&[Vec3]> {
+        (count == 1).then(|| self.row(c2, c3))
+    }
 }
 
 /// Every site's spin in one array, in site order.
@@ -40,5 +48,11 @@ impl SpinRows for FlatRows<'_> {
     fn row(&self, c2: usize, c3: usize) -> &[Vec3] {
         let start = (c3 * self.n2 + c2) * self.row_len;
         &self.spins[start..start + self.row_len]
+    }
+
+    #[inline(always)]
+    fn run(&self, c2: usize, c3: usize, count: usize) -> Option<&[Vec3]> {
+        let start = (c3 * self.n2 + c2) * self.row_len;
+        Some(&self.spins[start..start + count * self.row_len])
     }
 }

@@ -18,7 +18,7 @@
 //! step for any number of tasks.
 
 use super::{
-    add_into, correct_block, first_bad, first_failed, predictor_chunk, SiteConsts, StepContext, BLOCK,
+    add_into, correct_block, first_bad, first_failed, predictor_chunk, SiteConsts, StepContext, FUSED_BLOCK,
 };
 use rayon::prelude::*;
 use spindrift_hamiltonian::{Hamiltonian, SpinRows};
@@ -171,6 +171,7 @@ pub(super) fn run_task(
                 first,
                 &mut ring.predictor[at..at + row],
                 &mut ring.noise[at..at + row],
+                FUSED_BLOCK,
             );
         }
     };
@@ -224,12 +225,12 @@ spindrift_isa::multiversion! {
         out: &mut [Vec3]
     ) -> Option<usize> {
         let StepContext { h, consts, uniform, period, occupation, dt, thermal, .. } = *ctx;
-        let mut field_block = [[0.0; 3]; BLOCK];
-        let mut ok_block = [true; BLOCK];
+        let mut field_block = [[0.0; 3]; FUSED_BLOCK];
+        let mut ok_block = [true; FUSED_BLOCK];
         let mut bad = None;
-        let blocks = out.chunks_mut(BLOCK).zip(pred.chunks(BLOCK)).zip(noise.chunks(BLOCK));
+        let blocks = out.chunks_mut(FUSED_BLOCK).zip(pred.chunks(FUSED_BLOCK)).zip(noise.chunks(FUSED_BLOCK));
         for (block, ((out, pred), noise)) in blocks.enumerate() {
-            let first = start + block * BLOCK;
+            let first = start + block * FUSED_BLOCK;
             let len = out.len();
             let consts = SiteConsts::of(uniform, &consts[first % period..][..len]);
             let fields = &mut field_block[..len];

@@ -204,11 +204,12 @@ fn first_failed(ok: &[bool], occupation: Option<&[bool]>, first: usize) -> Optio
 /// Sites per block within a chunk of the two passes: the predictor's field and noise, and
 /// the corrector's field buffer on the stack (24 KiB), stay in L1 or close to it between
 /// being made and being used, and a block of a one-site lattice holds several rows, which
-/// the field kernel takes as one run (`spindrift_hamiltonian`'s row kernel, "runs of
-/// rows"): 1024 against 256 sites, callgrind 198.0 -> 188.8 instructions per site and
-/// step on sc 128x128x8 and 313.8 -> 249.4 on a periodic 24^3 cube (with runs; without
-/// them the block size changed nothing), time side by side 1.03 and 1.05 (512 against
-/// 256, with runs) and then 1.025 (1024 against 512).
+/// the field kernel takes as one run (`Hamiltonian::field_range`, runs of rows). With
+/// runs, blocks of 256, 512 and 1024 sites took 200.4, 191.2 and 188.8 instructions per
+/// site and step on sc 128x128x8 and 267.5, 253.7 and 249.4 on a periodic 24^3 cube
+/// (callgrind, v3, one thread); one-thread time side by side, 1024 against 512, 1.016-1.046
+/// (median 1.025, four rounds). Without runs, 512 against 256 changed nothing (198.4 ->
+/// 198.0).
 const BLOCK: usize = 1024;
 
 /// Sites per block of the fused step's passes, which the field kernel takes row by row

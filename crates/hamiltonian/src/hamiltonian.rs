@@ -508,8 +508,8 @@ impl Hamiltonian {
     /// few sites whose neighbour wraps around the row's ends. Each site still adds its bonds
     /// in the order of the bond list, so the result is bitwise that of a plain per-site loop.
     /// Whole rows of a one-site lattice whose neighbours lie in rows that follow one another
-    /// go as one run: one long row for the kernel, then each row's end cells again (see
-    /// [`Hamiltonian::run_ends`]), so that the set-up of a row is paid once per run.
+    /// go as one run: one long row for the kernel, then each row's end cells again (the
+    /// private `run_ends`), so that the set-up of a row is paid once per run.
     ///
     /// Compiled for each instruction-set level and run on the widest the CPU has (see
     /// `spindrift_isa`); the bits are the same on every level.

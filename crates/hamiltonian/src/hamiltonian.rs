@@ -19,7 +19,7 @@ use crate::species::Species;
 use crate::term::Term;
 use crate::zeeman::Zeeman;
 use rayon::prelude::*;
-use spindrift_lattice::{cross, dot, wrap_coordinate, BondList, Supercell, Vec3};
+use spindrift_lattice::{cross, dot, wrap_coordinate, wrap_index, BondList, Supercell, Vec3};
 
 mod trials;
 
@@ -746,6 +746,21 @@ impl Hamiltonian {
                 if is_pair(KIND) {
                     let far = neighbour_row(rows, c23, run, cells, periodic, opposite);
                     if near.is_none() && far.is_none() {
+                        continue;
+                    }
+                    if periodic[0] {
+                        // No side is cut along a1: each reads its row, or the row of zeros
+                        // where an open face cuts it, and the pair adds its term (as below,
+                        // without testing for what cannot be missing).
+                        let (near, far) = (near.unwrap_or(&self.zeros), far.unwrap_or(&self.zeros));
+                        let wrap = |c1: usize, o1: i32| wrap_index(c1 as i64 + o1 as i64, n1 as i64) as usize;
+                        for k in 0..run {
+                            for &c1 in ends {
+                                let s = near[k * n1 + wrap(c1, bond.offset[0])];
+                                let t = far[k * n1 + wrap(c1, opposite.offset[0])];
+                                add_entry::<KIND>(&mut out[k * n1 + c1], &s, &t, &bond.m, entry.j, &entry.e);
+                            }
+                        }
                         continue;
                     }
                     for k in 0..run {

@@ -45,9 +45,9 @@
 //! instead a second spin array (24 bytes per site), which the step writes and then swaps
 //! with the caller's, and one ring of rows per thread (a band and `2 reach` rows over
 //! every plane: 1.4 MiB for 1000 x 1000 x 10). The field at the predictor lives only in a
-//! block of `BLOCK` (1024; `FUSED_BLOCK`, 256, in the fused step) sites on the stack. [`Heun::step`] allocates nothing in
-//! proportion to the system: the fused step makes one list of slice handles (threads times
-//! planes) per step.
+//! block of `BLOCK` sites on the stack (1024; `FUSED_BLOCK`, 256, in the fused step).
+//! [`Heun::step`] allocates nothing in proportion to the system: the fused step makes one
+//! list of slice handles (threads times planes) per step.
 
 use crate::error::{check_len, first_bad, StepError};
 use rayon::prelude::*;
@@ -549,7 +549,7 @@ impl Order {
     /// Sites per parallel task: [`CHUNK`]; for systems of fewer than `CHUNK` sites per
     /// thread an equal share per thread in whole units of [`TASK_UNIT`] sites, at least two
     /// (as one task, a system of up to `CHUNK` sites took its steps on one thread whatever
-    /// the pool held; below two blocks a task costs about what a parallel region does);
+    /// the pool held; below two units a task costs about what a parallel region does);
     /// an equal share of whole rows per thread for large systems.
     fn task_len(&self, n: usize) -> usize {
         if n <= self.large {
@@ -621,8 +621,8 @@ spindrift_isa::multiversion! {
         block_len: usize
     ) {
         let StepContext { h, consts, uniform, period, occupation, stream, dt, thermal, step_index } = *ctx;
-        // Blocks keep the field and the noise in L1 between being made and
-        // being used. The site loops have no branches, so that they vectorise.
+        // Blocks keep the field and the noise in L1 (or near it) between being made and being
+        // used. The site loops have no branches, so that they vectorise.
         let blocks = pred.chunks_mut(block_len).zip(noise.chunks_mut(block_len));
         for (block, (pred, noise)) in blocks.enumerate() {
             let first = start + block * block_len;

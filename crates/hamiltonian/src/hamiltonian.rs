@@ -564,7 +564,9 @@ impl Hamiltonian {
     /// Writes the field of the sites `lo .. lo + out.len()` of the row of cells
     /// `(*, c2, c3)` that starts at site `row_start`: the bond sum, plus the on-site terms
     /// when `ONSITE` (`(h + p e) + B`, the order the per-site sum has always used), over
-    /// the bond set `(fused, entries)` (the Hamiltonian's own, or one part of it).
+    /// the bond set `(fused, entries)` (the Hamiltonian's own, or one part of it). With
+    /// `run` above 1, the `run` rows from it as one long row open at its ends, whose rows'
+    /// end cells the caller computes again ([`Hamiltonian::run_ends`]).
     ///
     /// For each basis site the row's entries (single bonds and pairs of opposite bonds,
     /// see [`Entry`]) are resolved once to their neighbour rows, then applied in packs of
@@ -672,12 +674,12 @@ impl Hamiltonian {
     }
 
     /// Whole rows from row `r` (at most `whole`) that the row kernel takes as one run, or
-    /// 1 (see [`Hamiltonian::run_ends`]). A run needs a one-site basis (each row one contiguous stretch of
-    /// one basis site's cells, so consecutive rows are one longer stretch), rows within one
-    /// plane whose neighbours across every bond lie in the same plane's rows without
-    /// wrapping around along `a2` (so a bond's neighbour rows are consecutive too), rows
-    /// long enough that most cells are not at their ends, and spins that `rows` holds as
-    /// one slice.
+    /// 1 (see [`Hamiltonian::run_ends`]). A run needs a one-site basis (each row one
+    /// contiguous stretch of one basis site's cells, so consecutive rows are one longer
+    /// stretch), rows within one plane whose neighbours across every bond lie in the same
+    /// plane's rows without wrapping around along `a2` (so a bond's neighbour rows are
+    /// consecutive too), rows long enough that most cells are not at their ends, and spins
+    /// that `rows` holds as one slice.
     #[inline(always)]
     fn run_rows<R: SpinRows>(&self, rows: &R, r: usize, whole: usize) -> usize {
         let [n1, n2, _] = self.cell.cells();

@@ -122,8 +122,12 @@ fn corrected((gamma_ll, alpha): (f64, f64), s: Vec3, p: Vec3, b: Vec3, dt: f64) 
     let v =
         [0.5 * (s[0] + p[0] + dt * f[0]), 0.5 * (s[1] + p[1] + dt * f[1]), 0.5 * (s[2] + p[2] + dt * f[2])];
     let n2 = dot(v, v);
-    // One comparison catches NaN, infinity and a collapsed spin alike.
-    let good = n2.is_finite() && n2 > 0.0;
+    // One comparison catches NaN, infinity and a collapsed spin alike: `0 < n2 < inf` is
+    // `1 <= bits <= bits(largest finite)` for the bits of a double that is a sum of squares
+    // (a NaN's bits lie above, a negative's too), one unsigned comparison of the bits less
+    // one, where `n2.is_finite() && n2 > 0.0` compiled to about eighteen vector instructions
+    // per four sites.
+    let good = n2.to_bits().wrapping_sub(1) < f64::INFINITY.to_bits() - 1;
     let inv = 1.0 / n2.sqrt();
     (if good { [v[0] * inv, v[1] * inv, v[2] * inv] } else { s }, good)
 }

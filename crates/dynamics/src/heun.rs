@@ -612,7 +612,7 @@ struct StepContext<'a> {
 }
 
 spindrift_isa::multiversion! {
-    /// Pass 1 on the chunk of sites `start ..`, in blocks of `block` sites: field at S,
+    /// Pass 1 on the chunk of sites `start ..`, in blocks of `block_len` sites: field at S,
     /// noise, predictor. The field is written straight into the predictor's chunk, which
     /// only this chunk reads in this pass. Compiled per instruction-set level (same bits on
     /// each).

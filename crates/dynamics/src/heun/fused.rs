@@ -18,7 +18,8 @@
 //! step for any number of tasks.
 
 use super::{
-    add_into, correct_block, first_bad, first_failed, predictor_chunk, SiteConsts, StepContext, FUSED_BLOCK,
+    add_into, correct_block, first_bad, first_failed, predictor_chunk, vacant, SiteConsts, StepContext,
+    FUSED_BLOCK,
 };
 use rayon::prelude::*;
 use spindrift_hamiltonian::{Hamiltonian, SpinRows};
@@ -226,7 +227,6 @@ spindrift_isa::multiversion! {
     ) -> Option<usize> {
         let StepContext { h, consts, uniform, period, occupation, dt, thermal, .. } = *ctx;
         let mut field_block = [[0.0; 3]; FUSED_BLOCK];
-        let mut ok_block = [true; FUSED_BLOCK];
         let mut bad = None;
         let blocks = out.chunks_mut(FUSED_BLOCK).zip(pred.chunks(FUSED_BLOCK)).zip(noise.chunks(FUSED_BLOCK));
         for (block, ((out, pred), noise)) in blocks.enumerate() {
@@ -234,14 +234,15 @@ spindrift_isa::multiversion! {
             let len = out.len();
             let consts = SiteConsts::of(uniform, &consts[first % period..][..len]);
             let fields = &mut field_block[..len];
-            let ok = &mut ok_block[..len];
             h.field_range_in(view, first, fields);
             if thermal.is_some() {
                 add_into(fields, noise);
             }
             let old = &spins[first..first + len];
-            if !with_consts!(consts, c => correct_block(c, old, pred, fields, dt, out, ok)) {
-                bad = first_bad(bad, first_failed(ok, occupation, first));
+            let failed = with_consts!(consts, c => correct_block(c, old, pred, fields, dt, out));
+            if failed > 0 && failed > vacant(occupation, first, len) {
+                let found = with_consts!(consts, c => first_failed(c, (old, pred, fields), dt, occupation, first));
+                bad = first_bad(bad, found);
             }
         }
         bad

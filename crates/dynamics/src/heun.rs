@@ -145,14 +145,6 @@ fn predict_block(c: impl Fn(usize) -> (f64, f64), here: &[Vec3], pred: &mut [Vec
     }
 }
 
-/// `a[k] += b[k]`: the thermal field added to a block's fields.
-#[inline(always)]
-fn add_into(a: &mut [Vec3], b: &[Vec3]) {
-    for (a, b) in a.iter_mut().zip(b) {
-        *a = [a[0] + b[0], a[1] + b[1], a[2] + b[2]];
-    }
-}
-
 /// The corrector over one block: `out[k]` from the old spin `old[k]`, the
 /// predictor `pred[k]` and the field at the predictor `fields[k]`, site `k`'s
 /// `(gamma_ll, alpha)` from `c(k)` (see [`with_consts!`]). Branch-free, so that it
@@ -653,7 +645,6 @@ spindrift_isa::multiversion! {
             let first = start + block * block_len;
             let len = pred.len();
             let consts = &consts[first % period..][..len];
-            h.field_range(spins, first, pred);
             let here = &spins[first..first + len];
             if let Some(sigma) = thermal {
                 // One width for every site: the generator scales the radii itself.
@@ -663,7 +654,11 @@ spindrift_isa::multiversion! {
                         *th = [c.sigma * th[0], c.sigma * th[1], c.sigma * th[2]];
                     }
                 }
-                add_into(pred, noise);
+                // The field plus the thermal field, added in the field kernel's last pass
+                // where it can (see `Hamiltonian::field_range_plus`).
+                h.field_range_plus(spins, first, noise, pred);
+            } else {
+                h.field_range(spins, first, pred);
             }
             with_consts!(SiteConsts::of(uniform, consts), c => predict_block(c, here, pred, dt));
             if let Some(occupied) = occupation {
@@ -700,9 +695,10 @@ spindrift_isa::multiversion! {
             let len = next.len();
             let consts = SiteConsts::of(uniform, &consts[first % period..][..len]);
             let fields = &mut field_block[..len];
-            h.field_range(predictor, first, fields);
             if thermal.is_some() {
-                add_into(fields, next);
+                h.field_range_plus(predictor, first, next, fields);
+            } else {
+                h.field_range(predictor, first, fields);
             }
             let old = &spins[first..first + len];
             let pred = &predictor[first..first + len];

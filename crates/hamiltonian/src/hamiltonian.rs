@@ -515,16 +515,33 @@ impl Hamiltonian {
     /// `spindrift_isa`); the bits are the same on every level.
     #[inline]
     pub fn field_range(&self, spins: &[Vec3], start: usize, out: &mut [Vec3]) {
-        field_range_kernel(self, spins, start, out);
+        field_range_kernel(self, spins, start, None, out);
+    }
+
+    /// [`Hamiltonian::field_range`] plus a field `extra` of the same sites (T; the thermal
+    /// field), `out[k] = field + extra[k]` with the bits of that addition after the field,
+    /// vacant sites included (`0 + extra[k]`). Where the on-site terms and the last pack of
+    /// a row go in one flat pass (see `RowPass::pairs_and_onsite`), the addition goes in
+    /// that pass too, which spares the integrator a pass over its block of fields.
+    #[inline]
+    pub fn field_range_plus(&self, spins: &[Vec3], start: usize, extra: &[Vec3], out: &mut [Vec3]) {
+        assert_eq!(extra.len(), out.len(), "one extra field per site");
+        field_range_kernel(self, spins, start, Some(extra), out);
     }
 
     /// [`Hamiltonian::field_range`] reading the spins from `rows`, compiled for the
     /// instruction set of its caller (not dispatched): for integrators that keep only some
     /// rows, from within their own [`spindrift_isa::multiversion!`] kernels. The sites
     /// `start .. start + out.len()` must lie in rows that `rows` holds, as must the rows
-    /// their bonds reach.
+    /// their bonds reach. With `extra`, as [`Hamiltonian::field_range_plus`].
     #[inline(always)]
-    pub fn field_range_in<R: SpinRows>(&self, rows: &R, start: usize, out: &mut [Vec3]) {
+    pub fn field_range_in<R: SpinRows>(
+        &self,
+        rows: &R,
+        start: usize,
+        extra: Option<&[Vec3]>,
+        out: &mut [Vec3],
+    ) {
         let nb = self.cell.basis_len();
         let [n1, n2, _] = self.cell.cells();
         let row_len = n1 * nb;
@@ -537,6 +554,7 @@ impl Hamiltonian {
             // loops are compiled once).
             let run = if lo == row_start { self.run_rows(rows, r, (end - lo) / row_len) } else { 1 };
             let hi = (row_start + run * row_len).min(end);
+            let extra = extra.map(|x| &x[lo - start..hi - start]);
             let out = &mut out[lo - start..hi - start];
             self.field_row::<true, R>(
                 rows,
@@ -544,19 +562,19 @@ impl Hamiltonian {
                 run,
                 row_start,
                 lo,
-                out,
+                (out, extra),
                 (&self.fused, &self.entries),
             );
             if run > 1 {
-                self.run_ends(rows, r, run, out);
+                self.run_ends(rows, r, run, out, extra);
             }
             lo = hi;
         }
         if let Some(occ) = self.cell.occupation() {
-            for (o, &occupied) in out.iter_mut().zip(&occ[start..end]) {
-                if !occupied {
-                    *o = [0.0; 3];
-                }
+            let vacant = out.iter_mut().zip(&occ[start..end]).enumerate().filter(|(_, (_, &o))| !o);
+            match extra {
+                Some(x) => vacant.for_each(|(k, (o, _))| *o = [0.0 + x[k][0], 0.0 + x[k][1], 0.0 + x[k][2]]),
+                None => vacant.for_each(|(_, (o, _))| *o = [0.0; 3]),
             }
         }
     }
@@ -587,7 +605,7 @@ impl Hamiltonian {
         run: usize,
         row_start: usize,
         lo: usize,
-        out: &mut [Vec3],
+        (out, extra): (&mut [Vec3], Option<&[Vec3]>),
         (fused, entries): (&[Vec<FusedBond>], &[Vec<Entry>]),
     ) {
         let nb = self.cell.basis_len();
@@ -657,7 +675,7 @@ impl Hamiltonian {
             }
             let flat = if ONSITE { self.flat_onsite[b].as_ref() } else { None };
             if let Some(flat) = flat.filter(|_| row.merges(&pack[..len])) {
-                row.pair_iso_onsite(out, &pack[..len], flat, fresh);
+                row.pair_iso_onsite(out, &pack[..len], flat, fresh, extra);
                 continue;
             }
             if len > 0 {
@@ -669,6 +687,9 @@ impl Hamiltonian {
             if ONSITE {
                 let onsite = OnSite { k_field: self.k_field[b], axis: self.axis[b], field: self.field };
                 row.onsite(out, &onsite, flat);
+            }
+            if let Some(extra) = extra {
+                row.add(out, extra);
             }
         }
     }
@@ -711,7 +732,14 @@ impl Hamiltonian {
     /// cells per row, and the row kernel's loops around it keep the compiler's inlining
     /// budget.
     #[inline(never)]
-    fn run_ends<R: SpinRows>(&self, rows: &R, r: usize, run: usize, out: &mut [Vec3]) {
+    fn run_ends<R: SpinRows>(
+        &self,
+        rows: &R,
+        r: usize,
+        run: usize,
+        out: &mut [Vec3],
+        extra: Option<&[Vec3]>,
+    ) {
         let cells = self.cell.cells();
         let periodic = self.cell.periodic();
         let [n1, n2, _] = cells;
@@ -797,6 +825,10 @@ impl Hamiltonian {
                         }
                     }
                     None => onsite.add(h, s),
+                }
+                if let Some(extra) = extra {
+                    let x = &extra[k * n1 + c1];
+                    *h = [h[0] + x[0], h[1] + x[1], h[2] + x[2]];
                 }
             }
         }
@@ -1034,8 +1066,8 @@ impl Hamiltonian {
 
 spindrift_isa::multiversion! {
     /// [`Hamiltonian::field_range`], compiled per instruction-set level.
-    fn field_range_kernel(h: &Hamiltonian, spins: &[Vec3], start: usize, out: &mut [Vec3]) {
-        h.field_range_in(&FlatRows::new(h, spins), start, out)
+    fn field_range_kernel(h: &Hamiltonian, spins: &[Vec3], start: usize, extra: Option<&[Vec3]>, out: &mut [Vec3]) {
+        h.field_range_in(&FlatRows::new(h, spins), start, extra, out)
     }
 }
 
@@ -1055,7 +1087,7 @@ spindrift_isa::multiversion! {
         out: &mut [Vec3],
         set: (&[Vec<FusedBond>], &[Vec<Entry>])
     ) {
-        h.field_row::<false, FlatRows<'_>>(rows, c23, 1, row_start, lo, out, set)
+        h.field_row::<false, FlatRows<'_>>(rows, c23, 1, row_start, lo, (out, None), set)
     }
 }
 
@@ -1317,13 +1349,22 @@ impl RowPass<'_> {
     /// The pack of isotropic pairs `pack` (see [`RowPass::merges`]), starting the sums when
     /// `fresh`, and the on-site terms in one flat pass ([`RowPass::pairs_and_onsite`]).
     #[inline(always)]
-    fn pair_iso_onsite(&self, out: &mut [Vec3], pack: &[RowBond], flat: &FlatOnSite, fresh: bool) {
+    fn pair_iso_onsite(
+        &self,
+        out: &mut [Vec3],
+        pack: &[RowBond],
+        flat: &FlatOnSite,
+        fresh: bool,
+        extra: Option<&[Vec3]>,
+    ) {
         macro_rules! dispatch {
             ($($k:literal),*) => {
-                match (pack.len(), fresh) {
+                match (pack.len(), fresh, extra) {
                     $(
-                        ($k, false) => self.pairs_and_onsite::<$k, false>(out, pack.try_into().expect("K"), flat),
-                        ($k, true) => self.pairs_and_onsite::<$k, true>(out, pack.try_into().expect("K"), flat),
+                        ($k, false, None) => self.pairs_and_onsite::<$k, false, false>(out, pack.try_into().expect("K"), flat, &[]),
+                        ($k, true, None) => self.pairs_and_onsite::<$k, true, false>(out, pack.try_into().expect("K"), flat, &[]),
+                        ($k, false, Some(x)) => self.pairs_and_onsite::<$k, false, true>(out, pack.try_into().expect("K"), flat, x),
+                        ($k, true, Some(x)) => self.pairs_and_onsite::<$k, true, true>(out, pack.try_into().expect("K"), flat, x),
                     )*
                     _ => unreachable!("a pack holds 1 to {PACK} entries"),
                 }
@@ -1342,11 +1383,12 @@ impl RowPass<'_> {
     /// pass alone is faster as it is, a loop over the row against the constants repeated to
     /// its length: in groups it took 1.5 times as long on a monolayer.)
     #[inline(always)]
-    fn pairs_and_onsite<const K: usize, const FRESH: bool>(
+    fn pairs_and_onsite<const K: usize, const FRESH: bool, const EXTRA: bool>(
         &self,
         out: &mut [Vec3],
         pack: &[RowBond; K],
         flat: &FlatOnSite,
+        extra: &[Vec3],
     ) {
         let (first, last) = (self.first, self.last);
         // With one pair (the exchange between the layers of a film with DMI), one period
@@ -1365,9 +1407,13 @@ impl RowPass<'_> {
         for (from, to) in [(first, inner_lo), (inner_hi, last)].into_iter().filter(|(from, to)| from < to) {
             self.edges::<PAIR_ISO>(out, pack, from, to, FRESH);
             for c1 in from..to {
-                let (o, s) = (&mut out[(c1 + self.shift) as usize], &self.own[c1 as usize]);
+                let k = (c1 + self.shift) as usize;
+                let (o, s) = (&mut out[k], &self.own[c1 as usize]);
                 for a in 0..3 {
                     o[a] = o[a] + d[a] * s[a] + b[a];
+                    if EXTRA {
+                        o[a] += extra[k][a];
+                    }
                 }
             }
         }
@@ -1380,6 +1426,7 @@ impl RowPass<'_> {
         let len = (inner_hi - inner_lo) as usize;
         let k0 = (inner_lo + self.shift) as usize;
         let out = out[k0..k0 + len].as_flattened_mut();
+        let extra = if EXTRA { extra[k0..k0 + len].as_flattened() } else { &[] };
         let own = self.own[lo..lo + len].as_flattened();
         // Pair `p` reaches cell `c1 + o1` of its row, and `c1 + o1b` of the other.
         let from = |o1: i64| (inner_lo + o1) as usize;
@@ -1400,12 +1447,17 @@ impl RowPass<'_> {
             let own = group(&own[at..at + GROUP]);
             let s: [[f64; GROUP]; K] = std::array::from_fn(|p| group(&s[p][at..at + GROUP]));
             let t: [[f64; GROUP]; K] = std::array::from_fn(|p| group(&t[p][at..at + GROUP]));
+            // (Zeros where there is no extra field: not read, the compiler drops them.)
+            let x = if EXTRA { group(&extra[at..at + GROUP]) } else { [0.0; GROUP] };
             for l in 0..GROUP {
                 let mut h = if FRESH { 0.0 } else { o[l] };
                 for p in 0..K {
                     h += j[p] * (s[p][l] + t[p][l]);
                 }
                 o[l] = h + d[l] * own[l] + b[l];
+                if EXTRA {
+                    o[l] += x[l];
+                }
             }
         }
         let rest = groups.into_remainder();
@@ -1416,6 +1468,19 @@ impl RowPass<'_> {
                 h += j[p] * (s[p][whole + l] + t[p][whole + l]);
             }
             *o = h + d[l] * own[whole + l] + b[l];
+            if EXTRA {
+                *o += extra[whole + l];
+            }
+        }
+    }
+
+    /// Adds `extra` (indexed as `out`) to the sums in `out`.
+    #[inline(always)]
+    fn add(&self, out: &mut [Vec3], extra: &[Vec3]) {
+        let k0 = (self.first + self.shift) as usize;
+        let len = (self.last - self.first) as usize;
+        for (o, x) in out[k0..k0 + len].iter_mut().zip(&extra[k0..k0 + len]) {
+            *o = [o[0] + x[0], o[1] + x[1], o[2] + x[2]];
         }
     }
 
@@ -1722,14 +1787,25 @@ mod tests {
         let row = h.cell().cells()[0] * h.cell().basis_len();
         let short = (0..(2 * row).min(n)).flat_map(|start| [(start, 1), (start, 2.min(n - start))]);
         let ranges = [(0, n), (1, n - 1), (3, n / 2), (n / 3, n / 3 + 1), (n - 1, 1)];
+        // An extra field, as the thermal field is added: `field + extra` with the bits of
+        // that addition after the field, vacant sites included.
+        let extra: Vec<Vec3> = (0..n).map(|i| unit(17, i).map(|x| 3.0 * x)).collect();
         for (start, len) in ranges.into_iter().chain(short) {
             let mut out = vec![[f64::NAN; 3]; len];
             h.field_range(spins, start, &mut out);
-            for (k, o) in out.iter().enumerate() {
-                let e = expected[start + k];
+            let mut plus = vec![[f64::NAN; 3]; len];
+            h.field_range_plus(spins, start, &extra[start..start + len], &mut plus);
+            for (k, (o, p)) in out.iter().zip(&plus).enumerate() {
+                let (e, x) = (expected[start + k], extra[start + k]);
                 assert!(
                     (0..3).all(|a| o[a].to_bits() == e[a].to_bits()),
                     "{label} site {}: {o:?} != {e:?}",
+                    start + k
+                );
+                let e = [e[0] + x[0], e[1] + x[1], e[2] + x[2]];
+                assert!(
+                    (0..3).all(|a| p[a].to_bits() == e[a].to_bits()),
+                    "{label} site {} plus extra: {p:?} != {e:?}",
                     start + k
                 );
             }

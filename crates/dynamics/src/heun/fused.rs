@@ -18,8 +18,7 @@
 //! step for any number of tasks.
 
 use super::{
-    add_into, correct_block, first_bad, first_failed, predictor_chunk, vacant, SiteConsts, StepContext,
-    FUSED_BLOCK,
+    correct_block, first_bad, first_failed, predictor_chunk, vacant, SiteConsts, StepContext, FUSED_BLOCK,
 };
 use rayon::prelude::*;
 use spindrift_hamiltonian::{Hamiltonian, SpinRows};
@@ -234,10 +233,7 @@ spindrift_isa::multiversion! {
             let len = out.len();
             let consts = SiteConsts::of(uniform, &consts[first % period..][..len]);
             let fields = &mut field_block[..len];
-            h.field_range_in(view, first, fields);
-            if thermal.is_some() {
-                add_into(fields, noise);
-            }
+            h.field_range_in(view, first, thermal.is_some().then_some(noise), fields);
             let old = &spins[first..first + len];
             let failed = with_consts!(consts, c => correct_block(c, old, pred, fields, dt, out));
             if failed > 0 && failed > vacant(occupation, first, len) {

@@ -582,9 +582,11 @@ impl Hamiltonian {
     /// Writes the field of the sites `lo .. lo + out.len()` of the row of cells
     /// `(*, c2, c3)` that starts at site `row_start`: the bond sum, plus the on-site terms
     /// when `ONSITE` (`(h + p e) + B`, the order the per-site sum has always used), over
-    /// the bond set `(fused, entries)` (the Hamiltonian's own, or one part of it). With
-    /// `run` above 1, the `run` rows from it as one long row open at its ends, whose rows'
-    /// end cells the caller computes again ([`Hamiltonian::run_ends`]).
+    /// the bond set `(fused, entries)` (the Hamiltonian's own, or one part of it), plus
+    /// `extra` (indexed as `out`) after the on-site terms where given (see
+    /// [`Hamiltonian::field_range_plus`]). With `run` above 1, the `run` rows from it as one
+    /// long row open at its ends, whose rows' end cells the caller computes again
+    /// ([`Hamiltonian::run_ends`]).
     ///
     /// For each basis site the row's entries (single bonds and pairs of opposite bonds,
     /// see [`Entry`]) are resolved once to their neighbour rows, then applied in packs of
@@ -728,7 +730,8 @@ impl Hamiltonian {
     /// an open face cuts adds nothing, a side whose row it cuts reads zero, and a side cut
     /// along `a1` reads zero when the other side is there), then the on-site terms, flat
     /// where they are diagonal. Every end cell's sum is made of the same operations in the
-    /// same order as on the row-by-row path, so the bits are the same. Out of line: a few
+    /// same order as on the row-by-row path, so the bits are the same; `extra` (indexed as
+    /// `out`) goes last, as the row kernel adds it. Out of line: a few
     /// cells per row, and the row kernel's loops around it keep the compiler's inlining
     /// budget.
     #[inline(never)]
@@ -1347,7 +1350,8 @@ impl RowPass<'_> {
     }
 
     /// The pack of isotropic pairs `pack` (see [`RowPass::merges`]), starting the sums when
-    /// `fresh`, and the on-site terms in one flat pass ([`RowPass::pairs_and_onsite`]).
+    /// `fresh`, and the on-site terms in one flat pass ([`RowPass::pairs_and_onsite`]), then
+    /// `extra` (indexed as `out`) where given.
     #[inline(always)]
     fn pair_iso_onsite(
         &self,
@@ -1374,7 +1378,8 @@ impl RowPass<'_> {
     }
 
     /// One basis site's cells of a row as flat numbers: `K` isotropic pairs (starting the sums
-    /// when `FRESH`), then the on-site terms, `((h + j (s + t)) + d s) + b` per number.
+    /// when `FRESH`), then the on-site terms, `((h + j (s + t)) + d s) + b` per number, and
+    /// with `EXTRA` the number of `extra` (indexed as `out`; the thermal field) added last.
     /// These are the operations and the order of the pack's pass followed by the on-site
     /// pass, so the bits are the same as theirs, with the sums read and written once. The
     /// cells whose neighbours wrap around the row's ends go through `edges` and then the

@@ -218,6 +218,25 @@ fn first_failed(
         .map(|k| first + k)
 }
 
+/// [`correct_block`] with the constants `consts`, then the first occupied site that failed
+/// ([`first_failed`]) where the block, of sites `first ..`, has more failures than vacant
+/// sites: what both steps' correctors do with a block.
+#[inline(always)]
+fn correct(
+    consts: SiteConsts<'_>,
+    (old, pred, fields): (&[Vec3], &[Vec3], &[Vec3]),
+    dt: f64,
+    out: &mut [Vec3],
+    (occupation, first): (Option<&[bool]>, usize),
+) -> Option<usize> {
+    let failed = with_consts!(consts, c => correct_block(c, old, pred, fields, dt, out));
+    if failed > vacant(occupation, first, out.len()) {
+        with_consts!(consts, c => first_failed(c, (old, pred, fields), dt, occupation, first))
+    } else {
+        None
+    }
+}
+
 /// Sites per block within a chunk of the two passes: the predictor's field and noise, and
 /// the corrector's field buffer on the stack (24 KiB), stay in L1 or close to it between
 /// being made and being used, and a block of a one-site lattice holds several rows, which
@@ -702,11 +721,7 @@ spindrift_isa::multiversion! {
             }
             let old = &spins[first..first + len];
             let pred = &predictor[first..first + len];
-            let failed = with_consts!(consts, c => correct_block(c, old, pred, fields, dt, next));
-            if failed > 0 && failed > vacant(occupation, first, len) {
-                let found = with_consts!(consts, c => first_failed(c, (old, pred, fields), dt, occupation, first));
-                bad = first_bad(bad, found);
-            }
+            bad = first_bad(bad, correct(consts, (old, pred, fields), dt, next, (occupation, first)));
         }
         bad
     }

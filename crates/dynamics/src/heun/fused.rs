@@ -17,9 +17,7 @@
 //! are computed twice with the same bits, and the result is bitwise that of the two-pass
 //! step for any number of tasks.
 
-use super::{
-    correct_block, first_bad, first_failed, predictor_chunk, vacant, SiteConsts, StepContext, FUSED_BLOCK,
-};
+use super::{correct, first_bad, predictor_chunk, SiteConsts, StepContext, FUSED_BLOCK};
 use rayon::prelude::*;
 use spindrift_hamiltonian::{Hamiltonian, SpinRows};
 use spindrift_lattice::{wrap_index, Vec3};
@@ -235,11 +233,7 @@ spindrift_isa::multiversion! {
             let fields = &mut field_block[..len];
             h.field_range_in(view, first, thermal.is_some().then_some(noise), fields);
             let old = &spins[first..first + len];
-            let failed = with_consts!(consts, c => correct_block(c, old, pred, fields, dt, out));
-            if failed > 0 && failed > vacant(occupation, first, len) {
-                let found = with_consts!(consts, c => first_failed(c, (old, pred, fields), dt, occupation, first));
-                bad = first_bad(bad, found);
-            }
+            bad = first_bad(bad, correct(consts, (old, pred, fields), dt, out, (occupation, first)));
         }
         bad
     }

@@ -101,10 +101,19 @@ fn add_strided_pair<const D: usize>(
     n: usize,
     product: impl Fn(Vec3, Vec3) -> Vec3,
 ) {
+    let [h0, h1, h2] = h;
+    if n == 1 {
+        // A segment of one site (a periodic row's wrap): the tail's arithmetic without
+        // the strided loop's set-up.
+        let add = product(spins[js], spins[jt]);
+        h0[k0] += add[0];
+        h1[k0] += add[1];
+        h2[k0] += add[2];
+        return;
+    }
     let flat = spins.as_flattened();
     let fits = |j0: usize| 3 * (j0 + D * n) <= flat.len();
     let full = if fits(js) && fits(jt) { n } else { n - 1 };
-    let [h0, h1, h2] = h;
     let near = flat[3 * js..3 * (js + D * full)].chunks_exact(3 * D);
     let far = flat[3 * jt..3 * (jt + D * full)].chunks_exact(3 * D);
     let rows = h0[k0..k0 + full].iter_mut().zip(&mut h1[k0..k0 + full]).zip(&mut h2[k0..k0 + full]);

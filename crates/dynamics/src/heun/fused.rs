@@ -17,7 +17,7 @@
 //! are computed twice with the same bits, and the result is bitwise that of the two-pass
 //! step for any number of tasks.
 
-use super::{correct, first_bad, predictor_chunk, SiteConsts, StepContext, FUSED_BLOCK};
+use super::{correct, first_bad, predictor_chunk, CorrectorScratch, SiteConsts, StepContext, FUSED_BLOCK};
 use rayon::prelude::*;
 use spindrift_hamiltonian::{Hamiltonian, SpinRows};
 use spindrift_lattice::{wrap_index, Vec3};
@@ -224,6 +224,7 @@ spindrift_isa::multiversion! {
     ) -> Option<usize> {
         let StepContext { h, consts, uniform, period, occupation, dt, thermal, .. } = *ctx;
         let mut field_block = [[0.0; 3]; FUSED_BLOCK];
+        let mut scratch = CorrectorScratch::default();
         let mut bad = None;
         let blocks = out.chunks_mut(FUSED_BLOCK).zip(pred.chunks(FUSED_BLOCK)).zip(noise.chunks(FUSED_BLOCK));
         for (block, ((out, pred), noise)) in blocks.enumerate() {
@@ -233,7 +234,7 @@ spindrift_isa::multiversion! {
             let fields = &mut field_block[..len];
             h.field_range_in(view, first, thermal.is_some().then_some(noise), fields);
             let old = &spins[first..first + len];
-            bad = first_bad(bad, correct(consts, (old, pred, fields), dt, out, (occupation, first)));
+            bad = first_bad(bad, correct(consts, (old, pred, fields), dt, out, (occupation, first), &mut scratch));
         }
         bad
     }

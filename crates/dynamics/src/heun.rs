@@ -141,8 +141,8 @@ fn good_norm(x: f64) -> bool {
 fn corrected(c: (f64, f64), s: Vec3, p: Vec3, b: Vec3, dt: f64) -> (Vec3, bool) {
     let v = unnormalised(c, s, p, b, dt);
     let n2 = dot(v, v);
-    let inv = 1.0 / n2.sqrt();
-    (if good_norm(n2) { [v[0] * inv, v[1] * inv, v[2] * inv] } else { s }, good_norm(n2))
+    let (good, inv) = (good_norm(n2), 1.0 / n2.sqrt());
+    (if good { [v[0] * inv, v[1] * inv, v[2] * inv] } else { s }, good)
 }
 
 /// Euler's predictor over one block, `pred[k] = S + dt f(S, B)` with the spins `here` and
